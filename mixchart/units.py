@@ -1,0 +1,193 @@
+"""Frequency parsing and formatting, used only at the edges.
+
+Inside mixchart every frequency is a float64 in hertz.  Text such as
+``"10.7 MHz"``, ``"2.4GHz"`` or ``"455 kHz"`` is turned into hertz here, and
+hertz are turned back into engineering text here, for widgets, the command
+line, JSON and chart axes.  There is one closed set of unit names with one
+table of multipliers.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from decimal import Decimal, InvalidOperation
+from typing import Annotated
+
+from pydantic import BeforeValidator, WithJsonSchema
+
+from .errors import UnitError, field_error
+
+__all__ = [
+    "FREQUENCY_UNITS",
+    "FrequencyHz",
+    "FrequencyHzOrZero",
+    "parse_frequency",
+    "format_frequency",
+    "engineering_scale",
+]
+
+#: Unit name -> multiplier to hertz.  Matching is case-insensitive except that
+#: ``m``/``M`` are never accepted alone (milli versus mega is a classic slip).
+FREQUENCY_UNITS: dict[str, int] = {
+    "hz": 1,
+    "khz": 10**3,
+    "mhz": 10**6,
+    "ghz": 10**9,
+    "thz": 10**12,
+}
+
+_TEXT = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z]*)\s*$")
+
+
+def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool = False) -> float:
+    """Parse a frequency given as a number of hertz or as text with a unit.
+
+    Parameters
+    ----------
+    value : float, int or str
+        A finite number in Hz, or text such as ``"10.7 MHz"``, ``"2.4GHz"``,
+        ``"455 kHz"`` or ``"1e6"`` (Hz when no unit is given).
+    field : str
+        Name of the field being parsed, repeated in any error message.
+    allow_zero : bool
+        Accept 0 Hz (e.g. for a lower filter edge); negative is never accepted.
+
+    Returns
+    -------
+    float
+        The frequency in Hz (float64).  Text is converted through
+        :class:`decimal.Decimal`, so ``"10.7 MHz"`` is exactly ``10700000.0``.
+
+    Raises
+    ------
+    UnitError
+        If the value is not a number or a recognised ``number unit`` text, is
+        not finite, is negative, or is zero when zero is not allowed.
+
+    Examples
+    --------
+    >>> parse_frequency("10.7 MHz")
+    10700000.0
+    >>> parse_frequency(455e3)
+    455000.0
+    """
+    if isinstance(value, bool):
+        raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
+    if isinstance(value, (int, float)):
+        hz = float(value)
+    elif isinstance(value, str):
+        match = _TEXT.match(value)
+        if not match:
+            raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
+        number, unit = match.groups()
+        unit_key = unit.lower() if unit else "hz"
+        if unit_key not in FREQUENCY_UNITS:
+            raise field_error(
+                UnitError, field, value, f"unit must be one of Hz, kHz, MHz, GHz, THz (got {unit!r})"
+            )
+        try:
+            hz = float(Decimal(number) * FREQUENCY_UNITS[unit_key])
+        except InvalidOperation:  # pragma: no cover - the regex already guards this
+            raise field_error(UnitError, field, value, "not a number") from None
+    else:
+        raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
+    if not math.isfinite(hz):
+        raise field_error(UnitError, field, value, "must be a finite frequency")
+    if hz < 0 or (hz == 0 and not allow_zero):
+        limit = "must be >= 0 Hz" if allow_zero else "must be > 0 Hz"
+        raise field_error(UnitError, field, value, limit)
+    return hz
+
+
+_SCALES: tuple[tuple[float, str], ...] = ((1e12, "THz"), (1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
+
+
+def engineering_scale(f_hz: float) -> tuple[float, str]:
+    """Pick the engineering unit that shows ``f_hz`` with 1 to 3 integer digits.
+
+    Parameters
+    ----------
+    f_hz : float
+        A representative frequency in Hz (e.g. the largest on an axis).
+
+    Returns
+    -------
+    (float, str)
+        Multiplier in Hz per unit and the unit's name, e.g. ``(1e6, "MHz")``.
+    """
+    magnitude = abs(float(f_hz))
+    for scale, name in _SCALES:
+        if magnitude >= scale:
+            return scale, name
+    return 1.0, "Hz"
+
+
+def format_frequency(f_hz: float, digits: int = 6, unit: str | None = None) -> str:
+    """Format a frequency in engineering units.
+
+    Parameters
+    ----------
+    f_hz : float
+        Frequency in Hz.
+    digits : int
+        Significant digits to keep; trailing zeros are dropped.
+    unit : str, optional
+        Force a unit from :data:`FREQUENCY_UNITS` (any case); by default the
+        unit is chosen with :func:`engineering_scale`.
+
+    Returns
+    -------
+    str
+        Text such as ``"10.7 MHz"`` that :func:`parse_frequency` reads back.
+
+    Examples
+    --------
+    >>> format_frequency(10.7e6)
+    '10.7 MHz'
+    """
+    if unit is None:
+        scale, name = engineering_scale(f_hz)
+    else:
+        key = unit.lower()
+        if key not in FREQUENCY_UNITS:
+            raise field_error(UnitError, "unit", unit, "must be one of Hz, kHz, MHz, GHz, THz")
+        scale = float(FREQUENCY_UNITS[key])
+        name = {"hz": "Hz", "khz": "kHz", "mhz": "MHz", "ghz": "GHz", "thz": "THz"}[key]
+    if not math.isfinite(f_hz):
+        return f"{f_hz} Hz"
+    text = f"{f_hz / scale:.{digits}g}"
+    if "e" in text:  # very small against the chosen unit; fall back to plain Hz
+        text, name = f"{f_hz:.{digits}g}", "Hz"
+    return f"{text} {name}"
+
+
+FREQUENCY_TEXT_PATTERN = r"^\s*[+]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*([kKmMgGtT]?[hH][zZ])?\s*$"
+
+
+def _validator(allow_zero: bool):
+    def validate(value: object) -> float:
+        try:
+            return parse_frequency(value, "value", allow_zero=allow_zero)
+        except UnitError as exc:
+            # pydantic adds the field path and the input; keep only what is allowed.
+            raise ValueError(str(exc).split("; ", 1)[-1]) from None
+
+    return validate
+
+
+def _schema(allow_zero: bool) -> dict:
+    bound = {"minimum": 0} if allow_zero else {"exclusiveMinimum": 0}
+    return {
+        "anyOf": [
+            {"type": "number", **bound},
+            {"type": "string", "pattern": FREQUENCY_TEXT_PATTERN},
+        ],
+        "description": "Frequency in Hz, or text with a unit such as '10.7 MHz'.",
+    }
+
+
+#: A pydantic field type: a strictly positive frequency in Hz, accepting text.
+FrequencyHz = Annotated[float, BeforeValidator(_validator(False)), WithJsonSchema(_schema(False))]
+#: As :data:`FrequencyHz` but 0 Hz is allowed.
+FrequencyHzOrZero = Annotated[float, BeforeValidator(_validator(True)), WithJsonSchema(_schema(True))]
