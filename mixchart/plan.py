@@ -1,0 +1,529 @@
+"""The frequency plan: a validated model, saved as JSON for other tools.
+
+A :class:`Plan` says what converts to what: the direction (a receiver's
+down-conversion or a transmitter's up-conversion), the RF tuning range and its
+channel raster, the wanted signal, how the LO is set (fixed, or tracking the
+channel on the high or low side, on a synthesiser grid), the IF passband, the
+mixer, the filters and the requirement.  Every frequency is float64 Hz inside;
+the JSON accepts numbers in Hz or text such as ``"10.7 MHz"``.
+
+Plan files are untrusted input.  They are parsed with :mod:`json` only (never
+evaluated or unpickled), unknown keys, duplicate keys, NaN and infinities are
+rejected, and every problem becomes a one-line :class:`~mixchart.errors.PlanError`
+naming the field and repeating the value.  Saving is atomic and a save/load
+round trip is exact.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from functools import cached_property
+from pathlib import Path
+from typing import Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from .errors import PlanError, SweepTooLargeError
+from .filters import FilterSpec
+from .levels import MixerSpec
+from .units import FrequencyHz, format_frequency
+
+__all__ = [
+    "SCHEMA_VERSION",
+    "MAX_ORDER",
+    "MAX_CHANNELS",
+    "Plan",
+    "RfBand",
+    "Signal",
+    "LoSetting",
+    "IfBand",
+    "Filters",
+    "Requirement",
+    "load_plan",
+    "loads_plan",
+    "save_plan",
+    "dumps_plan",
+    "plan_json_schema",
+    "plan_from_dict",
+]
+
+#: Version of the plan JSON layout written by this release.
+SCHEMA_VERSION = 1
+#: Highest analysable order m + n.  Spur charts in practice stop at 15 to 21;
+#: beyond ~25 the level model means nothing (common practice, no source).
+MAX_ORDER = 25
+#: Most channels in one sweep.  Larger sweeps are refused before any allocation.
+MAX_CHANNELS = 2_000_000
+#: Largest plan file read, in bytes.
+MAX_PLAN_BYTES = 5_000_000
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+
+
+class RfBand(_Strict):
+    """RF tuning range as channel centres on a raster.
+
+    For a receiver (down-conversion) this is the input band; for a transmitter
+    (up-conversion) it is the output band.
+    """
+
+    start_hz: FrequencyHz = Field(description="First channel centre, Hz.")
+    stop_hz: FrequencyHz = Field(description="Last channel centre, Hz (>= start_hz).")
+    step_hz: FrequencyHz | None = Field(
+        default=None, description="Channel raster, Hz. Required when stop_hz > start_hz."
+    )
+
+    @model_validator(mode="after")
+    def _check(self) -> RfBand:
+        if self.stop_hz < self.start_hz:
+            raise ValueError(
+                f"stop_hz {format_frequency(self.stop_hz)} is below start_hz "
+                f"{format_frequency(self.start_hz)}"
+            )
+        if self.stop_hz > self.start_hz and self.step_hz is None:
+            raise ValueError("step_hz is required when stop_hz > start_hz")
+        return self
+
+    @property
+    def n_channels(self) -> int:
+        """Number of channel centres in the range (no allocation)."""
+        if self.step_hz is None or self.stop_hz == self.start_hz:
+            return 1
+        count = math.floor((self.stop_hz - self.start_hz) / self.step_hz * (1 + 1e-12) + 1e-9) + 1
+        return int(count)
+
+
+class Signal(_Strict):
+    """The wanted signal."""
+
+    bandwidth_hz: FrequencyHz = Field(description="Occupied bandwidth of the wanted signal, Hz.")
+    level_dbm: float = Field(
+        default=-30.0,
+        ge=-200.0,
+        le=60.0,
+        description="Wanted-signal level at the mixer's signal input, dBm.",
+    )
+    interferer_level_dbm: float | None = Field(
+        default=None,
+        ge=-200.0,
+        le=60.0,
+        description=(
+            "Level assumed for unwanted inputs when computing receiver response "
+            "rejection, dBm at the preselector input; default: the wanted level."
+        ),
+    )
+
+
+class LoSetting(_Strict):
+    """How the LO is set for each channel."""
+
+    mode: Literal["tracking", "fixed"] = Field(
+        default="tracking",
+        description="'tracking': the LO follows the channel; 'fixed': one LO for the whole band.",
+    )
+    side: Literal["high", "low"] = Field(
+        default="high", description="Tracking injection side: LO above ('high') or below ('low') the RF."
+    )
+    fixed_hz: FrequencyHz | None = Field(default=None, description="LO frequency when mode is 'fixed', Hz.")
+    step_hz: FrequencyHz | None = Field(
+        default=None, description="LO synthesiser step, Hz: the LO can only sit on multiples of it."
+    )
+
+    @model_validator(mode="after")
+    def _check(self) -> LoSetting:
+        if self.mode == "fixed" and self.fixed_hz is None:
+            raise ValueError("fixed_hz is required when mode is 'fixed'")
+        if self.mode == "tracking" and self.fixed_hz is not None:
+            raise ValueError("fixed_hz is only used when mode is 'fixed'")
+        return self
+
+
+class IfBand(_Strict):
+    """The IF passband: where the wanted output lands (down) or the input comes from (up)."""
+
+    center_hz: FrequencyHz = Field(description="IF centre, Hz.")
+    bandwidth_hz: FrequencyHz = Field(description="IF passband width, Hz.")
+
+    @model_validator(mode="after")
+    def _check(self) -> IfBand:
+        if self.bandwidth_hz >= 2 * self.center_hz:
+            raise ValueError(
+                f"bandwidth_hz {format_frequency(self.bandwidth_hz)} puts the lower passband edge "
+                f"at or below 0 Hz (centre {format_frequency(self.center_hz)})"
+            )
+        return self
+
+    @property
+    def lo_hz(self) -> float:
+        """Lower passband edge, Hz."""
+        return self.center_hz - self.bandwidth_hz / 2
+
+    @property
+    def hi_hz(self) -> float:
+        """Upper passband edge, Hz."""
+        return self.center_hz + self.bandwidth_hz / 2
+
+
+class Filters(_Strict):
+    """Filters around the mixer; ``None`` means no filter (0 dB everywhere)."""
+
+    rf: FilterSpec | None = Field(
+        default=None,
+        description="RF-side filter: a receiver's preselector, a transmitter's output filter.",
+    )
+    if_: FilterSpec | None = Field(default=None, alias="if", description="IF filter.")
+    lo: FilterSpec | None = Field(
+        default=None, description="LO filter (described for documentation; not applied to levels)."
+    )
+
+
+class Requirement(_Strict):
+    """What the plan must achieve."""
+
+    min_rejection_db: float = Field(
+        default=60.0,
+        ge=0.0,
+        le=300.0,
+        description="Every spur must be at least this far below the wanted output, dB (i.e. <= -x dBc).",
+    )
+
+
+class Plan(_Strict):
+    """One frequency plan.
+
+    Examples
+    --------
+    >>> plan = Plan.model_validate({
+    ...     "direction": "down",
+    ...     "rf": {"start_hz": "88 MHz", "stop_hz": "108 MHz", "step_hz": "100 kHz"},
+    ...     "signal": {"bandwidth_hz": "200 kHz"},
+    ...     "lo": {"mode": "tracking", "side": "high"},
+    ...     "if": {"center_hz": "10.7 MHz", "bandwidth_hz": "200 kHz"},
+    ... })
+    >>> plan.rf.n_channels
+    201
+    """
+
+    schema_version: Literal[1] = Field(default=SCHEMA_VERSION, description="Plan JSON layout version.")
+    name: str = Field(default="untitled plan", max_length=200, description="Short name of the plan.")
+    notes: str = Field(default="", max_length=20_000, description="Free text.")
+    direction: Literal["down", "up"] = Field(
+        default="down", description="'down': RF in, IF out (receiver); 'up': IF in, RF out (transmitter)."
+    )
+    rf: RfBand
+    signal: Signal
+    lo: LoSetting = Field(default_factory=LoSetting)
+    if_: IfBand = Field(alias="if")
+    max_order: int = Field(default=7, ge=2, le=MAX_ORDER, description="Highest order m+n analysed.")
+    mixer: MixerSpec = Field(default_factory=MixerSpec)
+    filters: Filters = Field(default_factory=Filters)
+    requirement: Requirement = Field(default_factory=Requirement)
+
+    @model_validator(mode="after")
+    def _check(self) -> Plan:
+        n = self.rf.n_channels
+        if n > MAX_CHANNELS:
+            raise SweepTooLargeError(
+                f"rf: {n} channels ({format_frequency(self.rf.start_hz)} to "
+                f"{format_frequency(self.rf.stop_hz)} in {format_frequency(self.rf.step_hz or 0)} steps) "
+                f"is too many; at most {MAX_CHANNELS}"
+            )
+        if self.lo.mode == "tracking" and self.lo.side == "low" and self.rf.start_hz <= self.if_.center_hz:
+            raise ValueError(
+                f"low-side LO would be at or below 0 Hz: rf.start_hz {format_frequency(self.rf.start_hz)} "
+                f"<= if.center_hz {format_frequency(self.if_.center_hz)}"
+            )
+        if self.lo.step_hz is not None and self.lo.step_hz > self.if_.bandwidth_hz and self.lo.mode == "tracking":
+            # Legal but worth knowing; reported as a finding, not an error.
+            pass
+        return self
+
+    # ------------------------------------------------------------------ sweep
+    @cached_property
+    def _grid(self) -> tuple[np.ndarray, np.ndarray]:
+        return _channels_and_lo(self)
+
+    def channels_hz(self) -> np.ndarray:
+        """Channel centres of the RF tuning range, Hz, shape ``(n_channels,)``."""
+        return self._grid[0].copy()
+
+    def lo_hz(self) -> np.ndarray:
+        """LO frequency for each channel after snapping to the LO step grid, Hz."""
+        return self._grid[1].copy()
+
+    def nominal_lo_hz(self, f_rf_hz: np.ndarray | float) -> np.ndarray:
+        """LO frequency that puts ``f_rf_hz`` exactly on the IF centre, before grid snapping.
+
+        Parameters
+        ----------
+        f_rf_hz : array_like
+            RF channel centres, Hz.
+
+        Returns
+        -------
+        numpy.ndarray
+            Ideal LO, Hz (the fixed LO when the LO is fixed).
+        """
+        f_rf_hz = np.asarray(f_rf_hz, dtype=float)
+        if self.lo.mode == "fixed":
+            return np.full_like(f_rf_hz, float(self.lo.fixed_hz))
+        if self.lo.side == "high":
+            return f_rf_hz + self.if_.center_hz
+        return f_rf_hz - self.if_.center_hz
+
+    def with_changes(self, changes: dict[str, Any]) -> Plan:
+        """Return a validated copy with changes applied at dotted JSON paths.
+
+        Parameters
+        ----------
+        changes : dict
+            Dotted JSON key paths to new values, e.g.
+            ``{"if.center_hz": "21.4 MHz", "lo.side": "low"}``.
+
+        Returns
+        -------
+        Plan
+            A new plan; the original is unchanged.
+
+        Raises
+        ------
+        PlanError
+            If the changed plan is invalid.
+        """
+        data = self.to_dict()
+        for path, value in changes.items():
+            node = data
+            keys = path.split(".")
+            for key in keys[:-1]:
+                if not isinstance(node.get(key), dict):
+                    node[key] = {}
+                node = node[key]
+            node[keys[-1]] = value
+        return plan_from_dict(data)
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain JSON-ready dict (frequencies as float Hz, JSON key names)."""
+        return self.model_dump(mode="json", by_alias=True, exclude_none=True)
+
+
+def _channels_and_lo(plan: Plan) -> tuple[np.ndarray, np.ndarray]:
+    n = plan.rf.n_channels
+    step = plan.rf.step_hz or 0.0
+    channels = plan.rf.start_hz + step * np.arange(n, dtype=float)
+    if n > 1:
+        channels[-1] = min(channels[-1], plan.rf.stop_hz)
+    lo = plan.nominal_lo_hz(channels)
+    if plan.lo.step_hz is not None:
+        lo = np.round(lo / plan.lo.step_hz) * plan.lo.step_hz
+        if np.any(lo <= 0):
+            raise PlanError(
+                f"lo.step_hz: {plan.lo.step_hz!r} snaps the LO to 0 Hz; use a finer step"
+            )
+    return channels, lo
+
+
+# ---------------------------------------------------------------------- JSON
+
+
+def _one_line(exc: ValidationError) -> PlanError:
+    errors = exc.errors(include_url=False)
+    first = errors[0]
+    loc = ".".join(str(part) for part in first["loc"]) or "plan"
+    # Discriminated-union tags add a level naming the chosen kind; drop it.
+    message = first["msg"]
+    for prefix in ("Value error, ", "Assertion failed, "):
+        if message.startswith(prefix):
+            message = message[len(prefix):]
+    value = first.get("input")
+    shown = repr(value)
+    if isinstance(value, dict):
+        shown = "{...}"
+    if len(shown) > 60:
+        shown = shown[:57] + "..."
+    more = f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})" if len(errors) > 1 else ""
+    if first["type"] == "missing":
+        text = f"{loc}: missing; this field is required"
+    elif first["type"] == "extra_forbidden":
+        text = f"{loc}: unknown key (value {shown}); remove it or check its spelling"
+    else:
+        text = f"{loc}: {shown} is invalid; {message}"
+    return PlanError((text + more).replace("\n", " "))
+
+
+def plan_from_dict(data: Any) -> Plan:
+    """Validate a plain dict (parsed JSON) into a :class:`Plan`.
+
+    Parameters
+    ----------
+    data : dict
+        The plan, with JSON key names (``"if"``, not ``"if_"``).
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    PlanError
+        One line naming the first bad field and its value.
+    SweepTooLargeError
+        If the sweep has more than :data:`MAX_CHANNELS` channels.
+    """
+    if not isinstance(data, dict):
+        raise PlanError(f"plan: {type(data).__name__} is invalid; the top level must be a JSON object")
+    try:
+        return Plan.model_validate(data, by_alias=True, by_name=False)
+    except SweepTooLargeError:
+        raise
+    except ValidationError as exc:
+        for err in exc.errors(include_url=False):
+            ctx = err.get("ctx") or {}
+            if isinstance(ctx.get("error"), SweepTooLargeError):
+                raise ctx["error"] from None
+        raise _one_line(exc) from None
+
+
+def _reject_constant(name: str) -> float:
+    raise PlanError(f"plan: {name} is invalid; JSON numbers must be finite")
+
+
+def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for key, value in pairs:
+        if key in out:
+            raise PlanError(f"{key}: duplicate key; each key may appear once")
+        out[key] = value
+    return out
+
+
+def loads_plan(text: str | bytes) -> Plan:
+    """Parse plan JSON text.
+
+    Parameters
+    ----------
+    text : str or bytes
+        The JSON document.
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    PlanError
+        Malformed JSON, NaN/Infinity, duplicate keys, or an invalid plan.
+    """
+    if isinstance(text, bytes):
+        try:
+            text = text.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise PlanError(f"plan file: not UTF-8 text ({exc.reason} at byte {exc.start})") from None
+    if len(text) > MAX_PLAN_BYTES:
+        raise PlanError(f"plan file: {len(text)} characters is too large; at most {MAX_PLAN_BYTES}")
+    try:
+        data = json.loads(text, parse_constant=_reject_constant, object_pairs_hook=_no_duplicates)
+    except json.JSONDecodeError as exc:
+        raise PlanError(f"plan file: malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
+    except RecursionError:
+        raise PlanError("plan file: JSON nested too deeply") from None
+    return plan_from_dict(data)
+
+
+def load_plan(path: str | os.PathLike[str]) -> Plan:
+    """Read and validate a plan file.
+
+    Parameters
+    ----------
+    path : path-like
+        A JSON plan file.  Relative paths inside it (filter and level-table
+        files) are resolved against its folder; see :func:`plan_base_dir`.
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    PlanError
+        The file cannot be read, or is not a valid plan.
+    """
+    path = Path(path)
+    try:
+        size = path.stat().st_size
+        if size > MAX_PLAN_BYTES:
+            raise PlanError(f"plan file: {str(path)!r} is {size} bytes; at most {MAX_PLAN_BYTES}")
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise PlanError(f"plan file: {str(path)!r} cannot be read ({exc.strerror or exc})") from None
+    return loads_plan(raw)
+
+
+def dumps_plan(plan: Plan) -> str:
+    """Serialise a plan to JSON text (floats in Hz, written with ``repr`` so they round-trip exactly)."""
+    return json.dumps(plan.to_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def save_plan(plan: Plan, path: str | os.PathLike[str]) -> Path:
+    """Write a plan to ``path`` atomically.
+
+    The JSON goes to a temporary file in the same folder, is flushed to disk,
+    then renamed over ``path``, so a crash never leaves a half-written plan.
+
+    Parameters
+    ----------
+    plan : Plan
+        The plan to save.
+    path : path-like
+        Destination file.
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+
+    Raises
+    ------
+    PlanError
+        If the file cannot be written.
+    """
+    path = Path(path)
+    text = dumps_plan(plan)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
+    except OSError as exc:
+        raise PlanError(f"plan file: {str(path)!r} cannot be written ({exc.strerror or exc})") from None
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    return path
+
+
+def plan_json_schema() -> dict[str, Any]:
+    """The JSON Schema (draft 2020-12) of the plan file, generated from the model.
+
+    Returns
+    -------
+    dict
+        The schema document.
+    """
+    schema = Plan.model_json_schema(by_alias=True, mode="validation")
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "$id": f"mixchart-plan-v{SCHEMA_VERSION}",
+        **schema,
+    }
