@@ -1,0 +1,554 @@
+"""Mixing products, spurious responses and spur loci: pure numpy.
+
+A mixer fed with a signal at ``f_in`` and an LO at ``f_lo`` puts out products
+at ``|m·f_in ± n·f_lo|``, where ``m`` (``rf_harmonic``) is the harmonic of the
+signal at the mixer's signal input (the RF of a down-converter, the IF of an
+up-converter) and ``n`` (``lo_harmonic``) the LO harmonic; the order is
+``m + n``.  A signal of bandwidth ``B`` gives an (m, n) product of width
+``m·B``.
+
+Every function here works on whole arrays of channels at once: a tuning sweep
+is one call, never a Python loop over channels.  Nothing here imports a
+plotting or widget library.
+
+References
+----------
+The product and response relations are the standard heterodyne relations found
+in any receiver-design text: the output ``|m·f_RF ± n·f_LO|`` and its inverse,
+the inputs that reach an IF ``f_in = |n·f_LO ± f_IF| / m``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from .errors import MixchartError, field_error
+
+__all__ = [
+    "LABELS",
+    "ProductFamily",
+    "ResponseFamily",
+    "product_family",
+    "response_family",
+    "product_bands",
+    "response_bands",
+    "overlaps",
+    "is_inverted",
+    "Lines",
+    "clip_lines",
+    "tuning_plane_loci",
+    "output_plane_loci",
+    "product_labels",
+    "response_labels",
+]
+
+#: Label codes used in the ``label`` arrays, and their text.
+LABELS: tuple[str, ...] = (
+    "spur",  # 0: any other (m, n)
+    "wanted",  # 1
+    "image",  # 2: (1,1) response on the far side of the LO
+    "half-IF",  # 3: (2,2) response between the wanted input and the LO
+    "IF feedthrough",  # 4: (1,0) response: an input at the IF itself
+    "LO leakage",  # 5: (0,1) product
+    "LO harmonic",  # 6: (0,n>1) product
+    "RF feedthrough",  # 7: (1,0) product of a down-converter
+    "sum product",  # 8: (1,1) unwanted sign of a down-converter
+    "unwanted sideband",  # 9: (1,1) unwanted sign of an up-converter
+    "IF feedthrough",  # 10: (1,0) product of an up-converter (input IF at the output)
+)
+SPUR, WANTED, IMAGE, HALF_IF, IF_FEEDTHROUGH, LO_LEAKAGE, LO_HARMONIC = range(7)
+RF_FEEDTHROUGH, SUM_PRODUCT, UNWANTED_SIDEBAND, IF_FEEDTHROUGH_OUT = 7, 8, 9, 10
+
+
+def _check_order(max_order: object) -> int:
+    if isinstance(max_order, bool) or not isinstance(max_order, (int, np.integer)) or not 1 <= max_order <= 64:
+        raise field_error(MixchartError, "max_order", max_order, "must be a whole number from 1 to 64")
+    return int(max_order)
+
+
+@dataclass(frozen=True)
+class ProductFamily:
+    """The (m, n, sign) output products up to an order.
+
+    Attributes
+    ----------
+    rf_harmonic : numpy.ndarray of int, shape (K,)
+        ``m``, harmonic of the signal input.
+    lo_harmonic : numpy.ndarray of int, shape (K,)
+        ``n``, harmonic of the LO.
+    sign : numpy.ndarray of int, shape (K,)
+        ``+1`` for ``m·f_in + n·f_lo``, ``-1`` for ``|m·f_in - n·f_lo|``.
+        Products with ``m == 0`` or ``n == 0`` appear once, with ``+1``.
+    """
+
+    rf_harmonic: np.ndarray
+    lo_harmonic: np.ndarray
+    sign: np.ndarray
+
+    @property
+    def order(self) -> np.ndarray:
+        """``m + n`` for each product."""
+        return self.rf_harmonic + self.lo_harmonic
+
+    def __len__(self) -> int:
+        return int(self.rf_harmonic.size)
+
+
+@dataclass(frozen=True)
+class ResponseFamily:
+    """The (m, n, branch) input responses up to an order.
+
+    Attributes
+    ----------
+    rf_harmonic : numpy.ndarray of int, shape (K,)
+        ``m >= 1``.
+    lo_harmonic : numpy.ndarray of int, shape (K,)
+        ``n >= 0``.
+    branch : numpy.ndarray of int, shape (K,)
+        ``+1`` for ``f_in = (n·f_lo + f_IF)/m`` (input above the LO harmonic),
+        ``-1`` for ``f_in = |n·f_lo - f_IF|/m``.  ``n == 0`` appears once.
+    """
+
+    rf_harmonic: np.ndarray
+    lo_harmonic: np.ndarray
+    branch: np.ndarray
+
+    @property
+    def order(self) -> np.ndarray:
+        """``m + n`` for each response."""
+        return self.rf_harmonic + self.lo_harmonic
+
+    def __len__(self) -> int:
+        return int(self.rf_harmonic.size)
+
+
+def _frozen(*arrays: np.ndarray) -> tuple[np.ndarray, ...]:
+    for array in arrays:
+        array.setflags(write=False)
+    return arrays
+
+
+@lru_cache(maxsize=64)
+def product_family(max_order: int) -> ProductFamily:
+    """All output products with ``1 <= m + n <= max_order``.
+
+    Parameters
+    ----------
+    max_order : int
+        Highest order ``m + n``.
+
+    Returns
+    -------
+    ProductFamily
+        Sorted by order, then ``m``, then sign (difference first).
+
+    Examples
+    --------
+    >>> fam = product_family(2)
+    >>> list(zip(fam.rf_harmonic, fam.lo_harmonic, fam.sign))  # doctest: +NORMALIZE_WHITESPACE
+    [(0, 1, 1), (1, 0, 1), (0, 2, 1), (1, 1, -1), (1, 1, 1), (2, 0, 1)]
+    """
+    max_order = _check_order(max_order)
+    rows = []
+    for order in range(1, max_order + 1):
+        for m in range(order + 1):
+            n = order - m
+            signs = (-1, 1) if (m and n) else (1,)
+            rows.extend((m, n, s) for s in signs)
+    table = np.array(rows, dtype=np.int64)
+    return ProductFamily(*_frozen(table[:, 0].copy(), table[:, 1].copy(), table[:, 2].copy()))
+
+
+@lru_cache(maxsize=64)
+def response_family(max_order: int) -> ResponseFamily:
+    """All input responses with ``m >= 1`` and ``m + n <= max_order``.
+
+    Parameters
+    ----------
+    max_order : int
+        Highest order ``m + n``.
+
+    Returns
+    -------
+    ResponseFamily
+        Sorted by order, then ``m``, then branch (``-1`` first).
+    """
+    max_order = _check_order(max_order)
+    rows = []
+    for order in range(1, max_order + 1):
+        for m in range(1, order + 1):
+            n = order - m
+            branches = (-1, 1) if n else (1,)
+            rows.extend((m, n, b) for b in branches)
+    table = np.array(rows, dtype=np.int64)
+    return ResponseFamily(*_frozen(table[:, 0].copy(), table[:, 1].copy(), table[:, 2].copy()))
+
+
+def product_bands(
+    f_in_hz: np.ndarray, f_lo_hz: np.ndarray, bw_in_hz: float, family: ProductFamily
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Output bands of every product for every channel.
+
+    Parameters
+    ----------
+    f_in_hz : array_like, shape (C,)
+        Centre of the signal at the mixer's signal input for each channel, Hz.
+    f_lo_hz : array_like, shape (C,)
+        LO frequency for each channel, Hz.
+    bw_in_hz : float
+        Bandwidth of the input signal, Hz.  Product (m, n) is ``m·bw_in_hz`` wide.
+    family : ProductFamily
+        Which products.
+
+    Returns
+    -------
+    f_center_hz, f_low_hz, f_high_hz : numpy.ndarray, shape (C, K)
+        Centre ``|m·f_in ± n·f_lo|`` and band edges, Hz.  A band that folds
+        through 0 Hz is reported as ``[0, centre + width/2]``.
+    """
+    f_in = np.asarray(f_in_hz, dtype=float)[:, None]
+    f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
+    m = family.rf_harmonic[None, :]
+    n_signed = (family.sign * family.lo_harmonic)[None, :]
+    center = np.abs(m * f_in + n_signed * f_lo)
+    half = 0.5 * bw_in_hz * m
+    low = np.maximum(center - half, 0.0)
+    high = center + half
+    return center, low, high
+
+
+def response_bands(
+    f_lo_hz: np.ndarray, if_low_hz: float, if_high_hz: float, family: ResponseFamily
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Input bands that reach the IF passband, for every channel's LO.
+
+    An input at ``f`` produces (m, n) output ``|m·f ± n·f_lo|``; it lands in
+    ``[if_low_hz, if_high_hz]`` when ``f = |n·f_lo ± f_IF| / m``, so the IF
+    passband of width ``B`` maps to an input band of width ``B/m``.
+
+    Parameters
+    ----------
+    f_lo_hz : array_like, shape (C,)
+        LO frequency for each channel, Hz.
+    if_low_hz, if_high_hz : float
+        IF passband edges, Hz.
+    family : ResponseFamily
+        Which responses.
+
+    Returns
+    -------
+    f_center_hz, f_low_hz, f_high_hz : numpy.ndarray, shape (C, K)
+        Centre (for the IF centre) and edges of each responding input band, Hz.
+        A band of the ``-1`` branch that straddles ``n·f_lo`` starts at 0 Hz.
+    """
+    f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
+    m = family.rf_harmonic[None, :].astype(float)
+    n = family.lo_harmonic[None, :]
+    plus = family.branch[None, :] > 0
+    if_center = 0.5 * (if_low_hz + if_high_hz)
+    harmonic = n * f_lo
+    # branch +1: (n·f_lo + f_IF)/m, increasing in f_IF
+    # branch -1: |n·f_lo - f_IF|/m
+    a = (harmonic - if_high_hz) / m
+    b = (harmonic - if_low_hz) / m
+    minus_low = np.where(a > 0, a, np.where(b < 0, -b, 0.0))
+    minus_high = np.maximum(np.abs(a), np.abs(b))
+    center = np.where(plus, (harmonic + if_center) / m, np.abs(harmonic - if_center) / m)
+    low = np.where(plus, (harmonic + if_low_hz) / m, minus_low)
+    high = np.where(plus, (harmonic + if_high_hz) / m, minus_high)
+    return center, low, high
+
+
+def overlaps(low_a: np.ndarray, high_a: np.ndarray, low_b: np.ndarray | float, high_b: np.ndarray | float) -> np.ndarray:
+    """True where band ``[low_a, high_a]`` overlaps band ``[low_b, high_b]``.
+
+    Touching edges count as an overlap: a product whose edge sits exactly on the
+    passband edge is reported, not hidden.
+    """
+    return (np.asarray(low_a) <= high_b) & (np.asarray(high_a) >= low_b)
+
+
+def is_inverted(f_in_hz: np.ndarray, f_lo_hz: np.ndarray, wanted_sign: np.ndarray) -> np.ndarray:
+    """Whether the wanted (1,1) conversion inverts the spectrum.
+
+    The output ``f_lo - f_in`` (the difference with the LO above the input)
+    runs backwards as the input rises, so the spectrum is inverted; the sum and
+    ``f_in - f_lo`` are not.  With a tracking LO, high-side injection inverts.
+
+    Parameters
+    ----------
+    f_in_hz, f_lo_hz : array_like
+        Input-signal centre and LO, Hz.
+    wanted_sign : array_like of int
+        ``+1`` if the wanted output is the sum, ``-1`` if the difference.
+
+    Returns
+    -------
+    numpy.ndarray of bool
+    """
+    return (np.asarray(wanted_sign) < 0) & (np.asarray(f_lo_hz) > np.asarray(f_in_hz))
+
+
+# --------------------------------------------------------------------- loci
+
+
+@dataclass(frozen=True)
+class Lines:
+    """Straight line segments with their product identity, as plain arrays.
+
+    Attributes
+    ----------
+    x0, y0, x1, y1 : numpy.ndarray of float
+        End points, in the plane's units (Hz, or LO-normalised).
+    rf_harmonic, lo_harmonic, sign : numpy.ndarray of int
+        The product each segment belongs to.
+    edge : numpy.ndarray of int
+        ``-1``/``0``/``+1``: the line where the product hits the lower IF edge,
+        the IF centre or the upper IF edge (always 0 on the output plane).
+    """
+
+    x0: np.ndarray
+    y0: np.ndarray
+    x1: np.ndarray
+    y1: np.ndarray
+    rf_harmonic: np.ndarray
+    lo_harmonic: np.ndarray
+    sign: np.ndarray
+    edge: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.x0.size)
+
+
+def clip_lines(
+    a: np.ndarray, b: np.ndarray, c: np.ndarray, window: tuple[float, float, float, float]
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Clip the lines ``a·x + b·y = c`` to a rectangle.
+
+    Parameters
+    ----------
+    a, b, c : array_like, shape (L,)
+        Line coefficients; ``a`` and ``b`` must not both be zero.
+    window : (x_min, x_max, y_min, y_max)
+        The rectangle.
+
+    Returns
+    -------
+    x0, y0, x1, y1 : numpy.ndarray, shape (L,)
+        Segment end points (NaN where the line misses the rectangle).
+    keep : numpy.ndarray of bool, shape (L,)
+        Lines that cross the rectangle in more than a point.
+    """
+    x_min, x_max, y_min, y_max = (float(v) for v in window)
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    c = np.asarray(c, dtype=float)
+    span = max(x_max - x_min, y_max - y_min)
+    tol = 1e-12 * max(span, abs(x_max), abs(y_max), 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # candidate points on the four edges
+        xs = np.stack([np.full_like(a, x_min), np.full_like(a, x_max), (c - b * y_min) / a, (c - b * y_max) / a])
+        ys = np.stack([(c - a * x_min) / b, (c - a * x_max) / b, np.full_like(a, y_min), np.full_like(a, y_max)])
+    ok = (
+        np.isfinite(xs)
+        & np.isfinite(ys)
+        & (xs >= x_min - tol)
+        & (xs <= x_max + tol)
+        & (ys >= y_min - tol)
+        & (ys <= y_max + tol)
+    )
+    # order candidates along the line direction (-b, a)
+    t = np.where(ok, -b * xs + a * ys, np.nan)
+    has = ok.any(axis=0)
+    t_lo = np.where(ok, t, np.inf)
+    t_hi = np.where(ok, t, -np.inf)
+    i0 = np.argmin(t_lo, axis=0)
+    i1 = np.argmax(t_hi, axis=0)
+    cols = np.arange(a.size)
+    x0, y0 = xs[i0, cols], ys[i0, cols]
+    x1, y1 = xs[i1, cols], ys[i1, cols]
+    with np.errstate(invalid="ignore"):
+        keep = has & ((np.abs(x1 - x0) > tol) | (np.abs(y1 - y0) > tol))
+    nan = np.nan
+    x0, y0, x1, y1 = (np.where(keep, v, nan) for v in (x0, y0, x1, y1))
+    return (
+        np.clip(x0, x_min, x_max),
+        np.clip(y0, y_min, y_max),
+        np.clip(x1, x_min, x_max),
+        np.clip(y1, y_min, y_max),
+        keep,
+    )
+
+
+def _select(lines: dict[str, np.ndarray], window: tuple[float, float, float, float]) -> Lines:
+    x0, y0, x1, y1, keep = clip_lines(lines["a"], lines["b"], lines["c"], window)
+    return Lines(
+        x0=x0[keep],
+        y0=y0[keep],
+        x1=x1[keep],
+        y1=y1[keep],
+        rf_harmonic=lines["m"][keep],
+        lo_harmonic=lines["n"][keep],
+        sign=lines["s"][keep],
+        edge=lines["edge"][keep],
+    )
+
+
+def tuning_plane_loci(
+    max_order: int,
+    if_low_hz: float,
+    if_high_hz: float,
+    window: tuple[float, float, float, float],
+    *,
+    include_center: bool = True,
+) -> Lines:
+    """Where each product lands on the IF, across the RF (x) versus LO (y) plane.
+
+    Product (m, n, sign) lands on an IF frequency ``f_t`` along the straight
+    lines ``m·f_RF + sign·n·f_LO = ±f_t``.  The strip between the lines for the
+    lower and upper IF edges is where that product falls inside the IF
+    passband; a plan's LO line crossing a strip is a spur hit.
+
+    Parameters
+    ----------
+    max_order : int
+        Highest order ``m + n``.
+    if_low_hz, if_high_hz : float
+        IF passband edges, Hz.
+    window : (rf_min_hz, rf_max_hz, lo_min_hz, lo_max_hz)
+        The plotted rectangle, Hz.
+    include_center : bool
+        Also return the lines for the IF centre (``edge == 0``).
+
+    Returns
+    -------
+    Lines
+        Segments with ``x`` = RF and ``y`` = LO, in Hz.
+    """
+    family = product_family(max_order)
+    edges = [(-1, if_low_hz), (1, if_high_hz)]
+    if include_center:
+        edges.insert(1, (0, 0.5 * (if_low_hz + if_high_hz)))
+    parts: dict[str, list[np.ndarray]] = {k: [] for k in ("a", "b", "c", "m", "n", "s", "edge")}
+    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
+    for edge, f_t in edges:
+        # m·x + s·n·y = +f_t always; the difference also reaches -f_t.
+        for rhs, rows in ((f_t, np.ones_like(m, dtype=bool)), (-f_t, s < 0)):
+            parts["a"].append(m[rows].astype(float))
+            parts["b"].append((s * n)[rows].astype(float))
+            parts["c"].append(np.full(rows.sum(), rhs))
+            parts["m"].append(m[rows])
+            parts["n"].append(n[rows])
+            parts["s"].append(s[rows])
+            parts["edge"].append(np.full(rows.sum(), edge))
+    lines = {k: np.concatenate(v) for k, v in parts.items()}
+    return _select(lines, window)
+
+
+def output_plane_loci(max_order: int, f_lo_hz: float, window: tuple[float, float, float, float]) -> Lines:
+    """Each product's output against the input frequency, for one LO.
+
+    Product (m, n, sign) is the line ``y = |m·x + sign·n·f_lo|``: one line for
+    the sum, and a V of two lines for the difference, meeting at 0 on
+    ``x = n·f_lo/m``.  With ``f_lo_hz = 1`` and the window in LO units this is
+    the normalised chart ``y = |m·x ± n|``.
+
+    Parameters
+    ----------
+    max_order : int
+        Highest order ``m + n``.
+    f_lo_hz : float
+        The LO, Hz (or 1 for the normalised plane).
+    window : (x_min, x_max, y_min, y_max)
+        The plotted rectangle (``y_min >= 0``).
+
+    Returns
+    -------
+    Lines
+        Segments with ``x`` = input and ``y`` = output frequency.
+    """
+    family = product_family(max_order)
+    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
+    # y = m·x + s·n·f_lo  <=>  -m·x + y = s·n·f_lo ; the fold of the difference:
+    # y = s'·(m·x - n·f_lo) with the other sign  <=>  m·x + y = n·f_lo
+    fold = s < 0
+    lines = {
+        "a": np.concatenate([-m.astype(float), m[fold].astype(float)]),
+        "b": np.ones(m.size + fold.sum()),
+        "c": np.concatenate([(s * n * f_lo_hz).astype(float), (n[fold] * f_lo_hz).astype(float)]),
+        "m": np.concatenate([m, m[fold]]),
+        "n": np.concatenate([n, n[fold]]),
+        "s": np.concatenate([s, s[fold]]),
+        "edge": np.zeros(m.size + fold.sum(), dtype=np.int64),
+    }
+    return _select(lines, window)
+
+
+# -------------------------------------------------------------------- labels
+
+
+def product_labels(family: ProductFamily, direction: str, wanted_sign: np.ndarray) -> np.ndarray:
+    """Label code (index into :data:`LABELS`) of every output product.
+
+    Parameters
+    ----------
+    family : ProductFamily
+        The products, shape (K,).
+    direction : {"down", "up"}
+        Down-conversion (RF in) or up-conversion (IF in).
+    wanted_sign : array_like of int, shape (C,)
+        Sign of the wanted (1,1) product for each channel.
+
+    Returns
+    -------
+    numpy.ndarray of int8, shape (C, K)
+    """
+    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
+    base = np.full(m.size, SPUR, dtype=np.int8)
+    base[(m == 0) & (n == 1)] = LO_LEAKAGE
+    base[(m == 0) & (n > 1)] = LO_HARMONIC
+    base[(m == 1) & (n == 0)] = RF_FEEDTHROUGH if direction == "down" else IF_FEEDTHROUGH_OUT
+    codes = np.repeat(base[None, :], np.size(wanted_sign), axis=0)
+    one_one = (m == 1) & (n == 1)
+    wanted = one_one[None, :] & (s[None, :] == np.asarray(wanted_sign)[:, None])
+    other = one_one[None, :] & ~wanted
+    codes[wanted] = WANTED
+    codes[other] = SUM_PRODUCT if direction == "down" else UNWANTED_SIDEBAND
+    if direction == "down":
+        # the unwanted (1,1) of a down-converter is the sum unless the wanted is the sum
+        codes[other & (s[None, :] < 0)] = SPUR
+    return codes
+
+
+def response_labels(family: ResponseFamily, wanted_branch: np.ndarray) -> np.ndarray:
+    """Label code (index into :data:`LABELS`) of every receiver response.
+
+    The wanted response is the (1,1) branch holding the channel; the image is
+    the other (1,1) branch, on the far side of the LO; the half-IF response is
+    the (2,2) branch on the wanted side of the LO (halfway between the wanted
+    input and the LO); (1,0) is IF feedthrough.
+
+    Parameters
+    ----------
+    family : ResponseFamily
+        The responses, shape (K,).
+    wanted_branch : array_like of int, shape (C,)
+        ``+1`` when the wanted input sits above the LO, ``-1`` below.
+
+    Returns
+    -------
+    numpy.ndarray of int8, shape (C, K)
+    """
+    m, n, b = family.rf_harmonic, family.lo_harmonic, family.branch
+    wanted_branch = np.asarray(wanted_branch)[:, None]
+    codes = np.full((wanted_branch.shape[0], m.size), SPUR, dtype=np.int8)
+    codes[:, (m == 1) & (n == 0)] = IF_FEEDTHROUGH
+    one_one = ((m == 1) & (n == 1))[None, :]
+    same = b[None, :] == wanted_branch
+    codes[one_one & same] = WANTED
+    codes[one_one & ~same] = IMAGE
+    codes[((m == 2) & (n == 2))[None, :] & same] = HALF_IF
+    return codes
