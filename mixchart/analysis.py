@@ -1,0 +1,570 @@
+"""Evaluate a plan: every product and response, its level after the filters, its margin.
+
+:func:`evaluate` sweeps the plan's whole tuning range in chunks of channels and
+returns an :class:`Evaluation`: per-channel worst cases, the worst case of each
+product/response across the sweep, the failing rows, a summary, and the
+warnings a designer should read.  Nothing here imports a plotting library.
+
+Level model
+-----------
+All levels are relative to the wanted output (dBc).  ``T(m, n)`` is the mixer
+level table at its reference RF drive ``P_ref``; the RF drive moves an (m, n)
+product ``(m - 1)`` dB per dB relative to the wanted output.
+
+*Products of the wanted signal* (down-conversion: the receiver's own spurs; up-
+conversion: the transmitter's output spurs)::
+
+    level = T(m, n) + (m - 1)·(P_mix - P_ref) - [A_out(f_product) - A_out(f_wanted)]
+
+where ``P_mix`` is the wanted drive at the mixer (signal level less the input
+filter's loss) and ``A_out`` the output filter (IF filter of a receiver, RF
+filter of a transmitter) at the point of the product's band nearest the output
+passband centre.  An output filter that is not described is taken as an ideal
+brick wall over the output passband (the IF passband of a receiver; the RF
+tuning range, widened by half the signal bandwidth, of a transmitter): products
+outside it do not reach the output.
+
+*Receiver spurious responses*: an unwanted input at ``f_in`` at level ``P_u``
+(the plan's interferer level) reaches the IF through (m, n) at::
+
+    level = T(m, n) + (m - 1)·(P_u - A_rf(f_in) - P_ref) - A_rf(f_in) + A_rf(f_wanted) + (P_u - P_w)
+          = T(m, n) + (m - 1)·(P_u - P_ref) - m·A_rf(f_in) + A_rf(f_wanted) + (P_u - P_w)
+
+i.e. preselector loss ``A`` at the unwanted input lowers the (m, n) output by
+``m·A``.  A receiver without a described preselector rejects nothing by
+filtering.  The response *rejection* is how much stronger than the wanted an
+unwanted input must be to give the same output.
+
+The margin is ``-level - min_rejection_db``: positive passes.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .filters import Filter, build_filter
+from .levels import FLOOR_DBC, LevelTable, build_table
+from .plan import Plan
+from .products import (
+    LABELS,
+    WANTED,
+    is_inverted,
+    overlaps,
+    product_bands,
+    product_family,
+    product_labels,
+    response_bands,
+    response_family,
+    response_labels,
+)
+from .units import format_frequency
+
+__all__ = ["Evaluation", "Summary", "evaluate", "frame_records", "FRAME_COLUMNS", "MAX_HIT_ROWS"]
+
+#: Failing (channel, product) rows kept in :attr:`Evaluation.hits`; more are counted, not stored.
+MAX_HIT_ROWS = 50_000
+#: Channels processed per block; bounds peak memory whatever the sweep size.
+CHUNK_CHANNELS = 2048
+
+#: Columns of :meth:`Evaluation.to_frame`, :attr:`Evaluation.hits` and
+#: :meth:`Evaluation.channel_frame`, with their meaning.
+FRAME_COLUMNS: dict[str, str] = {
+    "kind": "'product' (an output of the wanted signal) or 'response' (an unwanted receiver input)",
+    "label": "wanted, image, half-IF, IF feedthrough, LO leakage, LO harmonic, RF feedthrough, "
+    "sum product, unwanted sideband, or spur",
+    "rf_harmonic": "m, harmonic of the signal at the mixer's signal input (RF down, IF up)",
+    "lo_harmonic": "n, LO harmonic",
+    "order": "m + n",
+    "sign": "product: +1 sum, -1 difference; response: +1 input above n·LO, -1 |n·LO - IF|/m",
+    "channel_hz": "RF channel centre, Hz",
+    "lo_hz": "LO frequency (on the LO grid), Hz",
+    "f_center_hz": "product: output centre; response: unwanted input centre, Hz",
+    "f_low_hz": "lower band edge, Hz",
+    "f_high_hz": "upper band edge, Hz",
+    "in_band": "product: overlaps the output passband; response: always True",
+    "table_dbc": "mixer table level at the reference drive, dBc",
+    "rf_atten_db": "RF filter loss applied (response: m·A(f_in) - A(f_wanted); up: output filter), dB",
+    "if_atten_db": "IF filter loss applied relative to the wanted output, dB",
+    "level_dbc": "output level relative to the wanted output, dBc",
+    "rejection_db": "response: how much stronger than the wanted an unwanted input must be; "
+    "product: -level_dbc",
+    "margin_db": "-level_dbc - min_rejection_db; >= 0 passes",
+    "passes": "margin_db >= 0",
+    "extra_rf_db": "extra RF-filter rejection at the spur that would make it pass, dB (NaN: none needed or no help)",
+    "extra_if_db": "extra IF/output-filter rejection that would make it pass, dB (NaN: none needed or no help)",
+}
+
+
+@dataclass(frozen=True)
+class Summary:
+    """Headline figures of an evaluation.
+
+    Attributes
+    ----------
+    worst_margin_db : float
+        Smallest margin over every channel and product/response, dB.
+    worst_channel_hz : float
+        Channel where it occurs, Hz.
+    worst_label : str
+        Its label, with ``(m,n)``.
+    spur_free_fraction : float
+        Share of channels whose every margin is >= 0 (0 to 1).
+    n_channels : int
+        Channels swept.
+    n_failing_channels : int
+        Channels with at least one failing product/response.
+    n_failing_rows : int
+        Failing (channel, product/response) pairs counted.
+    inverted : str
+        ``"yes"``, ``"no"`` or ``"mixed"``: spectrum inversion of the wanted conversion.
+    """
+
+    worst_margin_db: float
+    worst_channel_hz: float
+    worst_label: str
+    spur_free_fraction: float
+    n_channels: int
+    n_failing_channels: int
+    n_failing_rows: int
+    inverted: str
+
+    def line(self) -> str:
+        """One-line status for a screen or a log."""
+        state = "PASS" if self.worst_margin_db >= 0 else "FAIL"
+        return (
+            f"{state}: worst margin {self.worst_margin_db:+.1f} dB ({self.worst_label} at "
+            f"{format_frequency(self.worst_channel_hz)}); spur-free {100 * self.spur_free_fraction:.1f}% "
+            f"of {self.n_channels} channel{'s' if self.n_channels != 1 else ''}; inverted: {self.inverted}"
+        )
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Result of :func:`evaluate`.
+
+    Attributes
+    ----------
+    plan : Plan
+        The plan evaluated.
+    channels_hz, lo_hz, f_wanted_out_hz : numpy.ndarray, shape (C,)
+        Channel centres, LO per channel (on its grid) and wanted output centre, Hz.
+    inverted : numpy.ndarray of bool, shape (C,)
+        Spectrum inversion of each channel's wanted conversion.
+    worst_margin_db : numpy.ndarray, shape (C,)
+        Worst margin per channel, dB.
+    worst_row : pandas.DataFrame
+        The worst product/response of each channel (C rows, :data:`FRAME_COLUMNS`).
+    worst_by_product : pandas.DataFrame
+        The worst case across the sweep of each (kind, m, n, sign), sorted by margin.
+    hits : pandas.DataFrame
+        Failing rows, at most :data:`MAX_HIT_ROWS` (see ``summary.n_failing_rows``).
+    summary : Summary
+    warnings : tuple of str
+        Things the designer should read (IF inside the RF band, drive far from
+        the table's reference, LO grid error, table entries from the model...).
+    """
+
+    plan: Plan
+    channels_hz: np.ndarray
+    lo_hz: np.ndarray
+    f_wanted_out_hz: np.ndarray
+    inverted: np.ndarray
+    worst_margin_db: np.ndarray
+    worst_row: pd.DataFrame
+    worst_by_product: pd.DataFrame
+    hits: pd.DataFrame
+    summary: Summary
+    warnings: tuple[str, ...]
+    _context: _Context = field(repr=False)
+
+    def to_frame(self) -> pd.DataFrame:
+        """Worst case of every product/response across the sweep (one row each, wanted excluded)."""
+        return self.worst_by_product.copy()
+
+    def channels_frame(self) -> pd.DataFrame:
+        """One row per channel: its worst product/response (columns: :data:`FRAME_COLUMNS`)."""
+        return self.worst_row.copy()
+
+    def channel_frame(self, index: int) -> pd.DataFrame:
+        """Every product and response of one channel, wanted rows included.
+
+        Parameters
+        ----------
+        index : int
+            Channel index, 0 to ``len(channels_hz) - 1``.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns :data:`FRAME_COLUMNS`, sorted by margin.
+        """
+        if not 0 <= index < self.channels_hz.size:
+            raise IndexError(f"channel index {index} is out of range 0..{self.channels_hz.size - 1}")
+        block = _evaluate_block(self._context, slice(index, index + 1))
+        frame = _frame(block, np.ones_like(block["margin_db"], dtype=bool))
+        return frame.sort_values("margin_db", kind="stable").reset_index(drop=True)
+
+    def nearest_channel(self, f_hz: float) -> int:
+        """Index of the channel closest to ``f_hz`` (Hz)."""
+        return int(np.argmin(np.abs(self.channels_hz - f_hz)))
+
+    def to_json_dict(self) -> dict[str, Any]:
+        """JSON-ready summary, warnings and worst-case table (documented in the README)."""
+        return {
+            "plan": self.plan.name,
+            "summary": {k: _plain(v) for k, v in self.summary.__dict__.items()},
+            "warnings": list(self.warnings),
+            "worst_by_product": frame_records(self.worst_by_product),
+            "hits": frame_records(self.hits),
+        }
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, (np.floating, float)):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+def frame_records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    return [{k: _plain(v) for k, v in row.items()} for row in frame.to_dict(orient="records")]
+
+
+# ------------------------------------------------------------------ engine
+
+
+@dataclass(frozen=True)
+class _Context:
+    """Everything the per-block evaluation needs, built once per plan."""
+
+    plan: Plan
+    table: LevelTable
+    rf_filter: Filter | None
+    if_filter: Filter | None
+    channels_hz: np.ndarray
+    lo_hz: np.ndarray
+    f_in_hz: np.ndarray  # wanted centre at the mixer signal input
+    f_out_hz: np.ndarray  # wanted output centre
+    wanted_sign: np.ndarray
+    out_low_hz: float  # output passband
+    out_high_hz: float
+
+
+def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
+    channels = plan.channels_hz()
+    lo = plan.lo_hz()
+    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
+    rf_filter = None if plan.filters.rf is None else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf.")
+    if_filter = None if plan.filters.if_ is None else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if.")
+    if plan.direction == "down":
+        f_in = channels
+        diff = np.abs(channels - lo)
+        summ = channels + lo
+        in_if = lambda f: (f >= plan.if_.lo_hz) & (f <= plan.if_.hi_hz)  # noqa: E731
+        wanted_sign = np.where(in_if(summ) & ~in_if(diff), 1, -1)
+        f_out = np.where(wanted_sign > 0, summ, diff)
+        out_low, out_high = plan.if_.lo_hz, plan.if_.hi_hz
+    else:
+        f_out = channels
+        wanted_sign = np.where(channels > lo, 1, -1)
+        f_in = np.abs(channels - lo)
+        half = plan.signal.bandwidth_hz / 2
+        out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
+    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high)
+
+
+def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None) -> np.ndarray:
+    """Filter loss at ``f_hz`` less its loss at ``f_ref_hz`` (the wanted), dB."""
+    if filt is None:
+        return np.zeros(np.broadcast_shapes(np.shape(f_hz), np.shape(f_ref_hz)))
+    c = None
+    if filt.tracks_channel:
+        c = centre
+    a = filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz)))
+    a_ref = filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz)))
+    return a - a_ref
+
+
+def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
+    """Products and responses of the channels ``rows``: a dict of (Cb, K) arrays."""
+    plan = ctx.plan
+    req = plan.requirement.min_rejection_db
+    ch = ctx.channels_hz[rows]
+    lo = ctx.lo_hz[rows]
+    f_in = ctx.f_in_hz[rows]
+    f_out = ctx.f_out_hz[rows]
+    sign = ctx.wanted_sign[rows]
+    nb = ch.size
+    down = plan.direction == "down"
+    sig_dbm = plan.signal.level_dbm
+
+    # ---- products of the wanted signal
+    pf = product_family(plan.max_order)
+    p_center, p_low, p_high = product_bands(f_in, lo, plan.signal.bandwidth_hz, pf)
+    in_band = overlaps(p_low, p_high, ctx.out_low_hz, ctx.out_high_hz)
+    out_centre = 0.5 * (ctx.out_low_hz + ctx.out_high_hz)
+    nearest = np.clip(out_centre, p_low, p_high)
+    if down:
+        input_filter, output_filter, out_filter_centre = ctx.rf_filter, ctx.if_filter, None
+        in_filter_centre = ch
+    else:
+        input_filter, output_filter, out_filter_centre = ctx.if_filter, ctx.rf_filter, ch
+        in_filter_centre = None
+    if input_filter is not None:
+        c = None if not input_filter.tracks_channel else in_filter_centre
+        drive = sig_dbm - input_filter.atten_db(f_in, c)
+    else:
+        drive = np.full(nb, sig_dbm)
+    table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], plan.mixer.rf_ref_dbm)
+    table_p = np.broadcast_to(table_p, p_center.shape)
+    p_level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive[:, None])
+    if output_filter is None:
+        out_atten = np.where(in_band, 0.0, np.inf)
+    else:
+        c = None if out_filter_centre is None else out_filter_centre[:, None]
+        out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c)
+    p_level = p_level - out_atten
+    p_labels = product_labels(pf, plan.direction, sign)
+    p_wanted = p_labels == WANTED
+    p_margin = np.where(p_wanted, np.inf, -p_level - req)
+    p_fail = p_margin < 0
+    zero = np.zeros_like(p_level)
+    extra_out = np.where(p_fail & ~in_band, -p_margin, np.nan)
+    block = {
+        "kind": np.zeros(p_level.shape, dtype=np.int8),
+        "label": p_labels,
+        "rf_harmonic": np.broadcast_to(pf.rf_harmonic, p_level.shape),
+        "lo_harmonic": np.broadcast_to(pf.lo_harmonic, p_level.shape),
+        "sign": np.broadcast_to(pf.sign, p_level.shape),
+        "channel_hz": np.broadcast_to(ch[:, None], p_level.shape),
+        "lo_hz": np.broadcast_to(lo[:, None], p_level.shape),
+        "f_center_hz": p_center,
+        "f_low_hz": p_low,
+        "f_high_hz": p_high,
+        "in_band": in_band,
+        "table_dbc": table_p,
+        "rf_atten_db": zero if down else out_atten,
+        "if_atten_db": out_atten if down else zero,
+        "level_dbc": p_level,
+        "rejection_db": -p_level,
+        "margin_db": p_margin,
+        "extra_rf_db": np.full_like(p_level, np.nan) if down else extra_out,
+        "extra_if_db": extra_out if down else np.full_like(p_level, np.nan),
+    }
+    if not down:
+        return block
+
+    # ---- receiver spurious responses
+    rfam = response_family(plan.max_order)
+    r_center, r_low, r_high = response_bands(lo, plan.if_.lo_hz, plan.if_.hi_hz, rfam)
+    wanted_branch = np.where(ch > lo, 1, -1)
+    r_labels = response_labels(rfam, wanted_branch)
+    m = rfam.rf_harmonic[None, :]
+    u_dbm = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else sig_dbm
+    if ctx.rf_filter is not None:
+        # The unwanted input's loss at the band point nearest the channel (conservative).
+        probe = np.clip(ch[:, None], r_low, r_high)
+        c = ch[:, None] if ctx.rf_filter.tracks_channel else None
+        a_in = ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape))
+        a_w = ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None)[:, None]
+    else:
+        a_in = np.zeros(r_center.shape)
+        a_w = np.zeros((nb, 1))
+    table_r = np.broadcast_to(
+        ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], plan.mixer.rf_ref_dbm),
+        r_center.shape,
+    )
+    mixer_drive = u_dbm - a_in
+    r_level = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], mixer_drive)
+    r_level = r_level - a_in + a_w + (u_dbm - sig_dbm)
+    rel_rf = r_level - table_r  # what the drive and filter did, for display
+    r_wanted = r_labels == WANTED
+    r_margin = np.where(r_wanted, np.inf, -r_level - req)
+    r_fail = r_margin < 0
+    rf_helps = np.isfinite(a_in) & (m > 0)
+    extra_rf = np.where(r_fail & rf_helps, -r_margin / m, np.nan)
+    shape = r_center.shape
+    responses = {
+        "kind": np.ones(shape, dtype=np.int8),
+        "label": r_labels,
+        "rf_harmonic": np.broadcast_to(rfam.rf_harmonic, shape),
+        "lo_harmonic": np.broadcast_to(rfam.lo_harmonic, shape),
+        "sign": np.broadcast_to(rfam.branch, shape),
+        "channel_hz": np.broadcast_to(ch[:, None], shape),
+        "lo_hz": np.broadcast_to(lo[:, None], shape),
+        "f_center_hz": r_center,
+        "f_low_hz": r_low,
+        "f_high_hz": r_high,
+        "in_band": np.ones(shape, dtype=bool),
+        "table_dbc": table_r,
+        "rf_atten_db": -rel_rf,
+        "if_atten_db": np.zeros(shape),
+        "level_dbc": r_level,
+        "rejection_db": -r_level + (u_dbm - sig_dbm),
+        "margin_db": r_margin,
+        "extra_rf_db": extra_rf,
+        "extra_if_db": np.full(shape, np.nan),
+    }
+    return {k: np.concatenate([np.asarray(block[k]), np.asarray(responses[k])], axis=1) for k in block}
+
+
+def _frame(block: dict[str, np.ndarray], mask: np.ndarray) -> pd.DataFrame:
+    data = {k: np.asarray(v)[mask] for k, v in block.items()}
+    frame = pd.DataFrame(
+        {
+            "kind": np.where(data["kind"] == 0, "product", "response"),
+            "label": np.asarray(LABELS, dtype=object)[data["label"]],
+            "rf_harmonic": data["rf_harmonic"].astype(np.int64),
+            "lo_harmonic": data["lo_harmonic"].astype(np.int64),
+            "order": (data["rf_harmonic"] + data["lo_harmonic"]).astype(np.int64),
+            "sign": data["sign"].astype(np.int64),
+            **{k: data[k] for k in ("channel_hz", "lo_hz", "f_center_hz", "f_low_hz", "f_high_hz")},
+            "in_band": data["in_band"].astype(bool),
+            **{k: data[k].astype(float) for k in ("table_dbc", "rf_atten_db", "if_atten_db", "level_dbc", "rejection_db", "margin_db")},
+        }
+    )
+    frame["passes"] = frame["margin_db"] >= 0
+    frame["extra_rf_db"] = data["extra_rf_db"].astype(float)
+    frame["extra_if_db"] = data["extra_if_db"].astype(float)
+    return frame[list(FRAME_COLUMNS)]
+
+
+def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: int = CHUNK_CHANNELS) -> Evaluation:
+    """Evaluate every product and response of a plan across its tuning range.
+
+    Parameters
+    ----------
+    plan : Plan
+        The plan.
+    base_dir : path-like, optional
+        Folder for relative file paths in the plan (the plan file's folder).
+    chunk_channels : int
+        Channels per block; bounds peak memory (about 1 kB per channel per
+        order² at the default).
+
+    Returns
+    -------
+    Evaluation
+
+    Raises
+    ------
+    MixchartError
+        If a filter or level table described by the plan is invalid.
+    """
+    base = None if base_dir is None else Path(base_dir)
+    ctx = _build_context(plan, base)
+    n_ch = ctx.channels_hz.size
+    worst_margin = np.empty(n_ch)
+    worst_rows: list[pd.DataFrame] = []
+    by_product: list[pd.DataFrame] = []
+    hits: list[pd.DataFrame] = []
+    n_hit_rows = 0
+    n_kept = 0
+    for start in range(0, n_ch, max(1, int(chunk_channels))):
+        rows = slice(start, min(start + chunk_channels, n_ch))
+        block = _evaluate_block(ctx, rows)
+        margin = block["margin_db"]
+        idx = np.argmin(margin, axis=1)
+        worst_margin[rows] = margin[np.arange(margin.shape[0]), idx]
+        pick = np.zeros(margin.shape, dtype=bool)
+        pick[np.arange(margin.shape[0]), idx] = True
+        worst_rows.append(_frame(block, pick))
+        col = np.argmin(margin, axis=0)
+        pick = np.zeros(margin.shape, dtype=bool)
+        pick[col, np.arange(margin.shape[1])] = True
+        pick &= np.isfinite(margin)  # drops the wanted rows
+        by_product.append(_frame(block, pick))
+        fail = margin < 0
+        count = int(fail.sum())
+        n_hit_rows += count
+        if count and n_kept < MAX_HIT_ROWS:
+            frame = _frame(block, fail).sort_values("margin_db", kind="stable").head(MAX_HIT_ROWS - n_kept)
+            n_kept += len(frame)
+            hits.append(frame)
+    worst_row = pd.concat(worst_rows, ignore_index=True)
+    keys = ["kind", "rf_harmonic", "lo_harmonic", "sign"]
+    wbp = pd.concat(by_product, ignore_index=True).sort_values("margin_db", kind="stable")
+    wbp = wbp.drop_duplicates(keys, keep="first").reset_index(drop=True)
+    hit_frame = (
+        pd.concat(hits, ignore_index=True).sort_values("margin_db", kind="stable").reset_index(drop=True)
+        if hits
+        else wbp.iloc[:0].copy()
+    )
+    inverted = is_inverted(ctx.f_in_hz, ctx.lo_hz, ctx.wanted_sign)
+    i = int(np.argmin(worst_margin))
+    worst = worst_row.iloc[i]
+    summary = Summary(
+        worst_margin_db=float(worst_margin[i]),
+        worst_channel_hz=float(ctx.channels_hz[i]),
+        worst_label=f"{worst['label']} ({worst['rf_harmonic']},{worst['lo_harmonic']})",
+        spur_free_fraction=float(np.mean(worst_margin >= 0)),
+        n_channels=int(n_ch),
+        n_failing_channels=int(np.sum(worst_margin < 0)),
+        n_failing_rows=int(n_hit_rows),
+        inverted="yes" if inverted.all() else "no" if not inverted.any() else "mixed",
+    )
+    return Evaluation(
+        plan=plan,
+        channels_hz=ctx.channels_hz,
+        lo_hz=ctx.lo_hz,
+        f_wanted_out_hz=ctx.f_out_hz,
+        inverted=inverted,
+        worst_margin_db=worst_margin,
+        worst_row=worst_row,
+        worst_by_product=wbp,
+        hits=hit_frame,
+        summary=summary,
+        warnings=tuple(_warnings(ctx)),
+        _context=ctx,
+    )
+
+
+def _warnings(ctx: _Context) -> list[str]:
+    plan = ctx.plan
+    out: list[str] = []
+    rf_low = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
+    rf_high = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
+    if plan.if_.lo_hz <= rf_high and plan.if_.hi_hz >= rf_low:
+        out.append(
+            f"IF passband {format_frequency(plan.if_.lo_hz)}-{format_frequency(plan.if_.hi_hz)} overlaps the RF band "
+            f"{format_frequency(rf_low)}-{format_frequency(rf_high)}: signals there feed straight through"
+        )
+    if plan.direction == "down":
+        err = ctx.f_out_hz - plan.if_.center_hz
+    else:
+        err = ctx.f_in_hz - plan.if_.center_hz
+    half_room = (plan.if_.bandwidth_hz - plan.signal.bandwidth_hz) / 2
+    misfit = np.abs(err) > half_room + 1e-9 * plan.if_.center_hz
+    if misfit.any():
+        k = int(np.argmax(np.abs(err)))
+        out.append(
+            f"{int(misfit.sum())} channel(s) do not fit the IF passband with the signal bandwidth "
+            f"(worst: {format_frequency(ctx.channels_hz[k])}, off by {format_frequency(abs(err[k]))})"
+        )
+    if plan.lo.mode == "tracking" and plan.lo.step_hz is not None:
+        worst_step = float(np.max(np.abs(ctx.lo_hz - plan.nominal_lo_hz(ctx.channels_hz))))
+        if worst_step > 0:
+            out.append(f"LO grid error up to {format_frequency(worst_step)}: the wanted output is offset by as much")
+    drive = plan.signal.level_dbm
+    out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))
+    note = ctx.table.fallback_note(plan.max_order)
+    if note:
+        out.append(note)
+    if int(plan.max_order) > ctx.table.max_harmonic:
+        out.append(f"the level table stops at harmonic {ctx.table.max_harmonic}; higher products use its floor")
+    return out
+
+
+def level_floor_dbc() -> float:
+    """Level given to products the mixer model says vanish, dBc."""
+    return FLOOR_DBC

@@ -1,0 +1,214 @@
+"""Command line: ``mixchart sweep | check | schema | serve | snapshot``.
+
+Exit status: 0 on success; 1 when ``--fail-on-spur`` is given and the plan
+violates its requirement; 2 on bad input (a one-line message on stderr, never a
+traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Sequence
+
+from .errors import MixchartError
+
+EXAMPLES = {
+    "fm_receiver": "fm_receiver.json",
+    "uplink_transmitter": "uplink_transmitter.json",
+}
+DEFAULT_EXAMPLE = "fm_receiver"
+
+
+def example_path(name: str = DEFAULT_EXAMPLE) -> Path:
+    """Path of a built-in example plan.
+
+    Parameters
+    ----------
+    name : str
+        One of :data:`EXAMPLES`.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    if name not in EXAMPLES:
+        raise MixchartError(f"--example: {name!r} is invalid; choose one of {', '.join(EXAMPLES)}")
+    return Path(__file__).resolve().parent / "examples" / EXAMPLES[name]
+
+
+def _load(args: argparse.Namespace):
+    from .plan import load_plan
+
+    path = Path(args.plan) if args.plan else example_path(args.example)
+    return load_plan(path), path.parent
+
+
+def _fmt_db(value: float) -> str:
+    return "   -inf" if value == float("-inf") else "    inf" if value == float("inf") else f"{value:7.1f}"
+
+
+def _text_table(frame, top: int) -> str:
+    from .units import format_frequency
+
+    lines = [
+        f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>12} {'LO':>12} "
+        f"{'spur/input band':>27} {'level dBc':>9} {'margin':>7} {'need RF':>7} {'need IF':>7}"
+    ]
+    for row in frame.head(top).itertuples(index=False):
+        band = f"{format_frequency(row.f_low_hz, 7)}-{format_frequency(row.f_high_hz, 7)}"
+        need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:7.1f}"
+        need_if = "" if row.extra_if_db != row.extra_if_db else f"{row.extra_if_db:7.1f}"
+        lines.append(
+            f"{row.kind:<8} {row.label:<17} {row.rf_harmonic:>2} {row.lo_harmonic:>2} "
+            f"{'+' if row.sign > 0 else '-':>1} {format_frequency(row.channel_hz, 7):>12} "
+            f"{format_frequency(row.lo_hz, 7):>12} {band:>27} {_fmt_db(row.level_dbc):>9} "
+            f"{_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7}"
+        )
+    if len(frame) > top:
+        lines.append(f"... {len(frame) - top} more rows (use --top)")
+    return "\n".join(lines)
+
+
+def _cmd_sweep(args: argparse.Namespace) -> int:
+    from .analysis import evaluate
+    from .units import parse_frequency
+
+    plan, base = _load(args)
+    result = evaluate(plan, base_dir=base)
+    if args.channel is not None:
+        f_hz = parse_frequency(args.channel, "--channel")
+        frame = result.channel_frame(result.nearest_channel(f_hz))
+    elif args.rows == "hits":
+        frame = result.hits
+    else:
+        frame = result.to_frame()
+    out = sys.stdout
+    if args.format == "json":
+        payload = result.to_json_dict()
+        if args.channel is not None or args.rows == "hits":
+            from .analysis import frame_records
+
+            payload["rows"] = frame_records(frame)
+        json.dump(payload, out, indent=2, allow_nan=False)
+        out.write("\n")
+    elif args.format == "csv":
+        frame.to_csv(out, index=False, float_format="%.9g")
+    else:
+        out.write(f"{plan.name}\n{result.summary.line()}\n")
+        for warning in result.warnings:
+            out.write(f"note: {warning}\n")
+        out.write(_text_table(frame, args.top) + "\n")
+        out.write(
+            "Levels are estimates from the mixer model; emission limits are set by local rules and "
+            "licensed practice - check against them.\n"
+        )
+    if args.fail_on_spur and result.summary.worst_margin_db < 0:
+        return 1
+    return 0
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from .analysis import _build_context
+
+    plan, base = _load(args)
+    _build_context(plan, base)  # filters and level tables load too
+    print(f"ok: {plan.name!r}: {plan.rf.n_channels} channel(s), order {plan.max_order}, direction {plan.direction}")
+    return 0
+
+
+def _cmd_schema(args: argparse.Namespace) -> int:
+    from .plan import plan_json_schema
+
+    json.dump(plan_json_schema(), sys.stdout, indent=2)
+    sys.stdout.write("\n")
+    return 0
+
+
+def _cmd_serve(args: argparse.Namespace) -> int:
+    from .serve import serve
+
+    plan_path = Path(args.plan) if args.plan else example_path(args.example)
+    _load(args)  # refuse a bad plan before starting anything
+    return serve(plan_path, port=args.port, open_browser=False)
+
+
+def _cmd_snapshot(args: argparse.Namespace) -> int:
+    from .report import write_report
+
+    plan, base = _load(args)
+    path = write_report(plan, args.output, base_dir=base)
+    print(f"wrote {path}")
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (exposed for documentation and tests)."""
+    parser = argparse.ArgumentParser(
+        prog="mixchart",
+        description="Mixer frequency planning: spurious products and responses, levels and margins.",
+    )
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    def plan_args(p: argparse.ArgumentParser) -> None:
+        p.add_argument("plan", nargs="?", help="plan JSON file (default: a built-in example)")
+        p.add_argument("--example", default=DEFAULT_EXAMPLE, choices=sorted(EXAMPLES), help="built-in example when no plan is given")
+
+    p = sub.add_parser("sweep", help="evaluate a plan across its tuning range and print the results")
+    plan_args(p)
+    p.add_argument("--format", choices=["text", "json", "csv"], default="text")
+    p.add_argument("--rows", choices=["worst", "hits"], default="worst", help="worst case per product (default) or every failing row")
+    p.add_argument("--channel", help="show every product/response of the channel nearest this frequency, e.g. '98.1 MHz'")
+    p.add_argument("--top", type=int, default=25, help="rows in the text table (default 25)")
+    p.add_argument("--fail-on-spur", action="store_true", help="exit 1 when any margin is negative")
+    p.set_defaults(func=_cmd_sweep)
+
+    p = sub.add_parser("check", help="validate a plan file (and the filter and table files it names)")
+    plan_args(p)
+    p.set_defaults(func=_cmd_check)
+
+    p = sub.add_parser("schema", help="print the plan file's JSON Schema")
+    p.set_defaults(func=_cmd_schema)
+
+    p = sub.add_parser("serve", help="open the planning chart in the browser (Voila on 127.0.0.1)")
+    plan_args(p)
+    p.add_argument("--port", type=int, default=8866)
+    p.set_defaults(func=_cmd_serve)
+
+    p = sub.add_parser("snapshot", help="write a standalone HTML report (chart, tables, plan) that opens offline")
+    plan_args(p)
+    p.add_argument("-o", "--output", default="mixchart-report.html", help="output HTML file")
+    p.set_defaults(func=_cmd_snapshot)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line.
+
+    Parameters
+    ----------
+    argv : sequence of str, optional
+        Arguments (default: ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        Exit status.
+    """
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "top", 1) is not None and getattr(args, "top", 1) < 1:
+        parser.error(f"--top: {args.top} is invalid; give a whole number >= 1")
+    try:
+        return int(args.func(args))
+    except MixchartError as exc:
+        print(f"mixchart: error: {exc}", file=sys.stderr)
+        return 2
+    except BrokenPipeError:  # e.g. piped into head
+        return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
