@@ -40,6 +40,9 @@ __all__ = [
     "Lines",
     "clip_lines",
     "tuning_plane_loci",
+    "tuning_plane_loci_up",
+    "Strips",
+    "tuning_plane_strips",
     "output_plane_loci",
     "product_labels",
     "response_labels",
@@ -448,6 +451,61 @@ def tuning_plane_loci(
     return _select(lines, window)
 
 
+def tuning_plane_loci_up(
+    max_order: int,
+    if_low_hz: float,
+    if_high_hz: float,
+    window: tuple[float, float, float, float],
+    *,
+    include_center: bool = True,
+) -> Lines:
+    """Up-conversion: where each product of the IF lands, across the RF (x) versus LO (y) plane.
+
+    An IF input at ``f_t`` gives product (m, n, sign) at ``|m·f_t + sign·n·f_LO|``;
+    it lands on an RF frequency ``x`` along ``x - sign·n·y = m·f_t`` and, for the
+    difference, also ``x - n·y = -m·f_t``.  The strip between the lines for the
+    lower and upper IF edges (``m`` times the IF width) is where that product
+    covers ``x``; a plan's LO line crossing a strip is a spur inside the
+    transmitted channel.
+
+    Parameters
+    ----------
+    max_order : int
+        Highest order ``m + n``.
+    if_low_hz, if_high_hz : float
+        IF passband edges, Hz.
+    window : (rf_min_hz, rf_max_hz, lo_min_hz, lo_max_hz)
+        The plotted rectangle, Hz.
+    include_center : bool
+        Also return the lines for the IF centre (``edge == 0``).
+
+    Returns
+    -------
+    Lines
+        Segments with ``x`` = RF and ``y`` = LO, in Hz.
+    """
+    family = product_family(max_order)
+    edges = [(-1, if_low_hz), (1, if_high_hz)]
+    if include_center:
+        edges.insert(1, (0, 0.5 * (if_low_hz + if_high_hz)))
+    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
+    parts: dict[str, list[np.ndarray]] = {k: [] for k in ("a", "b", "c", "m", "n", "s", "edge")}
+    for edge, f_t in edges:
+        for rows, b, c in (
+            (np.ones_like(m, dtype=bool), -(s * n), m * f_t),
+            (s < 0, -n, -m * f_t),
+        ):
+            parts["a"].append(np.ones(rows.sum()))
+            parts["b"].append(b[rows].astype(float))
+            parts["c"].append(np.asarray(c, dtype=float)[rows])
+            parts["m"].append(m[rows])
+            parts["n"].append(n[rows])
+            parts["s"].append(s[rows])
+            parts["edge"].append(np.full(rows.sum(), edge))
+    lines = {k: np.concatenate(v) for k, v in parts.items()}
+    return _select(lines, window)
+
+
 def output_plane_loci(max_order: int, f_lo_hz: float, window: tuple[float, float, float, float]) -> Lines:
     """Each product's output against the input frequency, for one LO.
 
@@ -552,3 +610,116 @@ def response_labels(family: ResponseFamily, wanted_branch: np.ndarray) -> np.nda
     codes[one_one & ~same] = IMAGE
     codes[((m == 2) & (n == 2))[None, :] & same] = HALF_IF
     return codes
+
+
+# -------------------------------------------------------------------- strips
+
+
+@dataclass(frozen=True)
+class Strips:
+    """Convex polygons (one per product branch) clipped to a window, as plain arrays.
+
+    Attributes
+    ----------
+    xs, ys : list of numpy.ndarray
+        Polygon vertices, in the plane's units.
+    rf_harmonic, lo_harmonic, sign : numpy.ndarray of int
+        The product each strip belongs to.
+    """
+
+    xs: list[np.ndarray]
+    ys: list[np.ndarray]
+    rf_harmonic: np.ndarray
+    lo_harmonic: np.ndarray
+    sign: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.xs)
+
+
+def _strip_coefficients(direction: str, family: ProductFamily, t_low: float, t_high: float):
+    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
+    diff = s < 0
+    if direction == "down":
+        # m·x + s·n·y in [t_low, t_high]; the difference also in [-t_high, -t_low]
+        a = np.concatenate([m, m[diff]]).astype(float)
+        b = np.concatenate([s * n, -n[diff]]).astype(float)
+        lo = np.concatenate([np.full(m.size, t_low), np.full(diff.sum(), -t_high)])
+        hi = np.concatenate([np.full(m.size, t_high), np.full(diff.sum(), -t_low)])
+    else:
+        # x - s·n·y in [m·t_low, m·t_high]; the difference also x - n·y in [-m·t_high, -m·t_low]
+        a = np.ones(m.size + diff.sum())
+        b = np.concatenate([-(s * n), -n[diff]]).astype(float)
+        lo = np.concatenate([m * t_low, -m[diff] * t_high]).astype(float)
+        hi = np.concatenate([m * t_high, -m[diff] * t_low]).astype(float)
+    meta = (np.concatenate([m, m[diff]]), np.concatenate([n, n[diff]]), np.concatenate([s, s[diff]]))
+    return a, b, lo, hi, meta
+
+
+def tuning_plane_strips(
+    direction: str, max_order: int, if_low_hz: float, if_high_hz: float, window: tuple[float, float, float, float]
+) -> Strips:
+    """The regions of the RF (x) versus LO (y) plane where each product hits the IF band.
+
+    Down-conversion: the input at ``x`` mixed with the LO at ``y`` through
+    (m, n, sign) lands inside the IF passband.  Up-conversion: the IF passband
+    mixed with the LO at ``y`` lands on ``x``.  Each region is the strip
+    between the two lines of :func:`tuning_plane_loci` (or
+    :func:`tuning_plane_loci_up`) for the IF edges, clipped to the window.
+
+    Parameters
+    ----------
+    direction : {"down", "up"}
+        Conversion direction.
+    max_order : int
+        Highest order ``m + n``.
+    if_low_hz, if_high_hz : float
+        IF passband edges, Hz.
+    window : (rf_min_hz, rf_max_hz, lo_min_hz, lo_max_hz)
+        The plotted rectangle, Hz.
+
+    Returns
+    -------
+    Strips
+        Only strips that cover part of the window.
+    """
+    family = product_family(max_order)
+    a, b, c_lo, c_hi, (m, n, s) = _strip_coefficients(direction, family, if_low_hz, if_high_hz)
+    x_min, x_max, y_min, y_max = (float(v) for v in window)
+    scale = max(abs(x_max), abs(y_max), 1.0)
+    tol = 1e-9 * scale * (np.abs(a) + np.abs(b))
+    # candidates: the 4 corners and each boundary line's crossings with the 4 edges
+    cx = np.array([x_min, x_max, x_max, x_min])
+    cy = np.array([y_min, y_min, y_max, y_max])
+    pts_x = [np.broadcast_to(cx[:, None], (4, a.size))]
+    pts_y = [np.broadcast_to(cy[:, None], (4, a.size))]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for c in (c_lo, c_hi):
+            pts_x.append(np.stack([np.full_like(a, x_min), np.full_like(a, x_max), (c - b * y_min) / a, (c - b * y_max) / a]))
+            pts_y.append(np.stack([(c - a * x_min) / b, (c - a * x_max) / b, np.full_like(a, y_min), np.full_like(a, y_max)]))
+    px = np.concatenate(pts_x)
+    py = np.concatenate(pts_y)
+    with np.errstate(invalid="ignore"):
+        value = a * px + b * py
+        ok = (
+            np.isfinite(px)
+            & np.isfinite(py)
+            & (px >= x_min - 1e-12 * scale)
+            & (px <= x_max + 1e-12 * scale)
+            & (py >= y_min - 1e-12 * scale)
+            & (py <= y_max + 1e-12 * scale)
+            & (value >= c_lo - tol)
+            & (value <= c_hi + tol)
+        )
+    count = ok.sum(axis=0)
+    keep = np.flatnonzero(count >= 3)
+    xs: list[np.ndarray] = []
+    ys: list[np.ndarray] = []
+    for k in keep:
+        x = np.clip(px[ok[:, k], k], x_min, x_max)
+        y = np.clip(py[ok[:, k], k], y_min, y_max)
+        angle = np.arctan2((y - y.mean()) / (y_max - y_min), (x - x.mean()) / (x_max - x_min))
+        order = np.argsort(angle, kind="stable")
+        xs.append(x[order])
+        ys.append(y[order])
+    return Strips(xs=xs, ys=ys, rf_harmonic=m[keep], lo_harmonic=n[keep], sign=s[keep])
