@@ -1,0 +1,612 @@
+"""The planning chart: a tuning plane and an output plane, in Bokeh.
+
+Layout follows Bokeh's own app pattern: data, plot, (widgets and callbacks in
+:mod:`mixchart.app`), layout.  :func:`chart_data` is a pure function from an
+:class:`~mixchart.analysis.Evaluation` to plain column dicts, one per named
+``ColumnDataSource``; :func:`build_chart` builds the figures once around those
+sources; :func:`update_chart` only assigns ``source.data`` (and axis labels and
+ranges when the plotted window really changes).
+
+Tuning plane
+    RF frequency across, LO frequency up.  Every (m, n) product that lands in
+    the IF passband is a strip; the plan (the LO for each channel) is drawn on
+    top, so a crossing of the plan with a strip is a spur hit.  The current
+    channel is marked, with its spurious responses (receiver) or output
+    products (transmitter) along its LO line.
+Output plane
+    Input frequency across, output frequency up, for the current channel's LO;
+    every product is a line ``|m·x ± n·f_LO|``.  The output passband is a
+    horizontal band, the input band a vertical band; lines crossing their
+    intersection are in-band products.  It can be normalised (divided by LO).
+
+Colour follows level against the requirement (colour-blind-safe Okabe-Ito
+colours): vermillion violates, orange is within :data:`CLOSE_DB` of it, grey-blue
+is clear; the wanted conversion is blue.  Filter responses shade the axes with a
+tint that is strongest in the passband and fades through the skirts to nothing
+where the filter alone meets the requirement.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .analysis import Evaluation
+from .levels import FLOOR_DBC
+from .products import output_plane_loci, tuning_plane_strips
+from .units import engineering_scale, format_frequency
+
+__all__ = [
+    "CLOSE_DB",
+    "CATEGORIES",
+    "ViewOptions",
+    "ChartData",
+    "ChartHandle",
+    "chart_data",
+    "build_chart",
+    "update_chart",
+    "legend_html",
+]
+
+#: A spur within this many dB of the requirement is drawn as "close".
+CLOSE_DB = 10.0
+#: Category -> (legend text, colour).  Okabe-Ito palette.
+CATEGORIES: dict[str, tuple[str, str]] = {
+    "violates": ("violates the requirement", "#D55E00"),
+    "close": (f"within {CLOSE_DB:g} dB of it", "#E69F00"),
+    "clear": (f"clear by {CLOSE_DB:g} dB or more", "#7F9CB5"),
+    "wanted": ("wanted conversion", "#0072B2"),
+}
+_WIDTH = {"violates": 3.0, "close": 2.2, "clear": 1.0, "wanted": 3.0}
+_ALPHA = {"violates": 0.95, "close": 0.9, "clear": 0.45, "wanted": 1.0}
+_STRIP_ALPHA = {"violates": 0.55, "close": 0.45, "clear": 0.18, "wanted": 0.35}
+_TINT_IN = "#56B4E9"  # input-side filter / band
+_TINT_OUT = "#009E73"  # output-side filter / band
+_TINT_MAX_ALPHA = 0.30
+_MAX_PLAN_POINTS = 2000
+
+
+@dataclass(frozen=True)
+class ViewOptions:
+    """What the chart shows, beyond the plan itself.
+
+    Attributes
+    ----------
+    channel_hz : float or None
+        Channel whose LO the output plane uses, Hz (nearest channel is taken);
+        None picks the worst channel.
+    normalised : bool
+        Output plane divided by the LO (the classic normalised chart).
+    max_order_shown : int or None
+        Hide products above this order (None: the plan's maximum order).
+    show_clear : bool
+        Draw products that are clear of the requirement.
+    """
+
+    channel_hz: float | None = None
+    normalised: bool = False
+    max_order_shown: int | None = None
+    show_clear: bool = True
+
+
+@dataclass(frozen=True)
+class ChartData:
+    """Column data for every named source, plus axis labels and windows."""
+
+    sources: dict[str, dict[str, Any]]
+    meta: dict[str, Any] = field(default_factory=dict)
+
+
+def _category(margin_db: np.ndarray) -> np.ndarray:
+    margin_db = np.asarray(margin_db, dtype=float)
+    return np.where(margin_db < 0, "violates", np.where(margin_db < CLOSE_DB, "close", "clear"))
+
+
+def _style(categories: np.ndarray) -> dict[str, list]:
+    return {
+        "category": list(categories),
+        "color": [CATEGORIES[c][1] for c in categories],
+        "width": [_WIDTH[c] for c in categories],
+        "alpha": [_ALPHA[c] for c in categories],
+    }
+
+
+def _db_text(value: float) -> str:
+    return "vanishes" if value <= FLOOR_DBC + 1 else f"{value:.1f}"
+
+
+def _pad(lo: float, hi: float, frac: float, floor: float) -> tuple[float, float]:
+    span = max(hi - lo, floor)
+    return lo - frac * span, hi + frac * span
+
+
+def _windows(ev: Evaluation, lo_now: float) -> tuple[tuple[float, ...], tuple[float, ...]]:
+    """Tuning-plane and output-plane windows, Hz."""
+    plan = ev.plan
+    if_c, if_bw = plan.if_.center_hz, plan.if_.bandwidth_hz
+    rf_lo = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
+    rf_hi = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
+    lo_min, lo_max = float(ev.lo_hz.min()), float(ev.lo_hz.max())
+    # Tuning plane: the RF band and its image side, the LO range.
+    x0 = max(0.0, min(rf_lo, lo_min - if_c - if_bw))
+    x1 = max(rf_hi, lo_max + if_c + if_bw)
+    x0, x1 = _pad(x0, x1, 0.05, 4 * if_bw)
+    y0, y1 = _pad(lo_min, lo_max, 0.15, max(0.2 * (x1 - x0), 4 * if_bw))
+    tuning = (max(x0, 0.0), x1, max(y0, 0.0), y1)
+    if plan.direction == "down":
+        ox0, ox1 = tuning[0], tuning[1]
+        oy0, oy1 = 0.0, max(2.5 * (if_c + if_bw / 2), if_c + 8 * if_bw)
+    else:
+        ox0, ox1 = 0.0, max(2.5 * (if_c + if_bw / 2), if_c + 8 * if_bw)
+        oy0 = max(0.0, min(rf_lo, lo_now - if_c - if_bw))
+        oy1 = max(rf_hi, lo_now + if_c + if_bw)
+        oy0, oy1 = _pad(oy0, oy1, 0.05, 4 * if_bw)
+        oy0 = max(oy0, 0.0)
+    return tuning, (ox0, ox1, oy0, oy1)
+
+
+def _skirt(filt, f_lo: float, f_hi: float, centre: float | None, band: tuple[float, float], req_db: float, scale: float):
+    """Rows of a filter tint between ``f_lo`` and ``f_hi`` (Hz), fine near the passband."""
+    b_lo, b_hi = band
+    width = max(b_hi - b_lo, 1e-9 * max(abs(f_hi), 1.0))
+    grid = [np.linspace(f_lo, f_hi, 81)]
+    if math.isfinite(b_lo) and math.isfinite(b_hi):
+        offsets = width * np.geomspace(0.005, 60.0, 90)
+        grid += [b_lo - offsets, b_hi + offsets, np.linspace(b_lo, b_hi, 9)]
+    edges = np.unique(np.clip(np.concatenate(grid), f_lo, f_hi))
+    mids = 0.5 * (edges[:-1] + edges[1:])
+    if filt is None:
+        atten = np.where((mids >= b_lo) & (mids <= b_hi), 0.0, np.inf)
+    else:
+        c = None if not filt.tracks_channel else np.full(mids.shape, centre)
+        atten = filt.atten_db(mids, c)
+    alpha = _TINT_MAX_ALPHA * np.clip(1.0 - atten / max(req_db, 1.0), 0.0, 1.0)
+    keep = alpha > 0.004
+    return {
+        "x0": edges[:-1][keep] / scale,
+        "x1": edges[1:][keep] / scale,
+        "alpha": alpha[keep],
+        "atten_db": np.round(atten[keep], 1),
+    }
+
+
+def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
+    """Everything the chart draws, as plain column dicts (no Bokeh objects).
+
+    Parameters
+    ----------
+    ev : Evaluation
+        The evaluated plan.
+    opts : ViewOptions
+        Current channel, normalisation, shown orders.
+
+    Returns
+    -------
+    ChartData
+        ``sources`` maps each source name of :func:`build_chart` to its columns;
+        ``meta`` holds the channel index, the windows, the display scale and axis
+        labels.
+    """
+    plan = ev.plan
+    down = plan.direction == "down"
+    req = plan.requirement.min_rejection_db
+    index = int(np.argmin(ev.worst_margin_db)) if opts.channel_hz is None else ev.nearest_channel(opts.channel_hz)
+    ch = float(ev.channels_hz[index])
+    lo_now = float(ev.lo_hz[index])
+    max_shown = plan.max_order if opts.max_order_shown is None else max(2, min(opts.max_order_shown, plan.max_order))
+    tuning_win, out_win = _windows(ev, lo_now)
+    scale, unit = engineering_scale(max(abs(tuning_win[1]), abs(tuning_win[3])))
+    frame = ev.channel_frame(index)
+    table = ev.level_table
+    ctx_rf, ctx_if = ev.filters
+
+    sources: dict[str, dict[str, Any]] = {}
+
+    # --------------------------------------------------------- tuning plane
+    strips = tuning_plane_strips(plan.direction, max_shown, plan.if_.lo_hz, plan.if_.hi_hz, tuning_win)
+    intrinsic = table.level_dbc_at(strips.rf_harmonic, strips.lo_harmonic, plan.signal.level_dbm)
+    cats = _category(-intrinsic - req).astype(object)
+    # the strip holding the plan line is the wanted conversion
+    mid = len(ev.channels_hz) // 2
+    xm, ym = ev.channels_hz[mid], ev.lo_hz[mid]
+    labels = []
+    for k in range(len(strips)):
+        m, n = int(strips.rf_harmonic[k]), int(strips.lo_harmonic[k])
+        text = f"({m},{n}) {'sum' if strips.sign[k] > 0 else 'difference'}"
+        if m == 1 and n == 1:
+            xs, ys = strips.xs[k], strips.ys[k]
+            inside = xs.min() <= xm <= xs.max() and _point_in_convex(xs, ys, xm, ym)
+            if inside:
+                cats[k] = "wanted"
+                text = "wanted (1,1)"
+            elif down:
+                text = "image (1,1)" if strips.sign[k] < 0 else "sum (1,1)"
+        labels.append(text)
+    vanish = intrinsic <= FLOOR_DBC + 1
+    show = ~vanish & ((cats != "clear") | opts.show_clear)
+    idx = np.flatnonzero(show)
+    style = _style(cats[idx])
+    sources["tuning_strips"] = {
+        "xs": [strips.xs[k] / scale for k in idx],
+        "ys": [strips.ys[k] / scale for k in idx],
+        "m": strips.rf_harmonic[idx].tolist(),
+        "n": strips.lo_harmonic[idx].tolist(),
+        "label": [labels[k] for k in idx],
+        "level": [_db_text(v) for v in intrinsic[idx]],
+        **style,
+        "fill_alpha": [_STRIP_ALPHA[c] for c in cats[idx]],
+    }
+    step = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
+    sources["tuning_plan"] = {
+        "x": ev.channels_hz[::step] / scale,
+        "y": ev.lo_hz[::step] / scale,
+    }
+    worst_cat = _category(ev.worst_margin_db).astype(object)
+    bad = np.flatnonzero(worst_cat != "clear")[:: max(1, int(np.sum(worst_cat != "clear")) // _MAX_PLAN_POINTS)]
+    wr = ev.worst_row.iloc[bad]
+    sources["tuning_marks"] = {
+        "x": ev.channels_hz[bad] / scale,
+        "y": ev.lo_hz[bad] / scale,
+        "label": [f"{r.label} ({r.rf_harmonic},{r.lo_harmonic})" for r in wr.itertuples()],
+        "channel": [format_frequency(f) for f in ev.channels_hz[bad]],
+        "margin": [f"{v:+.1f}" for v in ev.worst_margin_db[bad]],
+        **_style(worst_cat[bad]),
+    }
+    sources["tuning_now"] = {
+        "x": [ch / scale],
+        "y": [lo_now / scale],
+        "channel": [format_frequency(ch)],
+        "lo": [format_frequency(lo_now)],
+    }
+    # points along the current LO: responses (down) or output products (up)
+    rows = frame[(frame["order"] <= max_shown) & (frame["label"] != "wanted") & (frame["level_dbc"] > FLOOR_DBC + 1)]
+    rows = rows[rows["kind"] == ("response" if down else "product")]
+    f_pts = rows["f_center_hz"].to_numpy()
+    inside = (f_pts >= tuning_win[0]) & (f_pts <= tuning_win[1])
+    rows = rows[inside]
+    cats_pts = _category(rows["margin_db"].to_numpy()).astype(object)
+    keep = (cats_pts != "clear") | opts.show_clear
+    rows, cats_pts = rows[keep], cats_pts[keep]
+    sources["tuning_points"] = {
+        "x": rows["f_center_hz"].to_numpy() / scale,
+        "y": np.full(len(rows), lo_now / scale),
+        **_point_columns(rows),
+        **_style(cats_pts),
+    }
+    band = (plan.rf.start_hz - plan.signal.bandwidth_hz / 2, plan.rf.stop_hz + plan.signal.bandwidth_hz / 2)
+    sources["rf_band"] = {"x0": [band[0] / scale], "x1": [band[1] / scale]}
+    rf_pass = band if ctx_rf is None else ctx_rf.passband_hz(ch if ctx_rf.tracks_channel else None)
+    if down:
+        sources["tuning_skirt"] = (
+            _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
+            if ctx_rf is not None
+            else {"x0": [], "x1": [], "alpha": [], "atten_db": []}
+        )
+    else:
+        sources["tuning_skirt"] = _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
+
+    # --------------------------------------------------------- output plane
+    o_scale, o_unit = (lo_now, "× LO") if opts.normalised else engineering_scale(max(out_win[1], out_win[3]))
+    o_win = tuple(v / o_scale for v in out_win)
+    lines = output_plane_loci(max_shown, lo_now / o_scale, o_win)
+    line_level = table.level_dbc_at(lines.rf_harmonic, lines.lo_harmonic, plan.signal.level_dbm)
+    line_cat = _category(-line_level - req).astype(object)
+    wanted_sign = 1 if (ev.f_wanted_out_hz[index] > lo_now and down) or (not down and ch > lo_now) else -1
+    is_wanted = (lines.rf_harmonic == 1) & (lines.lo_harmonic == 1) & (lines.sign == wanted_sign)
+    line_cat[is_wanted] = "wanted"
+    keep = (line_level > FLOOR_DBC + 1) & ((line_cat != "clear") | opts.show_clear)
+    k = np.flatnonzero(keep)
+    sources["out_lines"] = {
+        "x0": lines.x0[k],
+        "y0": lines.y0[k],
+        "x1": lines.x1[k],
+        "y1": lines.y1[k],
+        "m": lines.rf_harmonic[k].tolist(),
+        "n": lines.lo_harmonic[k].tolist(),
+        "label": [
+            f"({m},{n}) {'wanted' if w else 'sum' if s > 0 else 'difference'}"
+            for m, n, s, w in zip(lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k])
+        ],
+        "level": [_db_text(v) for v in line_level[k]],
+        **_style(line_cat[k]),
+    }
+    # actual products of the current channel and responses, after the filters
+    prod = frame[(frame["order"] <= max_shown) & (frame["level_dbc"] > FLOOR_DBC + 1)]
+    f_in_wanted = ch if down else abs(ch - lo_now)
+    px = np.where(prod["kind"] == "product", f_in_wanted, prod["f_center_hz"])
+    py = np.where(prod["kind"] == "product", prod["f_center_hz"], plan.if_.center_hz)
+    if not down:
+        prod = prod[prod["kind"] == "product"]
+        px, py = np.full(len(prod), f_in_wanted), prod["f_center_hz"].to_numpy()
+    inside = (px >= out_win[0]) & (px <= out_win[1]) & (py >= out_win[2]) & (py <= out_win[3])
+    prod, px, py = prod[inside], px[inside], py[inside]
+    p_cat = np.where(prod["label"] == "wanted", "wanted", _category(prod["margin_db"].to_numpy())).astype(object)
+    keep = (p_cat != "clear") | opts.show_clear
+    prod, px, py, p_cat = prod[keep], px[keep], py[keep], p_cat[keep]
+    sources["out_points"] = {
+        "x": px / o_scale,
+        "y": py / o_scale,
+        **_point_columns(prod),
+        **_style(p_cat),
+        "size": [14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat],
+    }
+    if_band = (plan.if_.lo_hz, plan.if_.hi_hz)
+    if down:
+        in_band, out_band = band, if_band
+        in_filter, out_filter = ctx_rf, ctx_if
+        in_pass, out_pass = rf_pass, (if_band if ctx_if is None else ctx_if.passband_hz())
+    else:
+        in_band, out_band = if_band, band
+        in_filter, out_filter = ctx_if, ctx_rf
+        in_pass, out_pass = (if_band if ctx_if is None else ctx_if.passband_hz()), rf_pass
+    sources["out_input_band"] = {"x0": [in_band[0] / o_scale], "x1": [in_band[1] / o_scale]}
+    sources["out_output_band"] = {"y0": [out_band[0] / o_scale], "y1": [out_band[1] / o_scale]}
+    in_skirt = (
+        _skirt(in_filter, out_win[0], out_win[1], ch, in_pass, req, o_scale)
+        if in_filter is not None
+        else {"x0": [], "x1": [], "alpha": [], "atten_db": []}
+    )
+    out_skirt = _skirt(out_filter, out_win[2], out_win[3], ch, out_pass, req, o_scale)
+    sources["out_input_skirt"] = in_skirt
+    sources["out_output_skirt"] = {"y0": out_skirt["x0"], "y1": out_skirt["x1"], "alpha": out_skirt["alpha"], "atten_db": out_skirt["atten_db"]}
+
+    in_name, out_name = ("RF input", "IF output") if down else ("IF input", "RF output")
+    meta = {
+        "channel_index": index,
+        "channel_hz": ch,
+        "lo_hz": lo_now,
+        "scale": scale,
+        "unit": unit,
+        "out_scale": o_scale,
+        "out_unit": o_unit,
+        "tuning_window": tuple(v / scale for v in tuning_win),
+        "output_window": o_win,
+        "tuning_x_label": f"RF {'input' if down else 'output'} ({unit})",
+        "tuning_y_label": f"LO ({unit})",
+        "output_x_label": f"{in_name} ({o_unit})" if not opts.normalised else f"{in_name} / LO",
+        "output_y_label": f"{out_name} ({o_unit})" if not opts.normalised else f"{out_name} / LO",
+        "output_title": (
+            f"Output plane at LO {format_frequency(lo_now)} (channel {format_frequency(ch)})"
+            + (", normalised to LO" if opts.normalised else "")
+        ),
+        "tuning_title": f"Tuning plane: where products land in the IF ({'down' if down else 'up'}-conversion)",
+        "direction": plan.direction,
+    }
+    return ChartData(sources=sources, meta=meta)
+
+
+def _point_in_convex(xs: np.ndarray, ys: np.ndarray, x: float, y: float) -> bool:
+    cross = (np.roll(xs, -1) - xs) * (y - ys) - (np.roll(ys, -1) - ys) * (x - xs)
+    return bool(np.all(cross >= -1e-9 * np.abs(cross).max()) or np.all(cross <= 1e-9 * np.abs(cross).max()))
+
+
+def _point_columns(rows) -> dict[str, list]:
+    return {
+        "m": rows["rf_harmonic"].tolist(),
+        "n": rows["lo_harmonic"].tolist(),
+        "label": rows["label"].tolist(),
+        "kind": rows["kind"].tolist(),
+        "freq": [format_frequency(f, 7) for f in rows["f_center_hz"]],
+        "level": [_db_text(v) for v in rows["level_dbc"]],
+        "margin": ["—" if not math.isfinite(v) else f"{v:+.1f}" for v in rows["margin_db"]],
+    }
+
+
+# ------------------------------------------------------------------ Bokeh
+
+
+@dataclass
+class ChartHandle:
+    """The built chart: its layout, figures and named sources.
+
+    Attributes
+    ----------
+    layout : bokeh.models.LayoutDOM
+        What to show.
+    tuning, output : bokeh.plotting.figure
+        The two planes (named ``"tuning_plane"`` and ``"output_plane"``).
+    sources : dict of str to ColumnDataSource
+        Every source by name; updates assign ``.data``.
+    band_edit : BoxEditTool
+        The tool that drags the bands.
+    windows : dict
+        The windows last applied to the ranges.
+    """
+
+    layout: Any
+    tuning: Any
+    output: Any
+    sources: dict[str, Any]
+    band_edit: Any
+    band_edit_tuning: Any
+    windows: dict[str, tuple[float, ...]] = field(default_factory=dict)
+
+
+def legend_html() -> str:
+    """The chart legend as HTML (colour swatches and the meaning of the tints)."""
+    swatch = (
+        '<span style="display:inline-block;width:26px;height:6px;margin:0 6px 2px 14px;'
+        'background:{c};vertical-align:middle"></span>{t}'
+    )
+    parts = [swatch.format(c=colour, t=text) for text, colour in CATEGORIES.values()]
+    tint = (
+        '<span style="display:inline-block;width:26px;height:12px;margin:0 6px 0 14px;vertical-align:middle;'
+        'background:linear-gradient(90deg,rgba(86,180,233,0),rgba(86,180,233,.45),rgba(86,180,233,0))"></span>'
+        "filter passband, fading through its skirts (input side blue, output side green)"
+    )
+    return "<b>Level against the requirement:</b>" + "".join(parts) + "<br><b>Shading:</b>" + tint
+
+
+_HOVER_POINTS = [
+    ("product", "(@m,@n) @label"),
+    ("kind", "@kind"),
+    ("frequency", "@freq"),
+    ("level", "@level dBc"),
+    ("margin", "@margin dB"),
+]
+
+
+def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> ChartHandle:
+    """Build the two figures once, around named sources filled from ``data``.
+
+    Parameters
+    ----------
+    data : ChartData
+        From :func:`chart_data`.
+    width, height : int
+        Size of each plane, screen pixels.
+
+    Returns
+    -------
+    ChartHandle
+    """
+    from bokeh.layouts import column, row
+    from bokeh.models import BoxEditTool, ColumnDataSource, Div, HoverTool, Range1d
+    from bokeh.plotting import figure
+
+    src = {name: ColumnDataSource(data=dict(cols), name=name) for name, cols in data.sources.items()}
+    meta = data.meta
+    tw, ow = meta["tuning_window"], meta["output_window"]
+
+    def make(name: str, title: str, win: tuple[float, ...]) -> Any:
+        fig = figure(
+            name=name,
+            title=title,
+            width=width,
+            height=height,
+            x_range=Range1d(win[0], win[1]),
+            y_range=Range1d(win[2], win[3]),
+            tools="pan,wheel_zoom,box_zoom,reset,save",
+            active_scroll="wheel_zoom",
+            toolbar_location="above",
+            background_fill_color="#FFFFFF",
+            border_fill_color="#FFFFFF",
+            output_backend="canvas",
+        )
+        fig.title.text_font_size = "14pt"
+        for axis in (fig.xaxis, fig.yaxis):
+            axis.axis_label_text_font_size = "13pt"
+            axis.major_label_text_font_size = "11pt"
+            axis.axis_label_text_font_style = "normal"
+        fig.grid.grid_line_color = "#E4E4E4"
+        return fig
+
+    tuning = make("tuning_plane", meta["tuning_title"], tw)
+    tuning.xaxis.axis_label = meta["tuning_x_label"]
+    tuning.yaxis.axis_label = meta["tuning_y_label"]
+    # shading first, then strips, the plan, marks and points on top
+    tuning.vstrip(x0="x0", x1="x1", source=src["tuning_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0, name="tuning_skirt")
+    band_t = tuning.vstrip(
+        x0="x0", x1="x1", source=src["rf_band"], fill_color=_TINT_IN, fill_alpha=0.10,
+        line_color=_TINT_IN, line_width=2, line_dash="dashed", name="rf_band_tuning",
+    )
+    strips = tuning.patches(
+        xs="xs", ys="ys", source=src["tuning_strips"], fill_color="color", fill_alpha="fill_alpha",
+        line_color="color", line_alpha="alpha", line_width=1, name="strips",
+    )
+    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2.5, name="plan_line")
+    marks = tuning.scatter(
+        x="x", y="y", source=src["tuning_marks"], marker="square", size=7, fill_color="color",
+        line_color="color", name="channel_marks",
+    )
+    pts_t = tuning.scatter(
+        x="x", y="y", source=src["tuning_points"], size=9, fill_color="color", line_color="#1A1A1A",
+        line_width=0.5, marker="diamond", name="tuning_points",
+    )
+    tuning.scatter(
+        x="x", y="y", source=src["tuning_now"], size=16, marker="circle_cross", fill_alpha=0,
+        line_color="#1A1A1A", line_width=2.5, name="current_channel",
+    )
+    tuning.add_tools(
+        HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("level in IF", "@level dBc")]),
+        HoverTool(renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin dB")]),
+        HoverTool(renderers=[pts_t], tooltips=_HOVER_POINTS),
+    )
+    edit_t = BoxEditTool(renderers=[band_t], dimensions="width", num_objects=1, description="Drag the RF band")
+    tuning.add_tools(edit_t)
+
+    output = make("output_plane", meta["output_title"], ow)
+    output.xaxis.axis_label = meta["output_x_label"]
+    output.yaxis.axis_label = meta["output_y_label"]
+    output.vstrip(x0="x0", x1="x1", source=src["out_input_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0, name="input_skirt")
+    output.hstrip(y0="y0", y1="y1", source=src["out_output_skirt"], fill_color=_TINT_OUT, fill_alpha="alpha", line_alpha=0, name="output_skirt")
+    out_band = output.hstrip(
+        y0="y0", y1="y1", source=src["out_output_band"], fill_color=_TINT_OUT, fill_alpha=0.12,
+        line_color=_TINT_OUT, line_width=2, line_dash="dashed", name="output_band",
+    )
+    in_band = output.vstrip(
+        x0="x0", x1="x1", source=src["out_input_band"], fill_color=_TINT_IN, fill_alpha=0.10,
+        line_color=_TINT_IN, line_width=2, line_dash="dashed", name="input_band",
+    )
+    segs = output.segment(
+        x0="x0", y0="y0", x1="x1", y1="y1", source=src["out_lines"], line_color="color",
+        line_width="width", line_alpha="alpha", name="product_lines",
+    )
+    pts = output.scatter(
+        x="x", y="y", source=src["out_points"], size="size", fill_color="color", line_color="#1A1A1A",
+        line_width=0.6, name="product_points",
+    )
+    output.add_tools(
+        HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
+        HoverTool(renderers=[segs], tooltips=[("product", "@label"), ("level in band", "@level dBc")], line_policy="nearest"),
+    )
+    edit = BoxEditTool(
+        renderers=[out_band, in_band], dimensions="both", num_objects=1, description="Drag the passband or the input band"
+    )
+    output.add_tools(edit)
+    output.toolbar.active_drag = edit
+    tuning.toolbar.active_drag = edit_t
+
+    legend = Div(text=legend_html(), name="chart_legend", styles={"font-size": "13px"})
+    layout = column(legend, row(tuning, output), name="mixchart_chart")
+    handle = ChartHandle(layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t)
+    handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
+    return handle
+
+
+def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = False) -> None:
+    """Push new data into the built chart.
+
+    Only ``source.data`` is assigned; titles and axis labels are assigned
+    when their text changes, and ranges when the plotted window changes (so a
+    user's zoom survives a channel change) or when ``reset_ranges``.
+
+    Parameters
+    ----------
+    handle : ChartHandle
+        From :func:`build_chart`.
+    data : ChartData
+        From :func:`chart_data`.
+    reset_ranges : bool
+        Re-apply the windows even if unchanged.
+    """
+    for name, cols in data.sources.items():
+        handle.sources[name].data = dict(cols)
+    meta = data.meta
+    _set(handle.tuning.title, "text", meta["tuning_title"])
+    _set(handle.output.title, "text", meta["output_title"])
+    _set(handle.tuning.xaxis[0], "axis_label", meta["tuning_x_label"])
+    _set(handle.tuning.yaxis[0], "axis_label", meta["tuning_y_label"])
+    _set(handle.output.xaxis[0], "axis_label", meta["output_x_label"])
+    _set(handle.output.yaxis[0], "axis_label", meta["output_y_label"])
+    for key, fig in (("tuning", handle.tuning), ("output", handle.output)):
+        win = tuple(meta[f"{key}_window"])
+        if reset_ranges or not _close(win, handle.windows.get(key)):
+            fig.x_range.start, fig.x_range.end = win[0], win[1]
+            fig.y_range.start, fig.y_range.end = win[2], win[3]
+            handle.windows[key] = win
+
+
+def _set(model: Any, attr: str, value: Any) -> None:
+    if getattr(model, attr) != value:
+        setattr(model, attr, value)
+
+
+def _close(a: tuple[float, ...] | None, b: tuple[float, ...] | None) -> bool:
+    if a is None or b is None:
+        return False
+    span = max(abs(a[1] - a[0]), abs(a[3] - a[2]), 1e-30)
+    return all(abs(x - y) <= 1e-6 * span for x, y in zip(a, b))
