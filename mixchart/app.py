@@ -1,0 +1,1080 @@
+"""The planning app: ipywidgets controls around the chart, in Jupyter or Voila.
+
+Three parts, kept apart so the logic is testable without a browser:
+
+:class:`PlanState`
+    The state: the plan being edited, an optional reference plan, the view
+    options and the current evaluation.  It validates every change (a bad
+    change leaves the last valid plan in place and returns the message), and
+    tells its listeners what changed.  No widgets.
+:func:`build_controls`
+    A pure function from a plan to the widgets (a :class:`Controls` bundle).
+:class:`PlannerApp`
+    The wiring: widget events go to the state; state changes go to the chart
+    sources, the table, the status line and the widgets.  Dragging the bands in
+    the chart edits the plan on mouse release.
+
+``planner(plan)`` in a notebook cell shows the app.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import math
+import os
+from contextlib import contextmanager
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any, Callable, Iterator
+
+import numpy as np
+
+from .analysis import Evaluation, evaluate
+from .chart import ChartHandle, ViewOptions, build_chart, chart_data, update_chart
+from .errors import MixchartError
+from .plan import MAX_ORDER, Plan, dumps_plan, load_plan, loads_plan, save_plan
+from .units import format_frequency, parse_frequency
+
+__all__ = ["PlanState", "Controls", "build_controls", "PlannerApp", "planner", "example_plan"]
+
+Listener = Callable[["PlanState", str], None]
+
+
+def example_plan(name: str = "fm_receiver") -> tuple[Plan, Path]:
+    """A built-in example plan and its folder."""
+    from .cli import example_path
+
+    path = example_path(name)
+    return load_plan(path), path.parent
+
+
+# ====================================================================== state
+
+
+class PlanState:
+    """The app's state, without any widget.
+
+    Parameters
+    ----------
+    plan : Plan
+        The plan to start from.
+    base_dir : path-like, optional
+        Folder for relative file paths inside the plan.
+
+    Attributes
+    ----------
+    plan : Plan
+        The current (always valid) plan.
+    evaluation : Evaluation
+        Its evaluation.
+    reference : tuple of (Plan, Evaluation) or None
+        The plan kept for comparison.
+    view : ViewOptions
+        Channel, normalisation and shown orders.
+    """
+
+    def __init__(self, plan: Plan, base_dir: str | os.PathLike[str] | None = None) -> None:
+        self.base_dir = None if base_dir is None else Path(base_dir)
+        self.plan = plan
+        self.evaluation = evaluate(plan, base_dir=self.base_dir)
+        self.reference: tuple[Plan, Evaluation] | None = None
+        self.view = ViewOptions()
+        self._listeners: list[Listener] = []
+
+    def observe(self, listener: Listener) -> None:
+        """Call ``listener(state, what)`` after each change; ``what`` is
+        ``"plan"``, ``"view"`` or ``"reference"``."""
+        self._listeners.append(listener)
+
+    def _notify(self, what: str) -> None:
+        for listener in list(self._listeners):
+            listener(self, what)
+
+    # --------------------------------------------------------------- plan
+    def try_update(self, changes: dict[str, Any]) -> str | None:
+        """Apply changes at dotted JSON paths if the result is a valid plan.
+
+        Parameters
+        ----------
+        changes : dict
+            e.g. ``{"if.center_hz": "21.4 MHz"}``.
+
+        Returns
+        -------
+        str or None
+            The one-line error if the change was refused (the plan is then
+            unchanged), else None.  A change that leaves the plan as it was
+            does nothing (so a repeated event is harmless).
+        """
+        try:
+            new = self.plan.with_changes(changes)
+            if new == self.plan:
+                return None
+            result = evaluate(new, base_dir=self.base_dir)
+        except MixchartError as exc:
+            return str(exc)
+        self.plan, self.evaluation = new, result
+        self._notify("plan")
+        return None
+
+    def replace_plan(self, plan: Plan, base_dir: str | os.PathLike[str] | None = None) -> str | None:
+        """Replace the whole plan (after a load).  Returns an error text or None."""
+        folder = self.base_dir if base_dir is None else Path(base_dir)
+        try:
+            result = evaluate(plan, base_dir=folder)
+        except MixchartError as exc:
+            return str(exc)
+        self.plan, self.evaluation, self.base_dir = plan, result, folder
+        self.view = replace(self.view, channel_hz=None)
+        self._notify("plan")
+        return None
+
+    def load_text(self, text: str | bytes) -> str | None:
+        """Load a plan from JSON text (e.g. an uploaded file).  Returns an error text or None."""
+        try:
+            plan = loads_plan(text)
+        except MixchartError as exc:
+            return str(exc)
+        return self.replace_plan(plan)
+
+    def load_path(self, path: str | os.PathLike[str]) -> str | None:
+        """Load a plan file.  Returns an error text or None."""
+        try:
+            plan = load_plan(path)
+        except MixchartError as exc:
+            return str(exc)
+        return self.replace_plan(plan, Path(path).resolve().parent)
+
+    def save(self, path: str | os.PathLike[str]) -> Path:
+        """Save the current plan atomically; re-loading it re-evaluates to what is shown."""
+        return save_plan(self.plan, path)
+
+    # --------------------------------------------------------------- view
+    def set_view(self, **changes: Any) -> None:
+        """Change view options (see :class:`~mixchart.chart.ViewOptions`)."""
+        new = replace(self.view, **changes)
+        if new != self.view:
+            self.view = new
+            self._notify("view")
+
+    @property
+    def channel_index(self) -> int:
+        """Index of the channel the output plane shows."""
+        if self.view.channel_hz is None:
+            return int(np.argmin(self.evaluation.worst_margin_db))
+        return self.evaluation.nearest_channel(self.view.channel_hz)
+
+    # ---------------------------------------------------------- reference
+    def keep_reference(self) -> None:
+        """Keep the current plan as the reference for comparison."""
+        self.reference = (self.plan, self.evaluation)
+        self._notify("reference")
+
+    def clear_reference(self) -> None:
+        """Forget the reference plan."""
+        if self.reference is not None:
+            self.reference = None
+            self._notify("reference")
+
+    # ---------------------------------------------------------- drag edits
+    def apply_band_drag(self, band: str, low: float, high: float) -> str | None:
+        """Apply a dragged band from the chart.
+
+        Parameters
+        ----------
+        band : {"rf", "if"}
+            Which band was dragged.
+        low, high : float
+            New edges, Hz (any order).  The RF band keeps its raster; a band is
+            moved to the dragged centre and, if its width changed by more than
+            1 %, resized.
+
+        Returns
+        -------
+        str or None
+            Error text if the result is not a valid plan.
+        """
+        low, high = sorted((float(low), float(high)))
+        if not (math.isfinite(low) and math.isfinite(high)) or high <= 0:
+            return f"{band} band: dragged to {low!r}..{high!r} Hz, which is not a usable band"
+        centre, width = 0.5 * (low + high), high - low
+        plan = self.plan
+        if band == "if":
+            old_w = plan.if_.bandwidth_hz
+            new_w = width if abs(width - old_w) > 0.01 * old_w else old_w
+            return self.try_update({"if.center_hz": _snap(centre), "if.bandwidth_hz": _snap(new_w)})
+        half_sig = plan.signal.bandwidth_hz / 2
+        old_lo, old_hi = plan.rf.start_hz - half_sig, plan.rf.stop_hz + half_sig
+        old_w = old_hi - old_lo
+        shift = centre - 0.5 * (old_lo + old_hi)
+        start, stop = plan.rf.start_hz + shift, plan.rf.stop_hz + shift
+        if abs(width - old_w) > 0.01 * max(old_w, 1.0):
+            start, stop = low + half_sig, max(high - half_sig, low + half_sig)
+        step = plan.rf.step_hz
+        if step:
+            start = round(start / step) * step
+            stop = start + math.floor((stop - start) / step + 1e-9) * step
+        return self.try_update({"rf.start_hz": _snap(start), "rf.stop_hz": _snap(stop)})
+
+
+def _snap(f_hz: float) -> float:
+    """Round a dragged frequency to 6 significant digits (no float drift in the plan)."""
+    if f_hz <= 0 or not math.isfinite(f_hz):
+        return f_hz
+    digits = 6 - int(math.floor(math.log10(f_hz))) - 1
+    return float(round(f_hz, digits))
+
+
+# ==================================================================== widgets
+
+
+@dataclass
+class FilterControls:
+    """Widgets of one filter."""
+
+    kind: Any
+    order: Any
+    centre: Any
+    bandwidth: Any
+    q: Any
+    ripple: Any
+    stop: Any
+    spec_json: Any
+    error: Any
+    box: Any
+
+
+@dataclass
+class Controls:
+    """Every widget of the app, by role."""
+
+    direction: Any
+    lo_mode: Any
+    side: Any
+    lo_fixed: Any
+    lo_step: Any
+    rf_start: Any
+    rf_stop: Any
+    rf_step: Any
+    if_center: Any
+    if_bandwidth: Any
+    sig_bandwidth: Any
+    sig_level: Any
+    max_order: Any
+    requirement: Any
+    topology: Any
+    balance: Any
+    table_path: Any
+    rf_ref: Any
+    lo_drive: Any
+    rf_filter: FilterControls
+    if_filter: FilterControls
+    channel: Any
+    channel_text: Any
+    normalised: Any
+    orders_shown: Any
+    show_clear: Any
+    keep_ref: Any
+    clear_ref: Any
+    save_path: Any
+    save: Any
+    upload: Any
+    load_path: Any
+    load: Any
+    snapshot: Any
+    file_msg: Any
+    errors: dict[str, Any]
+    panel: Any
+
+
+_FILTER_KINDS = [
+    ("none", "none"),
+    ("single tuned circuit", "tuned"),
+    ("Butterworth band-pass", "butterworth"),
+    ("Chebyshev I band-pass", "chebyshev1"),
+    ("elliptic band-pass", "elliptic"),
+    ("ideal band-pass", "brickwall"),
+    ("other (edit the JSON)", "custom"),
+]
+
+_TEXT_FIELDS = {
+    "rf_start": ("rf.start_hz", "RF start"),
+    "rf_stop": ("rf.stop_hz", "RF stop"),
+    "rf_step": ("rf.step_hz", "channel step"),
+    "if_center": ("if.center_hz", "IF centre"),
+    "if_bandwidth": ("if.bandwidth_hz", "IF bandwidth"),
+    "sig_bandwidth": ("signal.bandwidth_hz", "signal bandwidth"),
+    "lo_fixed": ("lo.fixed_hz", "fixed LO"),
+    "lo_step": ("lo.step_hz", "LO step"),
+}
+
+
+def _freq_text(f_hz: float | None) -> str:
+    return "" if f_hz is None else format_frequency(f_hz, 9)
+
+
+def _filter_controls(name: str, label: str, tracking_default: bool) -> FilterControls:
+    import ipywidgets as w
+
+    lay = w.Layout(width="300px")
+    style = {"description_width": "92px"}
+    kind = w.Dropdown(options=_FILTER_KINDS, value="none", description=label, layout=lay, style=style)
+    order = w.BoundedIntText(value=3, min=1, max=20, description="order/stages", layout=lay, style=style)
+    centre = w.Text(
+        value="track" if tracking_default else "", description="centre", layout=lay, style=style,
+        continuous_update=False, placeholder="'track' or e.g. 10.7 MHz",
+    )
+    bandwidth = w.Text(value="", description="bandwidth", layout=lay, style=style, continuous_update=False)
+    q = w.BoundedFloatText(value=50.0, min=0.1, max=1e6, description="loaded Q", layout=lay, style=style)
+    ripple = w.BoundedFloatText(value=0.5, min=0.001, max=10, description="ripple dB", layout=lay, style=style)
+    stop = w.BoundedFloatText(value=60.0, min=1, max=300, description="stop dB", layout=lay, style=style)
+    spec_json = w.Textarea(
+        value="", description="JSON", layout=w.Layout(width="300px", height="70px"), style=style,
+        continuous_update=False,
+    )
+    error = w.HTML(value="", layout=w.Layout(width="300px"))
+    box = w.VBox([kind, order, centre, bandwidth, q, ripple, stop, spec_json, error])
+    box.add_class(f"mixchart-filter-{name}")
+    return FilterControls(kind, order, centre, bandwidth, q, ripple, stop, spec_json, error, box)
+
+
+def build_controls(plan: Plan, n_channels: int) -> Controls:
+    """Build every widget for a plan (values from the plan; no callbacks).
+
+    Parameters
+    ----------
+    plan : Plan
+        Gives the initial values.
+    n_channels : int
+        Number of channels (for the channel slider).
+
+    Returns
+    -------
+    Controls
+    """
+    import ipywidgets as w
+
+    lay = w.Layout(width="300px")
+    style = {"description_width": "112px"}
+
+    def text(key: str, value: float | None) -> Any:
+        field, label = _TEXT_FIELDS[key]
+        widget = w.Text(value=_freq_text(value), description=label, layout=lay, style=style, continuous_update=False)
+        widget.add_class(f"mixchart-{key.replace('_', '-')}")
+        return widget
+
+    errors = {key: w.HTML(value="", layout=w.Layout(width="300px")) for key in _TEXT_FIELDS}
+    c: dict[str, Any] = {}
+    c["direction"] = w.ToggleButtons(
+        options=[("down (receiver)", "down"), ("up (transmitter)", "up")], value=plan.direction,
+        description="conversion", style={"description_width": "112px", "button_width": "92px"},
+    )
+    c["lo_mode"] = w.ToggleButtons(
+        options=[("tracking", "tracking"), ("fixed", "fixed")], value=plan.lo.mode, description="LO",
+        style={"description_width": "112px", "button_width": "92px"},
+    )
+    c["side"] = w.ToggleButtons(
+        options=[("high side", "high"), ("low side", "low")], value=plan.lo.side, description="injection",
+        style={"description_width": "112px", "button_width": "92px"},
+    )
+    for key, value in (
+        ("rf_start", plan.rf.start_hz),
+        ("rf_stop", plan.rf.stop_hz),
+        ("rf_step", plan.rf.step_hz),
+        ("if_center", plan.if_.center_hz),
+        ("if_bandwidth", plan.if_.bandwidth_hz),
+        ("sig_bandwidth", plan.signal.bandwidth_hz),
+        ("lo_fixed", plan.lo.fixed_hz),
+        ("lo_step", plan.lo.step_hz),
+    ):
+        c[key] = text(key, value)
+    c["sig_level"] = w.FloatSlider(
+        value=plan.signal.level_dbm, min=-120, max=20, step=1, description="signal (dBm)", layout=lay, style=style,
+        continuous_update=False, readout_format=".0f",
+    )
+    c["max_order"] = w.IntSlider(
+        value=plan.max_order, min=2, max=MAX_ORDER, description="max order", layout=lay, style=style,
+        continuous_update=False,
+    )
+    c["requirement"] = w.FloatSlider(
+        value=plan.requirement.min_rejection_db, min=0, max=150, step=1, description="required (dB)", layout=lay,
+        style=style, continuous_update=False, readout_format=".0f",
+    )
+    c["topology"] = w.Dropdown(
+        options=[("double-balanced", "double_balanced"), ("single-balanced", "single_balanced"), ("single-ended", "single_ended")],
+        value=plan.mixer.topology, description="topology", layout=lay, style=style,
+    )
+    c["balance"] = w.FloatSlider(
+        value=plan.mixer.balance_db, min=0, max=80, step=1, description="balance (dB)", layout=lay, style=style,
+        continuous_update=False, readout_format=".0f",
+    )
+    c["table_path"] = w.Text(
+        value=plan.mixer.table, description="level table", layout=lay, style=style, continuous_update=False,
+        placeholder="builtin or a .csv path",
+    )
+    c["rf_ref"] = w.FloatText(value=plan.mixer.rf_ref_dbm, description="table RF ref (dBm)", layout=lay, style=style)
+    c["lo_drive"] = w.FloatText(value=plan.mixer.lo_drive_dbm, description="LO drive (dBm)", layout=lay, style=style)
+    errors["mixer"] = w.HTML(value="", layout=w.Layout(width="300px"))
+    errors["plan"] = w.HTML(value="", layout=w.Layout(width="300px"))
+    rf_label = "preselector" if plan.direction == "down" else "output filter"
+    rf_filter = _filter_controls("rf", rf_label, tracking_default=True)
+    if_filter = _filter_controls("if", "IF filter", tracking_default=False)
+    c["channel"] = w.IntSlider(
+        value=0, min=0, max=max(n_channels - 1, 0), description="channel", layout=lay, style=style,
+        readout=False, continuous_update=True,
+    )
+    c["channel"].add_class("mixchart-channel")
+    c["channel_text"] = w.HTML(value="")
+    c["normalised"] = w.Checkbox(value=False, description="normalise to LO", indent=False)
+    c["orders_shown"] = w.IntSlider(
+        value=plan.max_order, min=2, max=plan.max_order, description="orders shown", layout=lay, style=style,
+    )
+    c["show_clear"] = w.Checkbox(value=True, description="show clear products", indent=False)
+    c["keep_ref"] = w.Button(description="Keep as reference", icon="thumb-tack", layout=w.Layout(width="146px"))
+    c["clear_ref"] = w.Button(description="Clear reference", layout=w.Layout(width="146px"))
+    c["save_path"] = w.Text(value="plan.json", description="file", layout=lay, style=style)
+    c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
+    c["upload"] = w.FileUpload(accept=".json", multiple=False, description="Open plan…", layout=w.Layout(width="146px"))
+    c["load_path"] = w.Text(value="", description="load file", layout=lay, style=style, placeholder="path on the server")
+    c["load"] = w.Button(description="Load", layout=w.Layout(width="146px"))
+    c["snapshot"] = w.Button(description="HTML snapshot", layout=w.Layout(width="146px"))
+    c["file_msg"] = w.HTML(value="", layout=w.Layout(width="300px"))
+    for key in ("save", "load", "snapshot", "keep_ref", "clear_ref"):
+        c[key].add_class(f"mixchart-{key.replace('_', '-')}")
+
+    def rows(*keys: str) -> list[Any]:
+        out = []
+        for key in keys:
+            out.append(c[key])
+            if key in errors:
+                out.append(errors[key])
+        return out
+
+    plan_tab = w.VBox(
+        rows("direction", "rf_start", "rf_stop", "rf_step", "if_center", "if_bandwidth", "lo_mode", "side",
+             "lo_fixed", "lo_step", "sig_bandwidth", "sig_level", "max_order", "requirement")
+        + [errors["plan"]]
+    )
+    filter_tab = w.VBox([rf_filter.box, if_filter.box])
+    mixer_tab = w.VBox([c["topology"], c["balance"], c["table_path"], c["rf_ref"], c["lo_drive"], errors["mixer"]])
+    view_tab = w.VBox([c["channel"], c["channel_text"], c["orders_shown"], c["normalised"], c["show_clear"]])
+    file_tab = w.VBox(
+        [
+            w.HBox([c["keep_ref"], c["clear_ref"]]),
+            c["save_path"],
+            w.HBox([c["save"], c["snapshot"]]),
+            w.HBox([c["upload"]]),
+            c["load_path"],
+            c["load"],
+            c["file_msg"],
+        ]
+    )
+    tabs = w.Tab(children=[plan_tab, filter_tab, mixer_tab, view_tab, file_tab])
+    for i, title in enumerate(["Plan", "Filters", "Mixer", "View", "File"]):
+        tabs.set_title(i, title)
+    tabs.layout.width = "340px"
+    return Controls(rf_filter=rf_filter, if_filter=if_filter, errors=errors, panel=tabs, **c)
+
+
+# ===================================================================== wiring
+
+
+def _error_html(text: str) -> str:
+    return f'<span class="mixchart-error" style="color:#B33000;font-size:12px">{html.escape(text)}</span>' if text else ""
+
+
+def _filter_spec_from_controls(fc: FilterControls, tracking_allowed: bool) -> dict[str, Any] | None | str:
+    """Build a filter spec dict from its widgets; returns "custom" to mean: use the JSON box."""
+    kind = fc.kind.value
+    if kind == "none":
+        return None
+    if kind == "custom":
+        return "custom"
+    centre = fc.centre.value.strip()
+    track = centre.lower() in ("track", "tracking", "") and tracking_allowed
+    spec: dict[str, Any] = {"kind": kind}
+    if not track:
+        spec["f_center_hz"] = centre
+    else:
+        spec["tracks_channel"] = True
+    if kind == "tuned":
+        spec.update(q_loaded=float(fc.q.value), stages=int(fc.order.value))
+        return spec
+    spec.update(response="bandpass", bandwidth_hz=fc.bandwidth.value.strip())
+    if kind != "brickwall":
+        spec["order"] = int(fc.order.value)
+    if kind in ("chebyshev1", "elliptic"):
+        spec["ripple_db"] = float(fc.ripple.value)
+    if kind == "elliptic":
+        spec["stop_atten_db"] = float(fc.stop.value)
+    return spec
+
+
+def _table_html(ev: Evaluation, rows: int = 12) -> str:
+    from .chart import CATEGORIES, CLOSE_DB
+
+    frame = ev.to_frame().head(rows)
+    head = (
+        "<tr><th>response / product</th><th>(m,n)</th><th>at channel</th><th>frequency</th>"
+        "<th>level dBc</th><th>margin dB</th><th>more RF rej.</th><th>more IF rej.</th></tr>"
+    )
+    body = []
+    for r in frame.itertuples(index=False):
+        colour = CATEGORIES["violates" if r.margin_db < 0 else "close" if r.margin_db < CLOSE_DB else "clear"][1]
+        extra_rf = "" if not math.isfinite(r.extra_rf_db) else f"{r.extra_rf_db:.1f}"
+        extra_if = "" if not math.isfinite(r.extra_if_db) else f"{r.extra_if_db:.1f}"
+        body.append(
+            f"<tr><td>{html.escape(r.kind)}: {html.escape(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic})</td>"
+            f"<td>{html.escape(format_frequency(r.channel_hz, 7))}</td>"
+            f"<td>{html.escape(format_frequency(r.f_center_hz, 7))}</td><td>{r.level_dbc:.1f}</td>"
+            f'<td style="color:{colour};font-weight:bold">{r.margin_db:+.1f}</td><td>{extra_rf}</td><td>{extra_if}</td></tr>'
+        )
+    return (
+        '<table class="mixchart-table" style="border-collapse:collapse;font-size:13px">'
+        f"<caption style='text-align:left;font-weight:bold'>Worst case of each product across the tuning range</caption>"
+        f"{head}{''.join(body)}</table>"
+    )
+
+
+def _summary_html(label: str, ev: Evaluation) -> str:
+    s = ev.summary
+    colour = "#B33000" if s.worst_margin_db < 0 else "#006B4F"
+    plan = ev.plan
+    side = plan.lo.side + "-side" if plan.lo.mode == "tracking" else f"fixed LO {format_frequency(plan.lo.fixed_hz or 0)}"
+    return (
+        f"<div class='mixchart-summary'><b>{html.escape(label)}</b> — {html.escape(plan.name)}: "
+        f"{html.escape(plan.direction)}-conversion, {html.escape(side)}, IF {html.escape(format_frequency(plan.if_.center_hz))}<br>"
+        f"<span style='color:{colour};font-weight:bold'>{html.escape(s.line())}</span></div>"
+    )
+
+
+def _download_html(plan: Plan, filename: str) -> str:
+    payload = base64.b64encode(dumps_plan(plan).encode("utf-8")).decode("ascii")
+    name = html.escape(Path(filename).name or "plan.json", quote=True)
+    return (
+        f'<a class="mixchart-download" download="{name}" href="data:application/json;base64,{payload}">'
+        f"Download {name}</a>"
+    )
+
+
+class PlannerApp:
+    """Widgets and chart wired to a :class:`PlanState`.
+
+    Parameters
+    ----------
+    state : PlanState
+        The state to show and edit.
+    chart_width : int
+        Width of each chart plane, screen pixels.
+
+    Attributes
+    ----------
+    widget : ipywidgets.VBox
+        What to display.
+    chart : ChartHandle
+        The chart of the current plan.
+    """
+
+    def __init__(self, state: PlanState, *, chart_width: int = 600) -> None:
+        import ipywidgets as w
+
+        self.state = state
+        self._syncing = False
+        self.chart: ChartHandle = build_chart(chart_data(state.evaluation, state.view), width=chart_width, height=470)
+        self.controls = build_controls(state.plan, state.evaluation.channels_hz.size)
+        self.bokeh = BatchedBokehModel(self.chart.layout)
+        self.status = w.HTML(value="")
+        self.status.add_class("mixchart-status")
+        self.table = w.HTML(value="")
+        self.table.add_class("mixchart-worst-table")
+        self.compare = w.HTML(value="")
+        self.compare.add_class("mixchart-compare")
+        self.reference_chart: ChartHandle | None = None
+        self.reference_box = w.VBox([])
+        title = w.HTML(
+            "<div style='font-size:20px;font-weight:bold'>mixchart frequency planner</div>"
+            "<div style='font-size:12px;color:#555'>Levels are model estimates. Emission limits are set by local "
+            "rules and licensed practice; check the plan against them.</div>"
+        )
+        self.widget = w.VBox(
+            [title, self.status, w.HBox([self.controls.panel, self.bokeh]), self.compare, self.table, self.reference_box]
+        )
+        self.widget.add_class("mixchart-app")
+        self._wire()
+        state.observe(self._on_state)
+        self._refresh_all()
+
+    # ---------------------------------------------------------------- wiring
+    def _wire(self) -> None:
+        c = self.controls
+        for key, (path, _label) in _TEXT_FIELDS.items():
+            c.__dict__[key].observe(self._text_handler(key, path), names="value")
+        simple = {
+            "direction": "direction",
+            "lo_mode": "lo.mode",
+            "side": "lo.side",
+            "max_order": "max_order",
+            "topology": "mixer.topology",
+            "table_path": "mixer.table",
+        }
+        for key, path in simple.items():
+            c.__dict__[key].observe(self._value_handler(path, "plan" if key != "topology" else "mixer"), names="value")
+        for key, path, digits in (
+            ("sig_level", "signal.level_dbm", 1),
+            ("requirement", "requirement.min_rejection_db", 1),
+            ("balance", "mixer.balance_db", 1),
+            ("rf_ref", "mixer.rf_ref_dbm", 2),
+            ("lo_drive", "mixer.lo_drive_dbm", 2),
+        ):
+            c.__dict__[key].observe(self._float_handler(path, digits), names="value")
+        for name, fc in (("rf", c.rf_filter), ("if", c.if_filter)):
+            for widget in (fc.kind, fc.order, fc.centre, fc.bandwidth, fc.q, fc.ripple, fc.stop):
+                widget.observe(self._filter_handler(name, fc), names="value")
+            fc.spec_json.observe(self._filter_json_handler(name, fc), names="value")
+        c.channel.observe(self._on_channel, names="value")
+        c.normalised.observe(lambda ch: self._view(normalised=bool(ch["new"])), names="value")
+        c.show_clear.observe(lambda ch: self._view(show_clear=bool(ch["new"])), names="value")
+        c.orders_shown.observe(lambda ch: self._view(max_order_shown=int(ch["new"])), names="value")
+        c.keep_ref.on_click(lambda _b: self.state.keep_reference())
+        c.clear_ref.on_click(lambda _b: self.state.clear_reference())
+        c.save.on_click(lambda _b: self.save(c.save_path.value))
+        c.load.on_click(lambda _b: self._file_result(self.state.load_path(c.load_path.value.strip()), "loaded"))
+        c.snapshot.on_click(lambda _b: self.snapshot())
+        c.upload.observe(self._on_upload, names="value")
+        for name in ("out_output_band", "out_input_band", "rf_band"):
+            self.chart.sources[name].on_change("data", self._drag_handler(name))
+        from bokeh.events import Tap
+
+        self.chart.tuning.on_event(Tap, self._on_tap)
+
+    def _guarded(self, fn: Callable[[], None]) -> None:
+        if self._syncing:
+            return
+        fn()
+
+    def _text_handler(self, key: str, path: str) -> Callable[[dict], None]:
+        def handler(change: dict) -> None:
+            if self._syncing:
+                return
+            text = str(change["new"]).strip()
+            if text == "" and key in ("rf_step", "lo_step", "lo_fixed"):
+                value: Any = None
+            else:
+                try:
+                    value = parse_frequency(text, _TEXT_FIELDS[key][1])
+                except MixchartError as exc:
+                    self.controls.errors[key].value = _error_html(str(exc))
+                    return
+            error = self.state.try_update({path: value})
+            self.controls.errors[key].value = _error_html(error or "")
+            if error is None:
+                self.controls.errors["plan"].value = ""
+
+        return handler
+
+    def _value_handler(self, path: str, error_key: str) -> Callable[[dict], None]:
+        def handler(change: dict) -> None:
+            if self._syncing:
+                return
+            error = self.state.try_update({path: change["new"]})
+            self.controls.errors[error_key].value = _error_html(error or "")
+
+        return handler
+
+    def _float_handler(self, path: str, digits: int) -> Callable[[dict], None]:
+        def handler(change: dict) -> None:
+            if self._syncing:
+                return
+            value = round(float(change["new"]), digits)  # sliders drift: 1.9999999999999998
+            key = "mixer" if path.startswith("mixer") else "plan"
+            error = self.state.try_update({path: value})
+            self.controls.errors[key].value = _error_html(error or "")
+
+        return handler
+
+    def _filter_handler(self, name: str, fc: FilterControls) -> Callable[[dict], None]:
+        def handler(change: dict) -> None:
+            if self._syncing:
+                return
+            spec = _filter_spec_from_controls(fc, tracking_allowed=(name == "rf"))
+            if spec == "custom":
+                return
+            self._apply_filter(name, fc, spec)
+
+        return handler
+
+    def _filter_json_handler(self, name: str, fc: FilterControls) -> Callable[[dict], None]:
+        def handler(change: dict) -> None:
+            if self._syncing:
+                return
+            import json
+
+            text = str(change["new"]).strip()
+            if not text or text == "null":
+                self._apply_filter(name, fc, None)
+                return
+            try:
+                spec = json.loads(text)
+            except json.JSONDecodeError as exc:
+                fc.error.value = _error_html(f"filters.{name}: malformed JSON ({exc.msg} at column {exc.colno})")
+                return
+            self._apply_filter(name, fc, spec)
+
+        return handler
+
+    def _apply_filter(self, name: str, fc: FilterControls, spec: dict[str, Any] | None) -> None:
+        error = self.state.try_update({f"filters.{name}": spec})
+        fc.error.value = _error_html(error or "")
+
+    def _on_channel(self, change: dict) -> None:
+        if self._syncing:
+            return
+        index = int(change["new"])
+        channels = self.state.evaluation.channels_hz
+        index = min(max(index, 0), channels.size - 1)
+        self.state.set_view(channel_hz=float(channels[index]))
+
+    def _view(self, **changes: Any) -> None:
+        if not self._syncing:
+            self.state.set_view(**changes)
+
+    def _on_tap(self, event: Any) -> None:
+        if event.x is None:
+            return
+        f_hz = float(event.x) * self._scale("tuning")
+        index = self.state.evaluation.nearest_channel(f_hz)
+        self.state.set_view(channel_hz=float(self.state.evaluation.channels_hz[index]))
+
+    def _scale(self, plane: str) -> float:
+        return self._last_meta["scale"] if plane == "tuning" else self._last_meta["out_scale"]
+
+    def _drag_handler(self, name: str) -> Callable[[str, Any, Any], None]:
+        def handler(_attr: str, _old: Any, new: dict[str, Any]) -> None:
+            if self._syncing:
+                return  # our own push into the source
+            keys = ("y0", "y1") if name == "out_output_band" else ("x0", "x1")
+            try:
+                low, high = float(new[keys[0]][-1]), float(new[keys[1]][-1])
+            except (KeyError, IndexError, TypeError, ValueError):
+                return
+            plane = "tuning" if name == "rf_band" else "output"
+            scale = self._scale(plane)
+            down = self.state.plan.direction == "down"
+            if name == "rf_band":
+                band = "rf"
+            elif name == "out_output_band":
+                band = "if" if down else "rf"
+            else:
+                band = "rf" if down else "if"
+            error = self.state.apply_band_drag(band, low * scale, high * scale)
+            self.controls.errors["plan"].value = _error_html(error or "")
+            if error is not None:
+                self._refresh_chart()  # put the band back where the plan has it
+
+        return handler
+
+    def _on_upload(self, change: dict) -> None:
+        value = change["new"]
+        if not value:
+            return
+        item = value[0] if isinstance(value, (list, tuple)) else next(iter(value.values()))
+        content = item["content"]
+        data = bytes(content) if not isinstance(content, bytes) else content
+        self._file_result(self.state.load_text(data), f"opened {item.get('name', 'plan')}")
+
+    def _file_result(self, error: str | None, done: str) -> None:
+        self.controls.file_msg.value = _error_html(error) if error else html.escape(done)
+
+    # ------------------------------------------------------------ actions
+    def save(self, path: str) -> Path | None:
+        """Save the plan atomically and offer it as a download."""
+        try:
+            written = self.state.save(path)
+        except (MixchartError, OSError) as exc:
+            self.controls.file_msg.value = _error_html(f"save: {exc}")
+            return None
+        self.controls.file_msg.value = (
+            f"saved {html.escape(str(written))} &nbsp; " + _download_html(self.state.plan, written.name)
+        )
+        return written
+
+    def snapshot(self, path: str | None = None) -> Path | None:
+        """Write a standalone HTML snapshot next to the plan file."""
+        from .report import write_report
+
+        target = Path(path) if path else Path(self.controls.save_path.value or "plan.json").with_suffix(".html")
+        ref = self.state.reference
+        try:
+            written = write_report(
+                self.state.plan, target, base_dir=self.state.base_dir, evaluation=self.state.evaluation,
+                view=self.state.view, reference=ref,
+            )
+        except (MixchartError, OSError) as exc:
+            self.controls.file_msg.value = _error_html(f"snapshot: {exc}")
+            return None
+        self.controls.file_msg.value = f"wrote {html.escape(str(written))}"
+        return written
+
+    # ------------------------------------------------------------ refresh
+    def _on_state(self, state: PlanState, what: str) -> None:
+        if what == "plan":
+            self._refresh_all()
+        elif what == "view":
+            self._refresh_chart()
+        elif what == "reference":
+            self._refresh_reference()
+
+    @contextmanager
+    def _sync(self) -> Iterator[None]:
+        self._syncing, old = True, self._syncing
+        try:
+            yield
+        finally:
+            self._syncing = old
+
+    def _refresh_chart(self) -> None:
+        data = chart_data(self.state.evaluation, self.state.view)
+        self._last_meta = data.meta
+        with self._sync(), self.bokeh.batch():
+            update_chart(self.chart, data)
+        ev = self.state.evaluation
+        i = data.meta["channel_index"]
+        with self._sync():
+            self.controls.channel.value = i
+        margin = ev.worst_margin_db[i]
+        self.controls.channel_text.value = (
+            f"<span class='mixchart-channel-text'>channel {html.escape(format_frequency(ev.channels_hz[i]))}, "
+            f"LO {html.escape(format_frequency(ev.lo_hz[i]))}, worst margin {margin:+.1f} dB</span>"
+        )
+
+    def _refresh_all(self) -> None:
+        ev = self.state.evaluation
+        self.status.value = _summary_html("Plan", ev)
+        self.table.value = _table_html(ev)
+        self._sync_widgets()
+        self._refresh_chart()
+        self._refresh_compare()
+
+    def _refresh_compare(self) -> None:
+        ref = self.state.reference
+        if ref is None:
+            self.compare.value = ""
+            return
+        self.compare.value = (
+            "<div style='display:flex;gap:24px'>"
+            + _summary_html("Reference", ref[1])
+            + _summary_html("Edited", self.state.evaluation)
+            + "</div>"
+        )
+
+    def _refresh_reference(self) -> None:
+        ref = self.state.reference
+        if ref is None:
+            self.reference_box.children = ()
+        else:
+            import ipywidgets as w
+
+            data = chart_data(ref[1], ViewOptions(normalised=self.state.view.normalised))
+            if self.reference_chart is None:
+                self.reference_chart = build_chart(data, width=600, height=400)
+                self._reference_widget = BatchedBokehModel(self.reference_chart.layout)
+            else:
+                with self._reference_widget.batch():
+                    update_chart(self.reference_chart, data, reset_ranges=True)
+            label = w.HTML(f"<b>Reference plan:</b> {html.escape(ref[0].name)}")
+            self.reference_box.children = (label, self._reference_widget)
+        self._refresh_compare()
+
+    def _sync_widgets(self) -> None:
+        """Show the current plan in the widgets without firing their handlers."""
+        plan, c = self.state.plan, self.controls
+        with self._sync():
+            c.direction.value = plan.direction
+            c.lo_mode.value = plan.lo.mode
+            c.side.value = plan.lo.side
+            for key, value in (
+                ("rf_start", plan.rf.start_hz),
+                ("rf_stop", plan.rf.stop_hz),
+                ("rf_step", plan.rf.step_hz),
+                ("if_center", plan.if_.center_hz),
+                ("if_bandwidth", plan.if_.bandwidth_hz),
+                ("sig_bandwidth", plan.signal.bandwidth_hz),
+                ("lo_fixed", plan.lo.fixed_hz),
+                ("lo_step", plan.lo.step_hz),
+            ):
+                c.__dict__[key].value = _freq_text(value)
+            c.lo_fixed.disabled = plan.lo.mode != "fixed"
+            c.side.disabled = plan.lo.mode != "tracking"
+            c.sig_level.value = plan.signal.level_dbm
+            c.max_order.value = plan.max_order
+            c.requirement.value = plan.requirement.min_rejection_db
+            c.topology.value = plan.mixer.topology
+            c.balance.value = plan.mixer.balance_db
+            c.table_path.value = plan.mixer.table
+            c.rf_ref.value = plan.mixer.rf_ref_dbm
+            c.lo_drive.value = plan.mixer.lo_drive_dbm
+            c.orders_shown.max = plan.max_order
+            c.orders_shown.value = min(self.state.view.max_order_shown or plan.max_order, plan.max_order)
+            c.channel.max = max(self.state.evaluation.channels_hz.size - 1, 0)
+            c.rf_filter.kind.description = "preselector" if plan.direction == "down" else "output filter"
+            for fc, spec in ((c.rf_filter, plan.filters.rf), (c.if_filter, plan.filters.if_)):
+                _show_filter(fc, spec)
+
+
+def _show_filter(fc: FilterControls, spec: Any) -> None:
+    import json
+
+    if spec is None:
+        fc.kind.value = "none"
+        fc.spec_json.value = ""
+        return
+    data = spec.model_dump(mode="json", exclude_none=True)
+    fc.spec_json.value = json.dumps(data)
+    kind = data.get("kind")
+    simple = kind == "tuned" or (kind in ("butterworth", "chebyshev1", "elliptic", "brickwall") and data.get("response") == "bandpass")
+    if not simple:
+        fc.kind.value = "custom"
+        return
+    fc.kind.value = kind
+    fc.centre.value = "track" if data.get("tracks_channel") else _freq_text(data.get("f_center_hz"))
+    if kind == "tuned":
+        fc.q.value = data["q_loaded"]
+        fc.order.value = data.get("stages", 1)
+    else:
+        fc.bandwidth.value = _freq_text(data.get("bandwidth_hz"))
+        fc.order.value = data.get("order", fc.order.value)
+        fc.ripple.value = data.get("ripple_db", fc.ripple.value)
+        fc.stop.value = data.get("stop_atten_db", fc.stop.value)
+
+
+# ============================================================ Bokeh widget
+
+
+def _batched_model_class() -> type:
+    from bokeh.core.serialization import Deserializer, Serialized
+    from bokeh.protocol import Protocol
+    from jupyter_bokeh import BokehModel
+
+    class _Batched(BokehModel):
+        """A BokehModel that sends one message per batch and applies browser edits once.
+
+        * ``with widget.batch(): ...`` collects the document changes made inside
+          and sends them as one PATCH-DOC message instead of one per change.
+        * jupyter_bokeh 4.1 runs a Python ``on_change`` callback twice for one
+          browser edit (the property setter fires it, then a loop fires it
+          again); here the setter alone fires it.
+        """
+
+        def __init__(self, model: Any, **kwargs: Any) -> None:
+            self._held: list[Any] | None = None
+            super().__init__(model, **kwargs)
+
+        @contextmanager
+        def batch(self) -> Iterator[None]:
+            if self._held is not None:
+                yield
+                return
+            self._held = []
+            try:
+                yield
+            finally:
+                events, self._held = self._held, None
+                if events:
+                    self._send_events(events)
+
+        def _document_patched(self, event: Any) -> None:
+            if event.setter is self:
+                return
+            if self._held is not None:
+                self._held.append(event)
+            else:
+                self._send_events([event])
+
+        def _send_events(self, events: list[Any]) -> None:
+            import json
+
+            msg = Protocol().create("PATCH-DOC", events)
+            self.send({"msg": "patch", "payload": msg.header_json})
+            self.send({"msg": "patch", "payload": msg.metadata_json})
+            self.send({"msg": "patch", "payload": msg.content_json})
+            for buffer in msg.buffers:
+                self.send({"msg": "patch", "payload": json.dumps(buffer.ref)})
+                self.send({"msg": "patch"}, [buffer.to_bytes()])
+
+        def _sync_model(self, _model: Any, content: dict[str, Any], _buffers: list[Any]) -> None:
+            if content.get("event", "") != "jsevent":
+                return
+            event_data = dict(content)
+            del event_data["event"]
+            if self._document is None:
+                return
+            deserializer = Deserializer(list(self._document.models), setter=self)
+            event = deserializer.deserialize(Serialized(content=event_data, buffers=[]))
+            if event["kind"] == "ModelChanged":
+                model, attr = event["model"], event["attr"]
+                descriptor = model.lookup(attr)
+                new = descriptor.property.prepare_value(model, descriptor.name, event["new"])
+                old = descriptor._get(model)
+                descriptor._set(model, old, new, setter=self)  # fires on_change callbacks once
+                return
+            super()._sync_model(_model, content, _buffers)
+
+    return _Batched
+
+
+_BATCHED: type | None = None
+
+
+def BatchedBokehModel(model: Any) -> Any:  # noqa: N802 - a class factory used like a class
+    """Wrap a Bokeh layout as an ipywidget that batches updates (see ``_batched_model_class``)."""
+    global _BATCHED
+    if _BATCHED is None:
+        _BATCHED = _batched_model_class()
+    return _BATCHED(model)
+
+
+# =================================================================== entry
+
+
+_LOADED = False
+
+
+def _load_bokehjs() -> None:
+    """Load BokehJS inline once per kernel (a CDN cannot be assumed reachable)."""
+    global _LOADED
+    if _LOADED:
+        return
+    from bokeh.io import output_notebook
+    from bokeh.resources import INLINE
+
+    output_notebook(INLINE, hide_banner=True)
+    _LOADED = True
+
+
+def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: int = 600) -> Any:
+    """Show the planning app in a notebook: ``planner("my_plan.json")``.
+
+    Parameters
+    ----------
+    plan : Plan, path-like or None
+        A plan, a plan file, or None for the built-in receiver example.
+    chart_width : int
+        Width of each chart plane, pixels.
+
+    Returns
+    -------
+    ipywidgets.VBox
+        The app widget (displayed when it is the cell's last expression); the
+        :class:`PlannerApp` is available as its ``.app`` attribute.
+    """
+    if plan is None:
+        loaded, folder = example_plan()
+    elif isinstance(plan, Plan):
+        loaded, folder = plan, None
+    else:
+        loaded, folder = load_plan(plan), Path(plan).resolve().parent
+    _load_bokehjs()
+    app = PlannerApp(PlanState(loaded, folder), chart_width=chart_width)
+    app.widget.app = app
+    return app.widget
