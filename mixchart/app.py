@@ -367,7 +367,7 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     errors = {key: w.HTML(value="", layout=w.Layout(width="300px")) for key in _TEXT_FIELDS}
     c: dict[str, Any] = {}
     c["direction"] = w.ToggleButtons(
-        options=[("down (receiver)", "down"), ("up (transmitter)", "up")], value=plan.direction,
+        options=[("down (Rx)", "down"), ("up (Tx)", "up")], value=plan.direction,
         description="conversion", style={"description_width": "112px", "button_width": "92px"},
     )
     c["lo_mode"] = w.ToggleButtons(
@@ -531,6 +531,8 @@ def _table_html(ev: Evaluation, rows: int = 12) -> str:
             f'<td style="color:{colour};font-weight:bold">{r.margin_db:+.1f}</td><td>{extra_rf}</td><td>{extra_if}</td></tr>'
         )
     return (
+        "<style>.mixchart-table td,.mixchart-table th{padding:2px 10px;text-align:left}"
+        ".mixchart-table tr:nth-child(even){background:#F3F5F7}</style>"
         '<table class="mixchart-table" style="border-collapse:collapse;font-size:13px">'
         f"<caption style='text-align:left;font-weight:bold'>Worst case of each product across the tuning range</caption>"
         f"{head}{''.join(body)}</table>"

@@ -372,7 +372,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
             f"Output plane at LO {format_frequency(lo_now)} (channel {format_frequency(ch)})"
             + (", normalised to LO" if opts.normalised else "")
         ),
-        "tuning_title": f"Tuning plane: where products land in the IF ({'down' if down else 'up'}-conversion)",
+        "tuning_title": "Tuning plane: products landing in the IF" if down else "Tuning plane: products landing on the RF",
         "direction": plan.direction,
     }
     return ChartData(sources=sources, meta=meta)
@@ -509,7 +509,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     )
     tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2.5, name="plan_line")
     marks = tuning.scatter(
-        x="x", y="y", source=src["tuning_marks"], marker="square", size=7, fill_color="color",
+        x="x", y="y", source=src["tuning_marks"], marker="square", size=5, fill_color="color",
         line_color="color", name="channel_marks",
     )
     pts_t = tuning.scatter(

@@ -132,7 +132,7 @@ def _cmd_serve(args: argparse.Namespace) -> int:
 
     plan_path = Path(args.plan) if args.plan else example_path(args.example)
     _load(args)  # refuse a bad plan before starting anything
-    return serve(plan_path, port=args.port, open_browser=False)
+    return serve(plan_path, port=args.port)
 
 
 def _cmd_snapshot(args: argparse.Namespace) -> int:
