@@ -1,0 +1,194 @@
+"""The planner app without a browser: state, wiring, drags, save/load.
+
+The browser-level checks (that a real page draws and reacts) are in
+tests/browser/.  Here the logic is driven as the widgets and BokehJS would
+drive it, through the same entry points.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+pytest.importorskip("ipywidgets")
+pytest.importorskip("jupyter_bokeh")
+
+from bokeh.core.serialization import Serializer  # noqa: E402
+
+from mixchart.analysis import evaluate  # noqa: E402
+from mixchart.app import PlannerApp, PlanState, example_plan  # noqa: E402
+from mixchart.chart import ViewOptions, chart_data  # noqa: E402
+from mixchart.plan import load_plan  # noqa: E402
+
+
+@pytest.fixture()
+def app() -> PlannerApp:
+    plan, folder = example_plan("fm_receiver")
+    return PlannerApp(PlanState(plan, folder))
+
+
+def _data(app: PlannerApp) -> dict[str, dict]:
+    return {name: {k: list(np.asarray(v).ravel()) if not isinstance(v, list) else v for k, v in src.data.items()}
+            for name, src in app.chart.sources.items()}
+
+
+def _browser_edit(app: PlannerApp, source_name: str, new_data: dict) -> None:
+    """Send the message BokehJS sends when a tool edits a source (one ModelChanged event)."""
+    source = app.chart.sources[source_name]
+    # As BokehJS sends it: a plain event object, the model as a reference, the value serialised.
+    content = {
+        "event": "jsevent",
+        "kind": "ModelChanged",
+        "model": {"id": source.id},
+        "attr": "data",
+        "new": Serializer().encode(new_data),
+    }
+    app.bokeh._sync_model(app.bokeh, content, [])
+
+
+def test_plan_change_updates_every_source_and_the_table(app: PlannerApp) -> None:
+    before = _data(app)
+    table_before = app.table.value
+    assert app.state.try_update({"if.center_hz": "21.4 MHz", "lo.side": "low"}) is None
+    after = _data(app)
+    changed = {name for name in before if before[name] != after[name]}
+    # Every source that depends on the IF or the LO must change (the RF band does not).
+    assert changed >= set(before) - {"rf_band", "out_input_band"}, set(before) - changed
+    assert app.table.value != table_before
+    assert "21.4 MHz" in app.status.value
+    assert app.controls.if_center.value == "21.4 MHz"
+    assert app.controls.side.value == "low"
+
+
+def test_text_field_accepts_units_and_rejects_nonsense_without_losing_the_plan(app: PlannerApp) -> None:
+    app.controls.if_center.value = "21.4MHz"
+    assert app.state.plan.if_.center_hz == 21.4e6
+    good = app.state.plan
+    app.controls.if_center.value = "banana"
+    assert "banana" in app.controls.errors["if_center"].value
+    assert app.state.plan == good  # the chart keeps the last valid plan
+    app.controls.rf_stop.value = "80 MHz"  # below the start
+    assert "below" in app.controls.errors["rf_stop"].value
+    assert app.state.plan == good
+    app.controls.if_bandwidth.value = "50 MHz"  # wider than twice the IF centre
+    assert "0 Hz" in app.controls.errors["if_bandwidth"].value
+    assert "Traceback" not in app.controls.errors["if_bandwidth"].value
+
+
+def test_a_browser_drag_of_the_if_band_changes_the_plan_exactly_once(app: PlannerApp) -> None:
+    calls: list[str] = []
+    app.state.observe(lambda _state, what: calls.append(what))
+    drags: list[tuple] = []
+    apply = app.state.apply_band_drag
+    app.state.apply_band_drag = lambda *args: (drags.append(args), apply(*args))[1]
+    scale = app._last_meta["out_scale"]
+    _browser_edit(app, "out_output_band", {"y0": [12.0e6 / scale], "y1": [12.23e6 / scale]})
+    assert calls == ["plan"], calls  # once, not twice
+    assert len(drags) == 1  # jupyter_bokeh 4.1 alone would run the source callback twice
+    # derived by hand: centre (12.0 + 12.23)/2 = 12.115 MHz, width 230 kHz unchanged
+    assert app.state.plan.if_.center_hz == pytest.approx(12.115e6)
+    assert app.state.plan.if_.bandwidth_hz == 230e3
+    assert app.controls.if_center.value == "12.115 MHz"
+
+
+def test_a_browser_drag_of_the_rf_band_moves_the_band_on_its_raster(app: PlannerApp) -> None:
+    scale = app._last_meta["scale"]
+    plan = app.state.plan
+    half = plan.signal.bandwidth_hz / 2
+    lo, hi = plan.rf.start_hz - half + 5.03e6, plan.rf.stop_hz + half + 5.03e6
+    _browser_edit(app, "rf_band", {"x0": [lo / scale], "x1": [hi / scale]})
+    new = app.state.plan.rf
+    assert new.start_hz == pytest.approx(93.0e6)  # 88 MHz + 5.03 MHz snapped to the 100 kHz raster
+    assert new.stop_hz - new.start_hz == pytest.approx(plan.rf.stop_hz - plan.rf.start_hz)
+
+
+def test_a_drag_to_an_impossible_place_is_refused_and_the_band_goes_back(app: PlannerApp) -> None:
+    good = app.state.plan
+    scale = app._last_meta["out_scale"]
+    _browser_edit(app, "out_output_band", {"y0": [-1.0e6 / scale], "y1": [0.5e6 / scale]})
+    assert app.state.plan == good
+    assert app.controls.errors["plan"].value
+    band = app.chart.sources["out_output_band"].data
+    assert band["y0"][0] * scale == pytest.approx(good.if_.lo_hz)
+
+
+def test_channel_slider_moves_the_output_plane(app: PlannerApp) -> None:
+    lines_before = _data(app)["out_lines"]
+    app.controls.channel.value = 0
+    ev = app.state.evaluation
+    assert app.state.view.channel_hz == ev.channels_hz[0]
+    assert "88 MHz" in app.controls.channel_text.value
+    assert _data(app)["out_lines"] != lines_before
+    assert app.chart.output.title.text.endswith("(channel 88 MHz)")
+
+
+def test_view_options_do_not_change_the_plan(app: PlannerApp) -> None:
+    plan = app.state.plan
+    app.controls.normalised.value = True
+    assert app.chart.output.xaxis[0].axis_label == "RF input / LO"
+    app.controls.orders_shown.value = 3
+    assert max(app.chart.sources["out_lines"].data["m"], default=0) <= 3
+    assert app.state.plan == plan
+
+
+def test_filter_controls_build_a_valid_spec(app: PlannerApp) -> None:
+    fc = app.controls.if_filter
+    fc.kind.value = "chebyshev1"
+    fc.centre.value = "10.7 MHz"
+    fc.bandwidth.value = "250 kHz"
+    fc.order.value = 5
+    spec = app.state.plan.filters.if_
+    assert spec.kind == "chebyshev1" and spec.order == 5 and spec.bandwidth_hz == 250e3
+    fc.spec_json.value = '{"kind": "butterworth", "response": "bandpass"}'  # incomplete
+    assert "filters.if" in fc.error.value or "if" in fc.error.value
+    assert app.state.plan.filters.if_ == spec
+
+
+def test_compare_keeps_a_reference(app: PlannerApp) -> None:
+    app.state.keep_reference()
+    app.state.try_update({"lo.side": "low"})
+    assert "Reference" in app.compare.value and "Edited" in app.compare.value
+    assert "high-side" in app.compare.value and "low-side" in app.compare.value
+    assert len(app.reference_box.children) == 2
+    app.state.clear_reference()
+    assert app.compare.value == "" and not app.reference_box.children
+
+
+def test_save_load_reevaluates_to_what_the_screen_shows(app: PlannerApp, tmp_path) -> None:
+    app.state.try_update({"if.center_hz": 10.8e6, "requirement.min_rejection_db": 65})
+    path = app.save(str(tmp_path / "chosen.json"))
+    assert path is not None and "Download" in app.controls.file_msg.value
+    again = load_plan(path)
+    assert again == app.state.plan
+    ev = evaluate(again, base_dir=tmp_path)
+    shown = app.state.evaluation
+    assert ev.summary == shown.summary
+    np.testing.assert_array_equal(ev.worst_margin_db, shown.worst_margin_db)
+    assert chart_data(ev, app.state.view).sources.keys() == chart_data(shown, app.state.view).sources.keys()
+
+
+def test_upload_of_a_bad_file_shows_a_message_and_keeps_the_plan(app: PlannerApp) -> None:
+    good = app.state.plan
+    app._on_upload({"new": ({"name": "x.json", "content": memoryview(b'{"direction": "sideways"}')},)})
+    assert "direction" in app.controls.file_msg.value
+    assert app.state.plan == good
+    text = json.dumps(good.with_changes({"name": "uploaded <b>plan</b>"}).to_dict()).encode()
+    app._on_upload({"new": ({"name": "y.json", "content": memoryview(text)},)})
+    assert app.state.plan.name == "uploaded <b>plan</b>"
+    assert "uploaded &lt;b&gt;plan&lt;/b&gt;" in app.status.value  # user text is escaped
+
+
+def test_state_is_usable_without_widgets() -> None:
+    plan, folder = example_plan("uplink_transmitter")
+    state = PlanState(plan, folder)
+    seen: list[str] = []
+    state.observe(lambda _s, what: seen.append(what))
+    assert state.try_update({"if.center_hz": plan.if_.center_hz}) is None  # no change, no event
+    assert seen == []
+    assert state.try_update({"max_order": 99}) is not None
+    state.set_view(channel_hz=2.35e9)
+    assert seen == ["view"]
+    assert state.channel_index == state.evaluation.nearest_channel(2.35e9)
+    assert ViewOptions().channel_hz is None

@@ -1,0 +1,527 @@
+"""Tests for mixchart.levels: spur-level tables, drive scaling and balance suppression.
+
+Every expected value is computed from an outside source named beside the check: the Fourier
+series of a square wave (evaluated numerically with numpy's FFT), a numerical simulation of an
+ideal switching mixer or of a power-series nonlinearity, an independent CSV parser
+(``pandas.read_csv``), or a rule marked "from memory" / "common practice, no source".
+"""
+
+from __future__ import annotations
+
+import math
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from pydantic import ValidationError
+
+from mixchart.errors import LevelTableError
+from mixchart.levels import (
+    FLOOR_DBC,
+    IDEAL_BALANCED_CONVERSION_LOSS_DB,
+    LO_DRIVE_TOLERANCE_DB,
+    RF_EXTRAPOLATION_LIMIT_DB,
+    TOPOLOGIES,
+    LevelTable,
+    MixerSpec,
+    build_table,
+    builtin_table,
+    default_conversion_loss_db,
+    read_table_csv,
+)
+
+DATA = Path(__file__).parent / "data"
+PARTIAL_CSV = DATA / "levels_dbc_rf-10dbm_lo7dbm_partial_madeup.csv"
+
+
+# ---------------------------------------------------------------------------- numerical helpers
+def _amplitudes(x: np.ndarray) -> np.ndarray:
+    """One-sided amplitude spectrum of a real, coherently sampled signal (bin k = k periods)."""
+    spectrum = np.abs(np.fft.rfft(x)) * 2.0 / len(x)
+    spectrum[0] /= 2.0
+    return spectrum
+
+
+def _switch(n_samples: int, periods: int, *, duty: float = 0.5, bipolar: bool = True) -> np.ndarray:
+    """Sampled LO switching wave: +/-1 (bipolar) or 0/1, ``duty`` = fraction of the period 'on'.
+
+    Samples sit at half-sample offsets so that no sample falls on an edge.
+    """
+    phase = ((np.arange(n_samples) + 0.5) * periods / n_samples) % 1.0
+    on = phase < duty
+    return np.where(on, 1.0, -1.0) if bipolar else on.astype(float)
+
+
+def _tone(n_samples: int, periods: int, amplitude: float = 1.0) -> np.ndarray:
+    return amplitude * np.cos(2 * np.pi * periods * np.arange(n_samples) / n_samples)
+
+
+def _db(ratio: float) -> float:
+    return 20.0 * math.log10(ratio)
+
+
+def _write_csv(path: Path, level_dbc: np.ndarray, blank: np.ndarray, rf_ref_dbm: float, lo_ref_dbm: float):
+    """Write a level table in the documented CSV layout (test-side writer, independent of the reader)."""
+    size = level_dbc.shape[0]
+    lines = [f"# rf_ref_dbm = {rf_ref_dbm!r}", f"# lo_ref_dbm = {lo_ref_dbm!r}",
+             "m\\n," + ",".join(map(str, range(size)))]
+    for m in range(size):
+        cells = ["" if blank[m, n] or (m, n) == (0, 0) else repr(float(level_dbc[m, n])) for n in range(size)]
+        lines.append(",".join([str(m), *cells]))
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+# ---------------------------------------------------------------------------- the built-in model
+@pytest.mark.parametrize("n", range(1, 10))
+def test_ideal_switching_table_matches_square_wave_fourier_series(n):
+    # Source: Fourier series of a square wave, s(t) = (4/pi) * sum over odd n of sin(n w t)/n:
+    # evaluated numerically here with numpy's FFT of a sampled +/-1 square wave (one period in
+    # 2**16 samples, so the discrete-time error is ~1e-8 relative).
+    spectrum = _amplitudes(_switch(2**16, 1))
+    table = builtin_table("double_balanced", 9, balance_db=math.inf)
+    if n % 2:
+        fourier_dbc = _db(spectrum[n] / spectrum[1])
+        assert table.level_dbc[1, n] == pytest.approx(fourier_dbc, abs=1e-5)
+        # Published closed form of the same series: -20*log10(n) dBc (-9.54 dB for n = 3).
+        assert table.level_dbc[1, n] == pytest.approx(-20 * math.log10(n), abs=1e-12)
+    else:
+        assert spectrum[n] / spectrum[1] < 1e-9  # even harmonics vanish
+        assert table.level_dbc[1, n] == FLOOR_DBC
+
+
+def test_single_ended_feedthrough_and_even_envelope_match_unipolar_switch_series():
+    # Source: Fourier series of a 0/1 square wave (numpy FFT): DC / fundamental = (1/2)/(2/pi)
+    # = pi/4, the ideal single-ended switch's RF feedthrough (1, 0) relative to (1, 1).
+    spectrum = _amplitudes(_switch(2**16, 1, bipolar=False))
+    table = builtin_table("single_ended", 4)
+    assert table.level_dbc[1, 0] == pytest.approx(_db(spectrum[0] / spectrum[1]), abs=1e-5)
+    # Derived by hand: a 0/1 wave of duty d has harmonic n proportional to |sin(n pi d)|/n; its
+    # worst case over d, relative to the 50 % fundamental, is 1/n.  Checked numerically over d.
+    fundamental_50 = spectrum[1]
+    for n in (2, 4):
+        worst = max(_amplitudes(_switch(2**14, 1, duty=d, bipolar=False))[n] for d in np.arange(1, 64) / 64)
+        assert table.level_dbc[1, n] == pytest.approx(_db(worst / fundamental_50), abs=1e-3)
+
+
+@pytest.mark.parametrize(
+    ("topology", "bipolar", "expected_db"),
+    [
+        # Published value 3.92 dB for the ideal double-balanced switching mixer, 20*log10(pi/2):
+        # from memory, S. A. Maas, "Microwave Mixers".  Here it is computed by simulating the switch.
+        ("double_balanced", True, 3.92),
+        ("single_balanced", True, 3.92),
+        # Derived by hand: 0/1 switch, fundamental 2/pi, IF amplitude 1/pi -> 20*log10(pi) = 9.94 dB.
+        ("single_ended", False, 9.94),
+    ],
+)
+def test_conversion_loss_of_ideal_switching_mixer(topology, bipolar, expected_db):
+    # Source: numerical simulation of y = cos(w_RF t) * s(t) (numpy FFT); IF at |k_RF - k_LO|.
+    n_samples, k_rf, k_lo = 2**16, 37, 256
+    y = _tone(n_samples, k_rf) * _switch(n_samples, k_lo, bipolar=bipolar)
+    simulated_db = -_db(_amplitudes(y)[k_lo - k_rf])
+    assert default_conversion_loss_db(topology) == pytest.approx(simulated_db, abs=2e-3)
+    assert builtin_table(topology, 3).conversion_loss_db == pytest.approx(expected_db, abs=5e-3)
+    assert IDEAL_BALANCED_CONVERSION_LOSS_DB == pytest.approx(20 * math.log10(math.pi / 2), abs=1e-15)
+
+
+@pytest.mark.parametrize(("topology", "bipolar", "duty", "odd_rf"), [
+    ("double_balanced", True, 0.5, True),   # balanced RF port: only the odd part of p(x) survives
+    ("single_balanced", True, 0.5, False),  # +/-1 LO switching, single-ended RF path
+    ("single_ended", False, 0.4, False),    # 0/1 switch; duty 0.4 so even LO harmonics appear
+])
+def test_which_products_an_ideal_topology_cancels(topology, bipolar, duty, odd_rf):
+    # Source: numerical simulation of the ideal circuit y = p(x) * s(t), p(x) = x + 0.1 x^2 + 0.05 x^3
+    # (a power series; its x^2 term also gives DC, i.e. LO feedthrough as from a bias current).
+    # A product is "present" if its FFT amplitude exceeds 1e-9 of the wanted output.  The
+    # parity rule the table encodes is from memory (S. A. Maas, "Microwave Mixers").
+    n_samples, k_rf, k_lo = 64_000, 37, 256  # 250 samples per LO period, 100 'on' at duty 0.4
+    x = _tone(n_samples, k_rf)
+    p = x + 0.1 * x**2 + 0.05 * x**3
+    if odd_rf:
+        p = (p - (-x + 0.1 * x**2 - 0.05 * x**3)) / 2
+    spectrum = _amplitudes(p * _switch(n_samples, k_lo, duty=duty, bipolar=bipolar))
+    table = builtin_table(topology, 4, balance_db=math.inf)
+    for m in range(4):
+        for n in range(5):
+            if (m, n) == (0, 0):
+                continue
+            present = spectrum[abs(n * k_lo - m * k_rf)] > 1e-9 * spectrum[k_lo - k_rf]
+            assert (table.level_dbc[m, n] > FLOOR_DBC) == present, (m, n)
+
+
+def test_switching_mixer_products_factorise_into_rf_and_lo_parts():
+    # Source: numerical simulation of y = p(x) * s(t) with a +/-1 switch: product (m, n) is the
+    # m-th RF harmonic times the n-th LO harmonic, so (3, 3)/(3, 1) = (1, 3)/(1, 1) = 1/3.
+    n_samples, k_rf, k_lo = 2**16, 37, 64  # 1024 samples per LO period: discrete error < 1e-4 dB
+    x = _tone(n_samples, k_rf)
+    spectrum = _amplitudes((x + 0.05 * x**3) * _switch(n_samples, k_lo))
+    level = {(m, n): spectrum[abs(n * k_lo - m * k_rf)] for m in (1, 3) for n in (1, 3)}
+    simulated_db = _db(level[3, 3] / level[3, 1])
+    assert simulated_db == pytest.approx(_db(level[1, 3] / level[1, 1]), abs=1e-6)
+    table = builtin_table("double_balanced", 6, rf_harmonic_step_db=17.0)
+    assert table.level_dbc[3, 3] - table.level_dbc[3, 1] == pytest.approx(simulated_db, abs=1e-3)
+
+
+@pytest.mark.parametrize("balance_db", [0.0, 20.0, 30.0, 40.0])
+def test_real_balance_suppresses_exactly_the_ideally_cancelled_products(balance_db):
+    # Rule (common practice, no source): an ideally cancelled product sits at its unbalanced
+    # level minus balance_db.  balance_db = 0 is the unbalanced level by definition.
+    for topology in TOPOLOGIES:
+        unbalanced = builtin_table(topology, 6, balance_db=0.0).level_dbc
+        ideal = builtin_table(topology, 6, balance_db=math.inf).level_dbc
+        real = builtin_table(topology, 6, balance_db=balance_db).level_dbc
+        cancelled = ideal <= FLOOR_DBC
+        cancelled[0, 0] = False
+        np.testing.assert_allclose(real[cancelled], unbalanced[cancelled] - balance_db, atol=1e-12)
+        np.testing.assert_array_equal(real[~cancelled][1:], unbalanced[~cancelled][1:])
+        if topology == "single_ended":  # nothing is suppressed
+            assert not cancelled.any()
+        if topology == "double_balanced":  # even m or even n (from memory, S. A. Maas)
+            assert cancelled[2, 1] and cancelled[1, 2] and cancelled[0, 1] and cancelled[1, 0]
+            assert not cancelled[3, 1] and not cancelled[1, 3]
+        if topology == "single_balanced":  # even n only
+            assert cancelled[1, 2] and cancelled[1, 0] and not cancelled[2, 1]
+
+
+def test_lo_leakage_follows_drive_isolation_and_conversion_loss():
+    # Derived by hand from rule 3: (0, 1) = (LO - isolation) - (RF_ref - conversion loss), single
+    # ended (no balance): 7 - 20 - (0 - 9.94) = -3.06 dBc; LO harmonics follow the 1/n envelope.
+    table = builtin_table("single_ended", 3, unbalanced_lo_isolation_db=20.0, rf_ref_dbm=0.0, lo_ref_dbm=7.0)
+    assert table.level_dbc[0, 1] == pytest.approx(7 - 20 - (0 - 20 * math.log10(math.pi)), abs=1e-12)
+    assert table.level_dbc[0, 3] - table.level_dbc[0, 1] == pytest.approx(-20 * math.log10(3), abs=1e-12)
+    assert table.level_dbc[0, 0] == FLOOR_DBC  # (0, 0) is never a product
+
+
+# ---------------------------------------------------------------------------- drive scaling
+@pytest.mark.parametrize(("m", "n", "slope"), [
+    # Derived by hand from the rule: relative to the wanted output, (m, n) moves (m - 1) dB/dB.
+    (2, 1, 1.0), (3, 1, 2.0), (1, 3, 0.0), (1, 5, 0.0), (5, 3, 4.0), (1, 0, 0.0), (0, 1, -1.0),
+])
+def test_level_moves_m_minus_one_db_per_db(m, n, slope):
+    table = builtin_table("single_ended", 8)
+    for delta_db in (-20.0, -3.0, 7.5):
+        moved = table.level_dbc_at(m, n, table.rf_ref_dbm + delta_db) - table.level_dbc_at(m, n, table.rf_ref_dbm)
+        assert moved == pytest.approx(slope * delta_db, abs=1e-12)
+
+
+def test_two_tone_power_series_products_move_one_and_two_db_per_db():
+    # Source: power-series nonlinearity, standard intermodulation result: with
+    # y = a1 x + a2 x^2 + a3 x^3 and two tones, the 2nd-order product f1 + f2 rises 2 dB/dB and
+    # the 3rd-order 2 f1 - f2 3 dB/dB, i.e. 1 and 2 dB/dB relative to the fundamental.
+    # Simulated here with numpy FFT (small a3 so that compression of the fundamental is < 0.001 dB).
+    n_samples, k1, k2 = 2**14, 101, 117
+    relative_db = {}
+    for amplitude in (0.01, 0.01 * 10 ** (10 / 20)):
+        x = _tone(n_samples, k1, amplitude) + _tone(n_samples, k2, amplitude)
+        spectrum = _amplitudes(x + 0.2 * x**2 + 0.02 * x**3)
+        fundamental = spectrum[k1]
+        relative_db[amplitude] = (_db(spectrum[k1 + k2] / fundamental), _db(spectrum[2 * k1 - k2] / fundamental))
+    (second_lo, third_lo), (second_hi, third_hi) = relative_db.values()
+    assert (second_hi - second_lo) / 10 == pytest.approx(1.0, abs=1e-3)
+    assert (third_hi - third_lo) / 10 == pytest.approx(2.0, abs=1e-3)
+    table = builtin_table("single_balanced", 4)
+    for m, simulated in ((2, second_hi - second_lo), (3, third_hi - third_lo)):
+        moved = table.level_dbc_at(m, 1, 10.0) - table.level_dbc_at(m, 1, 0.0)
+        assert moved == pytest.approx(simulated, abs=1e-2)
+
+
+def test_mixer_simulation_rf_harmonic_products_move_m_minus_one_db_per_db():
+    # Source: numerical simulation of y = p(x) * s(t), +/-1 switch, p(x) = x + 0.3 x^2 + 0.03 x^3
+    # (power-series nonlinearity, standard result: the m-th harmonic grows m dB per dB of input).
+    n_samples, k_rf, k_lo = 2**16, 37, 256
+    spectra = []
+    for amplitude in (0.01, 0.1):  # 20 dB apart
+        x = _tone(n_samples, k_rf, amplitude)
+        spectra.append(_amplitudes((x + 0.3 * x**2 + 0.03 * x**3) * _switch(n_samples, k_lo)))
+    table = builtin_table("single_balanced", 5)
+    for m, n in ((2, 1), (3, 1), (1, 3), (2, 3)):
+        bin_, wanted = abs(n * k_lo - m * k_rf), k_lo - k_rf
+        simulated = _db(spectra[1][bin_] / spectra[1][wanted]) - _db(spectra[0][bin_] / spectra[0][wanted])
+        moved = table.level_dbc_at(m, n, 20.0) - table.level_dbc_at(m, n, 0.0)
+        assert moved == pytest.approx(simulated, abs=1e-2)
+
+
+def test_level_dbc_at_is_vectorised_and_vanished_entries_stay_at_floor():
+    table = builtin_table("double_balanced", 7, balance_db=math.inf)
+    rng = np.random.default_rng(1)
+    m, n = rng.integers(0, 8, 200_000), rng.integers(0, 8, 200_000).astype(np.uint8)
+    drive = rng.uniform(-60, 20, 200_000)
+    levels = table.level_dbc_at(m, n, drive)
+    assert levels.shape == (200_000,) and levels.dtype == np.float64
+    vanished = table.level_dbc[m, n] <= FLOOR_DBC
+    assert vanished.any() and np.all(levels[vanished] == FLOOR_DBC)
+    # Derived by hand from the rule, element by element for a sample.
+    for i in range(0, 200_000, 20_011):
+        if not vanished[i]:
+            expected = table.level_dbc[m[i], n[i]] + (m[i] - 1) * (drive[i] - table.rf_ref_dbm)
+            assert levels[i] == pytest.approx(max(expected, FLOOR_DBC), abs=1e-9)
+    # Broadcasting: a column of m against a row of n, one drive.
+    assert table.level_dbc_at(np.arange(8)[:, None], np.arange(8)[None, :], 0.0).shape == (8, 8)
+
+
+@pytest.mark.parametrize(("m", "n", "drive", "field"), [
+    (-1, 1, 0.0, "m"),          # negative indices must not wrap around
+    (1, 8, 0.0, "n"),
+    (1.0, 1, 0.0, "m"),         # float harmonics are refused
+    (1, 1, float("nan"), "rf_drive_dbm"),
+    (1, 1, np.array([0.0, np.nan]), "rf_drive_dbm"),
+])
+def test_level_dbc_at_rejects_bad_arguments(m, n, drive, field):
+    table = builtin_table("double_balanced", 7)
+    with pytest.raises(LevelTableError, match=rf"^{field}: .* is invalid"):
+        table.level_dbc_at(np.asarray(m), n, drive)
+
+
+def test_no_signal_drive_gives_finite_levels_without_warnings():
+    # A drive of -inf dBm (e.g. behind an ideal filter) must not produce NaN (0 * inf) or warnings
+    # (the module runs under -W error here); derived by hand from the (m - 1) dB/dB rule:
+    # m >= 2 products fall to the floor, (1, n) products do not move.
+    table = builtin_table("single_ended", 4)
+    levels = table.level_dbc_at(np.array([2, 3, 1, 1, 0]), np.array([1, 1, 1, 3, 1]), -np.inf)
+    assert np.all(np.isfinite(levels))
+    assert levels[0] == levels[1] == FLOOR_DBC
+    assert levels[2] == 0.0 and levels[3] == table.level_dbc[1, 3]
+    assert levels[4] > 0.0  # LO leakage relative to an absent wanted output: far above it
+    assert table.drive_warnings(np.array([-np.inf, -3.0]), 7.0) == []
+    assert table.level_dbc_at(4, 1, -250.0) == FLOOR_DBC  # below the floor is the floor
+
+
+@pytest.mark.parametrize(("rf_dbm", "lo_dbm", "count", "words"), [
+    # Thresholds 10 dB (RF) and 0.5 dB (LO) are common practice, no source.
+    (-5.0, 7.0, 0, []),
+    (-10.0, 7.4, 0, []),
+    (-10.5, 7.0, 1, ["-10.5 dBm", "10.5 dB", "extrapolated"]),
+    (np.array([-3.0, 12.0, -8.0]), 7.0, 1, ["12 dBm"]),
+    (0.0, 10.0, 1, ["LO drive 10 dBm", "7 dBm"]),
+    (-30.0, 4.0, 2, ["-30 dBm", "LO drive 4 dBm"]),
+])
+def test_drive_warnings(rf_dbm, lo_dbm, count, words):
+    table = builtin_table("double_balanced", 5, rf_ref_dbm=0.0, lo_ref_dbm=7.0)
+    assert RF_EXTRAPOLATION_LIMIT_DB == 10.0 and LO_DRIVE_TOLERANCE_DB == 0.5
+    warnings = table.drive_warnings(rf_dbm, lo_dbm)
+    assert len(warnings) == count
+    for word in words:
+        assert any(word in w for w in warnings), (word, warnings)
+    assert all("\n" not in w for w in warnings)
+
+
+# ---------------------------------------------------------------------------- CSV tables
+def test_partial_csv_reads_measured_cells_exactly_and_falls_back_for_blanks():
+    # Source for the measured cells: pandas.read_csv, an independent parser of the same file.
+    reference = pd.read_csv(PARTIAL_CSV, comment="#", index_col=0)
+    fallback = builtin_table("double_balanced", 5)
+    table = read_table_csv(PARTIAL_CSV, fallback=fallback)
+    assert (table.rf_ref_dbm, table.lo_ref_dbm) == (-10.0, 7.0)  # as stated in the file header
+    for m in range(6):
+        for n in range(6):
+            value = reference.iloc[m, n] if m in reference.index and n < reference.shape[1] else np.nan
+            if (m, n) == (0, 0):
+                continue
+            if np.isnan(value):
+                # Fallback: the built-in value moved to the table's -10 dBm reference by the
+                # (m - 1) dB/dB rule (derived by hand: 10 dB below 0 dBm -> -(m - 1)*10 dB).
+                assert not table.measured[m, n]
+                expected = fallback.level_dbc[m, n]
+                if expected > FLOOR_DBC:
+                    expected -= (m - 1) * 10.0
+                assert table.level_dbc[m, n] == pytest.approx(expected, abs=1e-12), (m, n)
+            else:
+                assert table.measured[m, n] and table.level_dbc[m, n] == value, (m, n)
+    # The note lists exactly the blank cells of order <= 5 (blanks found by pandas, row order).
+    blanks = [(m, n) for m in range(6) for n in range(6)
+              if 0 < m + n <= 5 and not table.measured[m, n] and np.isnan(reference.iloc[m, n])]
+    assert len(blanks) >= 3
+    listed = ", ".join(f"({m},{n})" for m, n in blanks)
+    assert table.fallback_note(5) == f"entries {listed} came from the built-in model"
+    assert "made-up partial" in table.description and "built-in" in table.description
+    assert builtin_table("double_balanced", 5).fallback_note(5) is None
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    levels=st.lists(st.floats(min_value=-299.0, max_value=0.0, allow_nan=False), min_size=36, max_size=36),
+    blanks=st.lists(st.booleans(), min_size=36, max_size=36),
+    rf_ref=st.floats(min_value=-50, max_value=20, allow_nan=False),
+)
+def test_csv_round_trip_is_exact(levels, blanks, rf_ref):
+    level = np.array(levels).reshape(6, 6)
+    level[1, 1] = 0.0
+    blank = np.array(blanks).reshape(6, 6)
+    fallback = builtin_table("single_balanced", 5, rf_ref_dbm=rf_ref)
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "t.csv"
+        _write_csv(path, level, blank, rf_ref, 7.0)
+        table = read_table_csv(path, fallback=fallback)
+    measured = ~blank
+    measured[0, 0] = False
+    np.testing.assert_array_equal(table.measured, measured)
+    np.testing.assert_array_equal(table.level_dbc[measured], level[measured])
+    np.testing.assert_array_equal(table.level_dbc[~measured], fallback.level_dbc[~measured])  # same reference
+
+
+def _csv(body: str) -> str:
+    return "# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,1,2\n" + body
+
+
+@pytest.mark.parametrize(("text", "fragments"), [
+    (_csv("0,,-30,-40\n1,-20,0,abc\n"), ["t.csv line 5 (m=1, n=2)", "'abc'"]),
+    (_csv("1,-20,0,nan\n"), ["(m=1, n=2)", "'nan'"]),
+    (_csv("1,-20,0,-1e999\n"), ["(m=1, n=2)", "'-1e999'"]),
+    (_csv("1,-20,0,__import__('os')\n"), ["(m=1, n=2)", "__import__"]),  # never evaluated
+    (_csv("1,-20,0,-3+4\n"), ["(m=1, n=2)", "'-3+4'"]),
+    (_csv("1,-20,0,-30\n2,-50\n1,-21\n"), ["line 6 row index (RF harmonic m)", "'1'", "once"]),
+    (_csv("1.5,-20,0,-30\n"), ["line 4 row index", "'1.5'"]),
+    (_csv("-1,-20,0,-30\n"), ["line 4 row index", "'-1'"]),
+    (_csv("x,-20,0,-30\n"), ["row index", "'x'"]),
+    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,1,1\n1,-2,0,-3\n", ["header cell 4 (LO harmonic n)", "'1'"]),
+    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,one\n", ["header cell 3", "'one'"]),
+    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,-2\n", ["header cell 3", "'-2'"]),
+    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm,0,1\n1,-3,0\n", ["line 3 header", "'m,0,1'"]),
+    ("# lo_ref_dbm = 7\nm\\n,0,1\n1,-3,0\n", ["setting rf_ref_dbm", "None"]),
+    ("# rf_ref_dbm = -10\nm\\n,0,1\n1,-3,0\n", ["setting lo_ref_dbm"]),
+    ("# rf_ref_dbm = minus ten\n# lo_ref_dbm = 7\nm\\n,0,1\n1,-3,0\n", ["setting rf_ref_dbm", "'minus ten'"]),
+    ("# rf_ref_dBm = -10\n# lo_ref_dbm = 7\nm\\n,0,1\n1,-3,0\n", ["line 1 setting", "'rf_ref_dBm'"]),
+    ("# lo_ref_dbm = 7\n# lo_ref_dbm = 8\n# rf_ref_dbm = 0\nm\\n,0,1\n", ["line 2 setting", "'lo_ref_dbm'"]),
+    (_csv("1,-20,-1,-30\n"), ["(m=1, n=1)", "'-1'", "0 dBc"]),
+    (_csv("2,-20,5,-30\n"), ["(m=2, n=1)", "'5'", "<= 0 dBc"]),
+    (_csv("2,-20,-400,-30\n"), ["(m=2, n=1)", "'-400'"]),
+    (_csv("0,-3,-20,-30\n"), ["(m=0, n=0)", "'-3'", "not a product"]),
+    (_csv("1,-20,0,-30,-40\n"), ["line 4 (m=1)", "'4 cells'"]),
+    (_csv(""), ["no data rows"]),
+    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\n", ["no header row"]),
+    (_csv("1,-20,0,-30\n# late note\n"), ["line 5", "'# late note'", "before the header"]),
+])
+def test_malformed_csv_raises_one_line_error_naming_the_place_and_value(tmp_path, text, fragments):
+    path = tmp_path / "t.csv"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(LevelTableError) as info:
+        read_table_csv(path, fallback=builtin_table("double_balanced", 3))
+    message = str(info.value)
+    assert "\n" not in message and "is invalid" in message
+    for fragment in fragments:
+        assert fragment in message, (fragment, message)
+
+
+def test_csv_unreadable_files(tmp_path):
+    fallback = builtin_table("double_balanced", 3)
+    with pytest.raises(LevelTableError, match=r"^table: .*missing\.csv.* is invalid"):
+        read_table_csv(tmp_path / "missing.csv", fallback=fallback)
+    binary = tmp_path / "binary.csv"
+    binary.write_bytes(b"\xff\xfe\x00garbage")
+    with pytest.raises(LevelTableError, match="UTF-8"):
+        read_table_csv(binary, fallback=fallback)
+
+
+def test_csv_tolerates_notes_padding_short_rows_and_out_of_range_entries(tmp_path):
+    path = tmp_path / "t.csv"
+    path.write_text(
+        "\ufeff# bench notes: T = 25 C, unit 3\n# rf_ref_dbm = 0\n# lo_ref_dbm = 7\n\n"
+        "m\\n,0,1,2,9,,\n1,-20,0,,-70,,\n3,-50,-40\n9,,-95\n", encoding="utf-8")
+    fallback = builtin_table("double_balanced", 4)
+    table = read_table_csv(path, fallback=fallback)
+    assert table.max_harmonic == 4 and "2 entries beyond harmonic 4 not kept" in table.description
+    assert table.level_dbc[1, 0] == -20.0 and table.level_dbc[3, 1] == -40.0 and table.measured[3, 0]
+    assert not table.measured[3, 2] and table.level_dbc[3, 2] == fallback.level_dbc[3, 2]  # same 0 dBm ref
+
+
+# ---------------------------------------------------------------------------- spec and build_table
+def test_mixer_spec_defaults_json_and_strictness():
+    spec = MixerSpec()
+    assert (spec.topology, spec.table, spec.rf_ref_dbm, spec.lo_drive_dbm, spec.balance_db) == (
+        "double_balanced", "builtin", 0.0, 7.0, 30.0)  # documented defaults, common practice, no source
+    assert MixerSpec.model_validate_json(spec.model_dump_json()) == spec
+    for bad in ({"balance_db": -1}, {"extra_key": 1}, {"topology": "ring"}, {"table": "Builtin"},
+                {"table": "levels.txt"}, {"lo_drive_dbm": "7"}, {"rf_ref_dbm": True},
+                {"conversion_loss_db": float("nan")}):
+        with pytest.raises(ValidationError):
+            MixerSpec.model_validate(bad)
+    with pytest.raises(ValidationError):
+        spec.balance_db = 3.0  # frozen
+
+
+def test_build_table_builtin_and_relative_csv(tmp_path):
+    spec = MixerSpec(topology="single_balanced", balance_db=25.0, conversion_loss_db=6.0)
+    table = build_table(spec, 5)
+    expected = builtin_table("single_balanced", 5, balance_db=25.0, conversion_loss_db=6.0)
+    np.testing.assert_array_equal(table.level_dbc, expected.level_dbc)
+    assert table.conversion_loss_db == 6.0 and not table.measured.any()
+    (tmp_path / "tables").mkdir()
+    (tmp_path / "tables" / "x.csv").write_text(PARTIAL_CSV.read_text(encoding="utf-8"), encoding="utf-8")
+    from_csv = build_table(MixerSpec(table="tables/x.csv", lo_drive_dbm=10.0), 5, base_dir=tmp_path)
+    reference = pd.read_csv(PARTIAL_CSV, comment="#", index_col=0)  # independent parser
+    assert from_csv.measured.sum() == reference.notna().to_numpy().sum() and from_csv.rf_ref_dbm == -10.0
+    assert any("LO drive 10 dBm" in w for w in from_csv.drive_warnings(-10.0, 10.0))
+    with pytest.raises(LevelTableError, match="x.csv"):
+        build_table(MixerSpec(table="tables/x.csv"), 5, base_dir=tmp_path / "elsewhere")
+    absolute = MixerSpec(table=str(tmp_path / "tables" / "x.csv"))  # an absolute path ignores base_dir
+    assert build_table(absolute, 5, base_dir=tmp_path / "elsewhere").measured.any()
+
+
+@pytest.mark.parametrize(("kwargs", "field"), [
+    ({"max_order": 0}, "max_order"), ({"max_order": True}, "max_order"), ({"max_order": 2.0}, "max_order"),
+    ({"balance_db": -1.0}, "balance_db"), ({"balance_db": float("nan")}, "balance_db"),
+    ({"rf_harmonic_step_db": -5.0}, "rf_harmonic_step_db"), ({"topology": "ring"}, "topology"),
+    ({"conversion_loss_db": float("inf")}, "conversion_loss_db"), ({"lo_ref_dbm": float("nan")}, "lo_ref_dbm"),
+])
+def test_builtin_table_rejects_bad_arguments(kwargs, field):
+    args = {"topology": "double_balanced", "max_order": 5} | kwargs
+    with pytest.raises(LevelTableError, match=rf"^{field}: .* is invalid"):
+        builtin_table(args.pop("topology"), args.pop("max_order"), **args)
+
+
+def test_level_table_validates_and_is_read_only():
+    good = builtin_table("double_balanced", 3)
+    with pytest.raises(LevelTableError, match=r"level_dbc\[1, 1\]"):
+        LevelTable(good.level_dbc - 1.0, good.measured, 0.0, 7.0, 3.9, "double_balanced", "x")
+    with pytest.raises(LevelTableError, match="level_dbc.shape"):
+        LevelTable(np.zeros((3, 4)), np.zeros((3, 4), bool), 0.0, 7.0, 3.9, "double_balanced", "x")
+    bad = good.level_dbc.copy()
+    bad[2, 3] = np.nan
+    with pytest.raises(LevelTableError, match=r"level_dbc\[2, 3\]"):
+        LevelTable(bad, good.measured, 0.0, 7.0, 3.9, "double_balanced", "x")
+    with pytest.raises(ValueError, match="read-only"):
+        good.level_dbc[2, 1] = 0.0
+    frame = good.to_frame()
+    assert frame.shape == (4, 4) and frame.index.name == "m" and frame.columns.name == "n"
+    assert np.isnan(frame.loc[0, 0]) and frame.loc[1, 1] == 0.0
+
+
+# ---------------------------------------------------------------------------- properties
+@settings(max_examples=60, deadline=None)
+@given(
+    topology=st.sampled_from(TOPOLOGIES),
+    m=st.integers(0, 7), n=st.integers(0, 7),
+    drive_a=st.floats(-80, 30), drive_b=st.floats(-80, 30),
+)
+def test_level_is_linear_in_drive_with_slope_m_minus_one(topology, m, n, drive_a, drive_b):
+    # Rule (power-series nonlinearity, standard intermodulation result): slope m - 1 dB/dB,
+    # down to the floor, where vanished products stay.
+    table = builtin_table(topology, 7)
+    slope = 0.0 if table.level_dbc[m, n] <= FLOOR_DBC else m - 1.0
+    a, b = table.level_dbc_at(m, n, drive_a), table.level_dbc_at(m, n, drive_b)
+    assert a == pytest.approx(max(table.level_dbc[m, n] + slope * (drive_a - table.rf_ref_dbm), FLOOR_DBC))
+    if a > FLOOR_DBC and b > FLOOR_DBC:
+        assert b - a == pytest.approx(slope * (drive_b - drive_a), abs=1e-9)
+
+
+@settings(max_examples=40, deadline=None)
+@given(topology=st.sampled_from(TOPOLOGIES), low=st.floats(0, 60), extra=st.floats(0, 60))
+def test_more_balance_never_raises_a_level(topology, low, extra):
+    # Follows from the rule "cancelled product = unbalanced level - balance_db" (no source needed).
+    weak, strong = (builtin_table(topology, 6, balance_db=b).level_dbc for b in (low, low + extra))
+    assert np.all(strong <= weak) and strong[1, 1] == 0.0
+
+
+def test_levels_module_imports_no_plotting_or_widget_library():
+    code = ("import sys, mixchart.levels; "
+            "bad = [m for m in sys.modules if m.split('.')[0] in ('bokeh', 'ipywidgets', 'jupyter_bokeh')]; "
+            "sys.exit(repr(bad) if bad else 0)")
+    root = Path(__file__).parents[1]
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=root, check=False)
+    assert result.returncode == 0, result.stderr
