@@ -755,6 +755,7 @@ class PlannerApp:
         def handler(_attr: str, _old: Any, new: dict[str, Any]) -> None:
             if self._syncing:
                 return  # our own push into the source
+            self.chart.last.pop(name, None)  # the browser changed it: our copy is stale
             keys = ("y0", "y1") if name == "out_output_band" else ("x0", "x1")
             try:
                 low, high = float(new[keys[0]][-1]), float(new[keys[1]][-1])

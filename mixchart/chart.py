@@ -67,6 +67,7 @@ _TINT_IN = "#56B4E9"  # input-side filter / band
 _TINT_OUT = "#009E73"  # output-side filter / band
 _TINT_MAX_ALPHA = 0.30
 _MAX_PLAN_POINTS = 2000
+_EMPTY_SKIRT: dict[str, Any] = {"x0": np.zeros(0), "x1": np.zeros(0), "alpha": np.zeros(0), "atten_db": np.zeros(0)}
 
 
 @dataclass(frozen=True)
@@ -109,13 +110,9 @@ def _style(categories: np.ndarray) -> dict[str, list]:
     return {
         "category": list(categories),
         "color": [CATEGORIES[c][1] for c in categories],
-        "width": [_WIDTH[c] for c in categories],
-        "alpha": [_ALPHA[c] for c in categories],
+        "width": np.array([_WIDTH[c] for c in categories], dtype=float),
+        "alpha": np.array([_ALPHA[c] for c in categories], dtype=float),
     }
-
-
-def _db_text(value: float) -> str:
-    return "vanishes" if value <= FLOOR_DBC + 1 else f"{value:.1f}"
 
 
 def _pad(lo: float, hi: float, frac: float, floor: float) -> tuple[float, float]:
@@ -232,12 +229,12 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     sources["tuning_strips"] = {
         "xs": [strips.xs[k] / scale for k in idx],
         "ys": [strips.ys[k] / scale for k in idx],
-        "m": strips.rf_harmonic[idx].tolist(),
-        "n": strips.lo_harmonic[idx].tolist(),
+        "m": strips.rf_harmonic[idx].astype(np.int32),
+        "n": strips.lo_harmonic[idx].astype(np.int32),
         "label": [labels[k] for k in idx],
-        "level": [_db_text(v) for v in intrinsic[idx]],
+        "level": intrinsic[idx].astype(float),
         **style,
-        "fill_alpha": [_STRIP_ALPHA[c] for c in cats[idx]],
+        "fill_alpha": np.array([_STRIP_ALPHA[c] for c in cats[idx]], dtype=float),
     }
     step = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
     sources["tuning_plan"] = {
@@ -252,7 +249,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "y": ev.lo_hz[bad] / scale,
         "label": [f"{r.label} ({r.rf_harmonic},{r.lo_harmonic})" for r in wr.itertuples()],
         "channel": [format_frequency(f) for f in ev.channels_hz[bad]],
-        "margin": [f"{v:+.1f}" for v in ev.worst_margin_db[bad]],
+        "margin": ev.worst_margin_db[bad].astype(float),
         **_style(worst_cat[bad]),
     }
     sources["tuning_now"] = {
@@ -283,7 +280,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         sources["tuning_skirt"] = (
             _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
             if ctx_rf is not None
-            else {"x0": [], "x1": [], "alpha": [], "atten_db": []}
+            else _EMPTY_SKIRT
         )
     else:
         sources["tuning_skirt"] = _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
@@ -304,13 +301,13 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "y0": lines.y0[k],
         "x1": lines.x1[k],
         "y1": lines.y1[k],
-        "m": lines.rf_harmonic[k].tolist(),
-        "n": lines.lo_harmonic[k].tolist(),
+        "m": lines.rf_harmonic[k].astype(np.int32),
+        "n": lines.lo_harmonic[k].astype(np.int32),
         "label": [
             f"({m},{n}) {'wanted' if w else 'sum' if s > 0 else 'difference'}"
             for m, n, s, w in zip(lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k])
         ],
-        "level": [_db_text(v) for v in line_level[k]],
+        "level": line_level[k].astype(float),
         **_style(line_cat[k]),
     }
     # actual products of the current channel and responses, after the filters
@@ -331,7 +328,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "y": py / o_scale,
         **_point_columns(prod),
         **_style(p_cat),
-        "size": [14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat],
+        "size": np.array([14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat], dtype=float),
     }
     if_band = (plan.if_.lo_hz, plan.if_.hi_hz)
     if down:
@@ -347,7 +344,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     in_skirt = (
         _skirt(in_filter, out_win[0], out_win[1], ch, in_pass, req, o_scale)
         if in_filter is not None
-        else {"x0": [], "x1": [], "alpha": [], "atten_db": []}
+        else _EMPTY_SKIRT
     )
     out_skirt = _skirt(out_filter, out_win[2], out_win[3], ch, out_pass, req, o_scale)
     sources["out_input_skirt"] = in_skirt
@@ -385,13 +382,14 @@ def _point_in_convex(xs: np.ndarray, ys: np.ndarray, x: float, y: float) -> bool
 
 def _point_columns(rows) -> dict[str, list]:
     return {
-        "m": rows["rf_harmonic"].tolist(),
-        "n": rows["lo_harmonic"].tolist(),
+        "m": rows["rf_harmonic"].to_numpy(np.int32),
+        "n": rows["lo_harmonic"].to_numpy(np.int32),
         "label": rows["label"].tolist(),
         "kind": rows["kind"].tolist(),
         "freq": [format_frequency(f, 7) for f in rows["f_center_hz"]],
-        "level": [_db_text(v) for v in rows["level_dbc"]],
-        "margin": ["—" if not math.isfinite(v) else f"{v:+.1f}" for v in rows["margin_db"]],
+        "level": rows["level_dbc"].to_numpy(float),
+        # the wanted row has no margin (inf): shown as NaN
+        "margin": np.where(np.isfinite(rows["margin_db"].to_numpy(float)), rows["margin_db"].to_numpy(float), np.nan),
     }
 
 
@@ -423,6 +421,7 @@ class ChartHandle:
     band_edit: Any
     band_edit_tuning: Any
     windows: dict[str, tuple[float, ...]] = field(default_factory=dict)
+    last: dict[str, dict[str, Any]] = field(default_factory=dict)
 
 
 def legend_html() -> str:
@@ -444,8 +443,8 @@ _HOVER_POINTS = [
     ("product", "(@m,@n) @label"),
     ("kind", "@kind"),
     ("frequency", "@freq"),
-    ("level", "@level dBc"),
-    ("margin", "@margin dB"),
+    ("level", "@level{0.0} dBc"),
+    ("margin", "@margin{+0.0} dB"),
 ]
 
 
@@ -521,8 +520,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         line_color="#1A1A1A", line_width=2.5, name="current_channel",
     )
     tuning.add_tools(
-        HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("level in IF", "@level dBc")]),
-        HoverTool(renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin dB")]),
+        HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("level in IF", "@level{0.0} dBc")]),
+        HoverTool(renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]),
         HoverTool(renderers=[pts_t], tooltips=_HOVER_POINTS),
     )
     edit_t = BoxEditTool(renderers=[band_t], dimensions="width", num_objects=1, description="Drag the RF band")
@@ -551,7 +550,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     )
     output.add_tools(
         HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
-        HoverTool(renderers=[segs], tooltips=[("product", "@label"), ("level in band", "@level dBc")], line_policy="nearest"),
+        HoverTool(renderers=[segs], tooltips=[("product", "@label"), ("level in band", "@level{0.0} dBc")], line_policy="nearest"),
     )
     edit = BoxEditTool(
         renderers=[out_band, in_band], dimensions="both", num_objects=1, description="Drag the passband or the input band"
@@ -564,6 +563,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     layout = column(legend, row(tuning, output), name="mixchart_chart")
     handle = ChartHandle(layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t)
     handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
+    handle.last = dict(data.sources)
     return handle
 
 
@@ -584,7 +584,10 @@ def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = F
         Re-apply the windows even if unchanged.
     """
     for name, cols in data.sources.items():
+        if _same(handle.last.get(name), cols):
+            continue  # no event, no message
         handle.sources[name].data = dict(cols)
+        handle.last[name] = cols
     meta = data.meta
     _set(handle.tuning.title, "text", meta["tuning_title"])
     _set(handle.output.title, "text", meta["output_title"])
@@ -598,6 +601,26 @@ def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = F
             fig.x_range.start, fig.x_range.end = win[0], win[1]
             fig.y_range.start, fig.y_range.end = win[2], win[3]
             handle.windows[key] = win
+
+
+def _same(old: dict[str, Any] | None, new: dict[str, Any]) -> bool:
+    """True when two column dicts hold equal data (so re-sending can be skipped)."""
+    if old is None or old.keys() != new.keys():
+        return False
+    for key, a in old.items():
+        b = new[key]
+        if isinstance(a, np.ndarray) and isinstance(b, np.ndarray):
+            if a.shape != b.shape or not np.array_equal(a, b, equal_nan=a.dtype.kind == "f"):
+                return False
+        elif isinstance(a, list) and isinstance(b, list) and len(a) == len(b):
+            if a and isinstance(a[0], np.ndarray):
+                if not all(np.array_equal(x, y) for x, y in zip(a, b)):
+                    return False
+            elif a != b:
+                return False
+        else:
+            return False
+    return True
 
 
 def _set(model: Any, attr: str, value: Any) -> None:
