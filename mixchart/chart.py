@@ -293,6 +293,11 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     line_cat = _category(-line_level - req).astype(object)
     wanted_sign = 1 if (ev.f_wanted_out_hz[index] > lo_now and down) or (not down and ch > lo_now) else -1
     is_wanted = (lines.rf_harmonic == 1) & (lines.lo_harmonic == 1) & (lines.sign == wanted_sign)
+    # The difference is a V of two arms; only the arm through the wanted input is the wanted conversion.
+    x_w = (ch if down else abs(ch - lo_now)) / o_scale
+    on_arm = (np.minimum(lines.x0, lines.x1) <= x_w * (1 + 1e-9)) & (np.maximum(lines.x0, lines.x1) >= x_w * (1 - 1e-9))
+    image_arm = is_wanted & ~on_arm
+    is_wanted &= on_arm
     line_cat[is_wanted] = "wanted"
     keep = (line_level > FLOOR_DBC + 1) & ((line_cat != "clear") | opts.show_clear)
     k = np.flatnonzero(keep)
@@ -304,8 +309,10 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "m": lines.rf_harmonic[k].astype(np.int32),
         "n": lines.lo_harmonic[k].astype(np.int32),
         "label": [
-            f"({m},{n}) {'wanted' if w else 'sum' if s > 0 else 'difference'}"
-            for m, n, s, w in zip(lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k])
+            f"({m},{n}) {'wanted' if w else 'image arm' if im and down else 'sum' if s > 0 else 'difference'}"
+            for m, n, s, w, im in zip(
+                lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k], image_arm[k]
+            )
         ],
         "level": line_level[k].astype(float),
         **_style(line_cat[k]),
@@ -369,7 +376,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
             f"Output plane at LO {format_frequency(lo_now)} (channel {format_frequency(ch)})"
             + (", normalised to LO" if opts.normalised else "")
         ),
-        "tuning_title": "Tuning plane: products landing in the IF" if down else "Tuning plane: products landing on the RF",
+        "tuning_title": "Tuning plane: RF against LO",
         "direction": plan.direction,
     }
     return ChartData(sources=sources, meta=meta)
@@ -506,11 +513,11 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         xs="xs", ys="ys", source=src["tuning_strips"], fill_color="color", fill_alpha="fill_alpha",
         line_color="color", line_alpha="alpha", line_width=1, name="strips",
     )
-    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2.5, name="plan_line")
     marks = tuning.scatter(
-        x="x", y="y", source=src["tuning_marks"], marker="square", size=5, fill_color="color",
-        line_color="color", name="channel_marks",
+        x="x", y="y", source=src["tuning_marks"], marker="square", size=9, fill_color="color",
+        fill_alpha=0.55, line_color="color", name="channel_marks",
     )
+    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2, name="plan_line")
     pts_t = tuning.scatter(
         x="x", y="y", source=src["tuning_points"], size=9, fill_color="color", line_color="#1A1A1A",
         line_width=0.5, marker="diamond", name="tuning_points",
