@@ -1019,11 +1019,33 @@ def _batched_model_class() -> type:
                 descriptor = model.lookup(attr)
                 new = descriptor.property.prepare_value(model, descriptor.name, event["new"])
                 old = descriptor._get(model)
+                if _same_value(old, new):
+                    return  # jupyter_bokeh echoes our own pushes back: nothing changed
                 descriptor._set(model, old, new, setter=self)  # fires on_change callbacks once
                 return
             super()._sync_model(_model, content, _buffers)
 
     return _Batched
+
+
+def _same_value(old: Any, new: Any) -> bool:
+    """Equality that understands column dicts of lists and numpy arrays."""
+    if isinstance(old, dict) and isinstance(new, dict):
+        if old.keys() != new.keys():
+            return False
+        return all(_same_value(old[k], new[k]) for k in old)
+    if isinstance(old, (list, tuple, np.ndarray)) or isinstance(new, (list, tuple, np.ndarray)):
+        try:
+            a, b = np.asarray(old), np.asarray(new)
+        except ValueError:  # ragged (e.g. patches' xs): compare item by item
+            return len(old) == len(new) and all(_same_value(x, y) for x, y in zip(old, new))
+        if a.dtype == object or b.dtype == object:
+            return len(old) == len(new) and all(_same_value(x, y) for x, y in zip(old, new))
+        return a.shape == b.shape and bool(np.array_equal(a, b))
+    try:
+        return bool(old == new)
+    except Exception:  # noqa: BLE001 - exotic values: treat as changed
+        return False
 
 
 _BATCHED: type | None = None

@@ -121,6 +121,11 @@ def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0, open_brows
     if plan_path is not None:
         env["MIXCHART_PLAN"] = str(Path(plan_path).resolve())
     process = subprocess.Popen(voila_command(notebook, port), env=env, cwd=folder, start_new_session=True)
+
+    def _stop(_signum: int, _frame: Any) -> None:
+        raise KeyboardInterrupt  # run the clean-up below on SIGTERM too
+
+    previous = signal.signal(signal.SIGTERM, _stop)
     try:
         if not _wait_for_port(port, process):
             print("mixchart: error: Voila did not start", file=sys.stderr)
@@ -131,6 +136,7 @@ def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0, open_brows
     except KeyboardInterrupt:
         return 0
     finally:
+        signal.signal(signal.SIGTERM, previous)
         if process.poll() is None:
             os.killpg(process.pid, signal.SIGTERM)
             try:
