@@ -207,8 +207,18 @@ class Evaluation:
         if not 0 <= index < self.channels_hz.size:
             raise IndexError(f"channel index {index} is out of range 0..{self.channels_hz.size - 1}")
         block = _evaluate_block(self._context, slice(index, index + 1))
-        frame = _frame(block, np.ones_like(block["margin_db"], dtype=bool))
+        frame = _frame(block, np.ones_like(block.margin_db, dtype=bool))
         return frame.sort_values("margin_db", kind="stable").reset_index(drop=True)
+
+    @property
+    def level_table(self) -> LevelTable:
+        """The mixer level table the evaluation used."""
+        return self._context.table
+
+    @property
+    def filters(self) -> tuple[Filter | None, Filter | None]:
+        """The built ``(rf, if)`` filters (None where the plan describes none)."""
+        return self._context.rf_filter, self._context.if_filter
 
     def nearest_channel(self, f_hz: float) -> int:
         """Index of the channel closest to ``f_hz`` (Hz)."""
@@ -295,8 +305,55 @@ def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, cent
     return a - a_ref
 
 
-def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
-    """Products and responses of the channels ``rows``: a dict of (Cb, K) arrays."""
+class _Derived:
+    """A (Cb, K) float column computed only at the (row, column) pairs asked for."""
+
+    dtype = np.dtype(float)
+
+    def __init__(self, fn, *arrays: np.ndarray) -> None:
+        self.fn = fn
+        self.arrays = arrays
+
+    def __getitem__(self, index) -> np.ndarray:
+        return self.fn(*(array[index] for array in self.arrays))
+
+
+class _Block:
+    """Products (and, for a receiver, responses) of a block of channels.
+
+    ``parts`` holds one dict of columns per family (products, then responses);
+    each column is a (Cb, K_i) array or a read-only broadcast view, so nothing
+    is copied to join the two families.  ``margin_db`` is the joined (Cb, K)
+    margin that the reductions need; :meth:`take` gathers the rows asked for.
+    """
+
+    def __init__(self, parts: list[dict[str, np.ndarray]]) -> None:
+        self.parts = parts
+        self.widths = [part["margin_db"].shape[1] for part in parts]
+        margins = [part["margin_db"] for part in parts]
+        self.margin_db = margins[0] if len(margins) == 1 else np.concatenate(margins, axis=1)
+
+    def take(self, rows: np.ndarray, cols: np.ndarray) -> dict[str, np.ndarray]:
+        """Columns at the (row, column) pairs, in the order given (column index into the joined block)."""
+        if len(self.parts) == 1:
+            return {k: np.asarray(v[rows, cols]) for k, v in self.parts[0].items()}
+        first, second = self.parts
+        k0 = self.widths[0]
+        in_first = cols < k0
+        r0, c0 = rows[in_first], cols[in_first]
+        r1, c1 = rows[~in_first], cols[~in_first] - k0
+        out: dict[str, np.ndarray] = {}
+        for key, a in first.items():
+            b = second[key]
+            values = np.empty(rows.size, dtype=np.result_type(a.dtype, b.dtype))
+            values[in_first] = a[r0, c0]
+            values[~in_first] = b[r1, c1]
+            out[key] = values
+        return out
+
+
+def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
+    """Products and responses of the channels ``rows``."""
     plan = ctx.plan
     req = plan.requirement.min_rejection_db
     ch = ctx.channels_hz[rows]
@@ -312,8 +369,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
     pf = product_family(plan.max_order)
     p_center, p_low, p_high = product_bands(f_in, lo, plan.signal.bandwidth_hz, pf)
     in_band = overlaps(p_low, p_high, ctx.out_low_hz, ctx.out_high_hz)
-    out_centre = 0.5 * (ctx.out_low_hz + ctx.out_high_hz)
-    nearest = np.clip(out_centre, p_low, p_high)
+    shape = p_center.shape
     if down:
         input_filter, output_filter, out_filter_centre = ctx.rf_filter, ctx.if_filter, None
         in_filter_centre = ch
@@ -325,29 +381,34 @@ def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
         drive = sig_dbm - input_filter.atten_db(f_in, c)
     else:
         drive = np.full(nb, sig_dbm)
-    table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], plan.mixer.rf_ref_dbm)
-    table_p = np.broadcast_to(table_p, p_center.shape)
+    table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
+    table_p = np.broadcast_to(table_p, shape)
     p_level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive[:, None])
     if output_filter is None:
+        # No output filter: an ideal brick wall over the output passband.
         out_atten = np.where(in_band, 0.0, np.inf)
     else:
+        out_centre = 0.5 * (ctx.out_low_hz + ctx.out_high_hz)
+        nearest = np.clip(out_centre, p_low, p_high)
         c = None if out_filter_centre is None else out_filter_centre[:, None]
         out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c)
     p_level = p_level - out_atten
     p_labels = product_labels(pf, plan.direction, sign)
     p_wanted = p_labels == WANTED
-    p_margin = np.where(p_wanted, np.inf, -p_level - req)
+    p_margin = -p_level - req
+    p_margin[p_wanted] = np.inf
     p_fail = p_margin < 0
-    zero = np.zeros_like(p_level)
+    zero = np.broadcast_to(0.0, shape)
+    nan = np.broadcast_to(np.nan, shape)
     extra_out = np.where(p_fail & ~in_band, -p_margin, np.nan)
-    block = {
-        "kind": np.zeros(p_level.shape, dtype=np.int8),
+    products = {
+        "kind": np.broadcast_to(np.int8(0), shape),
         "label": p_labels,
-        "rf_harmonic": np.broadcast_to(pf.rf_harmonic, p_level.shape),
-        "lo_harmonic": np.broadcast_to(pf.lo_harmonic, p_level.shape),
-        "sign": np.broadcast_to(pf.sign, p_level.shape),
-        "channel_hz": np.broadcast_to(ch[:, None], p_level.shape),
-        "lo_hz": np.broadcast_to(lo[:, None], p_level.shape),
+        "rf_harmonic": np.broadcast_to(pf.rf_harmonic, shape),
+        "lo_harmonic": np.broadcast_to(pf.lo_harmonic, shape),
+        "sign": np.broadcast_to(pf.sign, shape),
+        "channel_hz": np.broadcast_to(ch[:, None], shape),
+        "lo_hz": np.broadcast_to(lo[:, None], shape),
         "f_center_hz": p_center,
         "f_low_hz": p_low,
         "f_high_hz": p_high,
@@ -356,18 +417,23 @@ def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
         "rf_atten_db": zero if down else out_atten,
         "if_atten_db": out_atten if down else zero,
         "level_dbc": p_level,
-        "rejection_db": -p_level,
+        "rejection_db": _Derived(np.negative, p_level),
         "margin_db": p_margin,
-        "extra_rf_db": np.full_like(p_level, np.nan) if down else extra_out,
-        "extra_if_db": extra_out if down else np.full_like(p_level, np.nan),
+        "extra_rf_db": nan if down else extra_out,
+        "extra_if_db": extra_out if down else nan,
     }
     if not down:
-        return block
+        return _Block([products])
 
     # ---- receiver spurious responses
     rfam = response_family(plan.max_order)
     r_center, r_low, r_high = response_bands(lo, plan.if_.lo_hz, plan.if_.hi_hz, rfam)
-    wanted_branch = np.where(ch > lo, 1, -1)
+    shape = r_center.shape
+    zero = np.broadcast_to(0.0, shape)
+    nan = np.broadcast_to(np.nan, shape)
+    # The wanted input is on the (1,1) branch +1, (f_LO + f_IF), only for a difference
+    # conversion with the LO below the channel; otherwise it is |f_LO - f_IF| (branch -1).
+    wanted_branch = np.where((sign < 0) & (ch > lo), 1, -1)
     r_labels = response_labels(rfam, wanted_branch)
     m = rfam.rf_harmonic[None, :]
     u_dbm = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else sig_dbm
@@ -377,25 +443,24 @@ def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
         c = ch[:, None] if ctx.rf_filter.tracks_channel else None
         a_in = ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape))
         a_w = ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None)[:, None]
+        mixer_drive = u_dbm - a_in
     else:
-        a_in = np.zeros(r_center.shape)
+        a_in = np.broadcast_to(0.0, shape)
         a_w = np.zeros((nb, 1))
-    table_r = np.broadcast_to(
-        ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], plan.mixer.rf_ref_dbm),
-        r_center.shape,
-    )
-    mixer_drive = u_dbm - a_in
+        mixer_drive = np.broadcast_to(u_dbm - 0.0, (nb, 1))
+    table_r = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     r_level = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], mixer_drive)
     r_level = r_level - a_in + a_w + (u_dbm - sig_dbm)
-    rel_rf = r_level - table_r  # what the drive and filter did, for display
+    r_level = np.broadcast_to(r_level, shape)
+    table_r = np.broadcast_to(table_r, shape)
     r_wanted = r_labels == WANTED
-    r_margin = np.where(r_wanted, np.inf, -r_level - req)
+    r_margin = -r_level - req
+    r_margin[r_wanted] = np.inf
     r_fail = r_margin < 0
     rf_helps = np.isfinite(a_in) & (m > 0)
     extra_rf = np.where(r_fail & rf_helps, -r_margin / m, np.nan)
-    shape = r_center.shape
     responses = {
-        "kind": np.ones(shape, dtype=np.int8),
+        "kind": np.broadcast_to(np.int8(1), shape),
         "label": r_labels,
         "rf_harmonic": np.broadcast_to(rfam.rf_harmonic, shape),
         "lo_harmonic": np.broadcast_to(rfam.lo_harmonic, shape),
@@ -405,21 +470,32 @@ def _evaluate_block(ctx: _Context, rows: slice) -> dict[str, np.ndarray]:
         "f_center_hz": r_center,
         "f_low_hz": r_low,
         "f_high_hz": r_high,
-        "in_band": np.ones(shape, dtype=bool),
+        "in_band": np.broadcast_to(True, shape),
         "table_dbc": table_r,
-        "rf_atten_db": -rel_rf,
-        "if_atten_db": np.zeros(shape),
+        # what the drive and the filter did, for display: -(level - table)
+        "rf_atten_db": _Derived(lambda level, table: -(level - table), r_level, table_r),
+        "if_atten_db": zero,
         "level_dbc": r_level,
-        "rejection_db": -r_level + (u_dbm - sig_dbm),
+        "rejection_db": _Derived(lambda level: -level + (u_dbm - sig_dbm), r_level),
         "margin_db": r_margin,
         "extra_rf_db": extra_rf,
-        "extra_if_db": np.full(shape, np.nan),
+        "extra_if_db": nan,
     }
-    return {k: np.concatenate([np.asarray(block[k]), np.asarray(responses[k])], axis=1) for k in block}
+    return _Block([products, responses])
 
 
-def _frame(block: dict[str, np.ndarray], mask: np.ndarray) -> pd.DataFrame:
-    data = {k: np.asarray(v)[mask] for k, v in block.items()}
+def _frame(block: _Block, mask: np.ndarray) -> pd.DataFrame:
+    """Frame of the rows where ``mask`` (shape of ``block.margin_db``) is True, in row-major order."""
+    return _frame_at(block, *np.nonzero(mask))
+
+
+def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray) -> pd.DataFrame:
+    """Frame of the given (channel row, product column) pairs, in that order."""
+    return _frame_from(block.take(rows, cols))
+
+
+def _frame_from(data: dict[str, np.ndarray]) -> pd.DataFrame:
+    """Frame (columns :data:`FRAME_COLUMNS`) of gathered block columns."""
     frame = pd.DataFrame(
         {
             "kind": np.where(data["kind"] == 0, "product", "response"),
@@ -437,6 +513,14 @@ def _frame(block: dict[str, np.ndarray], mask: np.ndarray) -> pd.DataFrame:
     frame["extra_rf_db"] = data["extra_rf_db"].astype(float)
     frame["extra_if_db"] = data["extra_if_db"].astype(float)
     return frame[list(FRAME_COLUMNS)]
+
+
+def _concat(parts: list[dict[str, np.ndarray]]) -> dict[str, np.ndarray]:
+    return {k: np.concatenate([part[k] for part in parts]) for k in parts[0]}
+
+
+def _subset(data: dict[str, np.ndarray], index: np.ndarray) -> dict[str, np.ndarray]:
+    return {k: v[index] for k, v in data.items()}
 
 
 def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: int = CHUNK_CHANNELS) -> Evaluation:
@@ -465,39 +549,71 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
     ctx = _build_context(plan, base)
     n_ch = ctx.channels_hz.size
     worst_margin = np.empty(n_ch)
-    worst_rows: list[pd.DataFrame] = []
-    by_product: list[pd.DataFrame] = []
-    hits: list[pd.DataFrame] = []
+    # Per-chunk results stay plain numpy; the frames are built once at the end.
+    worst_cols: dict[str, np.ndarray] = {}  # the worst row of each channel, filled chunk by chunk
+    best_margin = best_channel = best_rows = None  # worst case of each product/response so far
+    hit_parts: list[dict[str, np.ndarray]] = []
     n_hit_rows = 0
     n_kept = 0
-    for start in range(0, n_ch, max(1, int(chunk_channels))):
-        rows = slice(start, min(start + chunk_channels, n_ch))
+    hit_limit = 0.0
+    step = max(1, int(chunk_channels))
+    for start in range(0, n_ch, step):
+        rows = slice(start, min(start + step, n_ch))
         block = _evaluate_block(ctx, rows)
-        margin = block["margin_db"]
+        margin = block.margin_db
+        n_rows, n_cols = margin.shape
+        all_cols = np.arange(n_cols)
         idx = np.argmin(margin, axis=1)
-        worst_margin[rows] = margin[np.arange(margin.shape[0]), idx]
-        pick = np.zeros(margin.shape, dtype=bool)
-        pick[np.arange(margin.shape[0]), idx] = True
-        worst_rows.append(_frame(block, pick))
-        col = np.argmin(margin, axis=0)
-        pick = np.zeros(margin.shape, dtype=bool)
-        pick[col, np.arange(margin.shape[1])] = True
-        pick &= np.isfinite(margin)  # drops the wanted rows
-        by_product.append(_frame(block, pick))
+        worst_margin[rows] = margin[np.arange(n_rows), idx]
+        for key, values in block.take(np.arange(n_rows), idx).items():
+            if key not in worst_cols:
+                worst_cols[key] = np.empty(n_ch, dtype=values.dtype)
+            worst_cols[key][rows] = values
+        # worst channel of each product/response (first channel on ties); infinite margins
+        # (the wanted rows) never count
+        col_rows = np.argmin(margin, axis=0)
+        col_best = margin[col_rows, all_cols]
+        if best_margin is None:
+            best_margin = np.full(n_cols, np.inf)
+            best_channel = np.zeros(n_cols, dtype=np.int64)
+            empty = block.take(col_rows[:0], all_cols[:0])
+            best_rows = {k: np.empty(n_cols, dtype=v.dtype) for k, v in empty.items()}
+        better = np.isfinite(col_best) & (col_best < best_margin)
+        if better.any():
+            cols = np.flatnonzero(better)
+            best_margin[cols] = col_best[cols]
+            best_channel[cols] = start + col_rows[cols]
+            for key, values in block.take(col_rows[cols], cols).items():
+                best_rows[key][cols] = values
+        # failing rows: keep the MAX_HIT_ROWS worst of the whole sweep, ties in channel order
         fail = margin < 0
-        count = int(fail.sum())
+        count = int(np.count_nonzero(fail))
         n_hit_rows += count
-        if count and n_kept < MAX_HIT_ROWS:
-            frame = _frame(block, fail).sort_values("margin_db", kind="stable").head(MAX_HIT_ROWS - n_kept)
-            n_kept += len(frame)
-            hits.append(frame)
-    worst_row = pd.concat(worst_rows, ignore_index=True)
-    keys = ["kind", "rf_harmonic", "lo_harmonic", "sign"]
-    wbp = pd.concat(by_product, ignore_index=True).sort_values("margin_db", kind="stable")
-    wbp = wbp.drop_duplicates(keys, keep="first").reset_index(drop=True)
+        if count:
+            # once MAX_HIT_ROWS are kept, only rows worse than the last kept one can enter
+            fail_rows, fail_cols = np.nonzero(fail if n_kept < MAX_HIT_ROWS else margin < hit_limit)
+            count = fail_rows.size
+            if count > MAX_HIT_ROWS:
+                worst = np.sort(np.argsort(margin[fail_rows, fail_cols], kind="stable")[:MAX_HIT_ROWS])
+                fail_rows, fail_cols = fail_rows[worst], fail_cols[worst]
+            if count:
+                part = block.take(fail_rows, fail_cols)
+                hit_parts.append(_subset(part, np.argsort(part["margin_db"], kind="stable")))
+                n_kept += fail_rows.size
+            if n_kept > MAX_HIT_ROWS:
+                merged = _concat(hit_parts)
+                keep = np.argsort(merged["margin_db"], kind="stable")[:MAX_HIT_ROWS]
+                hit_parts = [_subset(merged, keep)]
+                n_kept = MAX_HIT_ROWS
+                hit_limit = float(hit_parts[0]["margin_db"][-1])
+    worst_row = _frame_from(worst_cols)
+    # each product/response once, by margin; ties in channel, then family, order
+    found = np.flatnonzero(np.isfinite(best_margin))
+    order = found[np.lexsort((found, best_channel[found], best_margin[found]))]
+    wbp = _frame_from(_subset(best_rows, order))
     hit_frame = (
-        pd.concat(hits, ignore_index=True).sort_values("margin_db", kind="stable").reset_index(drop=True)
-        if hits
+        _frame_from(_concat(hit_parts)).sort_values("margin_db", kind="stable").reset_index(drop=True)
+        if hit_parts
         else wbp.iloc[:0].copy()
     )
     inverted = is_inverted(ctx.f_in_hz, ctx.lo_hz, ctx.wanted_sign)

@@ -27,7 +27,7 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
-from .errors import PlanError, SweepTooLargeError
+from .errors import MixchartError, PlanError, SweepTooLargeError
 from .filters import FilterSpec
 from .levels import MixerSpec
 from .units import FrequencyHz, format_frequency
@@ -95,8 +95,13 @@ class RfBand(_Strict):
         """Number of channel centres in the range (no allocation)."""
         if self.step_hz is None or self.stop_hz == self.start_hz:
             return 1
-        count = math.floor((self.stop_hz - self.start_hz) / self.step_hz * (1 + 1e-12) + 1e-9) + 1
-        return int(count)
+        ratio = (self.stop_hz - self.start_hz) / self.step_hz * (1 + 1e-12) + 1e-9
+        if not math.isfinite(ratio):  # e.g. a 1e-310 Hz step: more channels than a float can count
+            raise SweepTooLargeError(
+                f"rf.step_hz: {self.step_hz!r} is invalid; it gives more than {MAX_CHANNELS} channels "
+                f"from {format_frequency(self.start_hz)} to {format_frequency(self.stop_hz)}"
+            )
+        return int(math.floor(ratio)) + 1
 
 
 class Signal(_Strict):
@@ -331,11 +336,37 @@ def _channels_and_lo(plan: Plan) -> tuple[np.ndarray, np.ndarray]:
 # ---------------------------------------------------------------------- JSON
 
 
-def _one_line(exc: ValidationError) -> PlanError:
+def _field_path(loc: tuple[Any, ...], data: Any) -> str:
+    """Dotted field name of a pydantic error location, without discriminated-union tags.
+
+    A tagged union (a filter's ``kind``) adds a level naming the chosen kind
+    (``filters.rf.tuned.q_loaded``); it is not a key of the JSON, so it is dropped
+    (``filters.rf.q_loaded``).
+    """
+    parts: list[str] = []
+    node = data
+    for part in loc:
+        if isinstance(node, dict) and part not in node and node.get("kind") == part:
+            continue  # the union tag
+        parts.append(str(part))
+        if isinstance(node, dict):
+            node = node.get(part)
+        elif isinstance(node, (list, tuple)) and isinstance(part, int) and -len(node) <= part < len(node):
+            node = node[part]
+        else:
+            node = None
+    return ".".join(parts)
+
+
+def _one_line(exc: ValidationError, data: Any = None) -> PlanError:
     errors = exc.errors(include_url=False)
     first = errors[0]
-    loc = ".".join(str(part) for part in first["loc"]) or "plan"
-    # Discriminated-union tags add a level naming the chosen kind; drop it.
+    loc = _field_path(first["loc"], data) or "plan"
+    ctx = first.get("ctx") or {}
+    if isinstance(ctx.get("error"), MixchartError):
+        # A nested model (a filter) names its own field and value: prefix where it sits.
+        more = f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})" if len(errors) > 1 else ""
+        return PlanError((f"{loc}.{ctx['error']}" + more).replace("\n", " "))
     message = first["msg"]
     for prefix in ("Value error, ", "Assertion failed, "):
         if message.startswith(prefix):
@@ -386,7 +417,7 @@ def plan_from_dict(data: Any) -> Plan:
             ctx = err.get("ctx") or {}
             if isinstance(ctx.get("error"), SweepTooLargeError):
                 raise ctx["error"] from None
-        raise _one_line(exc) from None
+        raise _one_line(exc, data) from None
 
 
 def _reject_constant(name: str) -> float:
@@ -430,6 +461,10 @@ def loads_plan(text: str | bytes) -> Plan:
         data = json.loads(text, parse_constant=_reject_constant, object_pairs_hook=_no_duplicates)
     except json.JSONDecodeError as exc:
         raise PlanError(f"plan file: malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
+    except PlanError:
+        raise
+    except ValueError as exc:  # e.g. an integer literal longer than Python's 4300-digit limit
+        raise PlanError(f"plan file: unreadable JSON number ({str(exc).split(':')[0]})") from None
     except RecursionError:
         raise PlanError("plan file: JSON nested too deeply") from None
     return plan_from_dict(data)
@@ -504,11 +539,13 @@ def save_plan(plan: Plan, path: str | os.PathLike[str]) -> Path:
             handle.flush()
             os.fsync(handle.fileno())
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
         except OSError:
             pass
+        if isinstance(exc, OSError):
+            raise PlanError(f"plan file: {str(path)!r} cannot be written ({exc.strerror or exc})") from None
         raise
     return path
 

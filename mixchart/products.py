@@ -248,20 +248,26 @@ def response_bands(
         A band of the ``-1`` branch that straddles ``n·f_lo`` starts at 0 Hz.
     """
     f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
-    m = family.rf_harmonic[None, :].astype(float)
-    n = family.lo_harmonic[None, :]
-    plus = family.branch[None, :] > 0
     if_center = 0.5 * (if_low_hz + if_high_hz)
-    harmonic = n * f_lo
+    shape = (f_lo.shape[0], len(family))
+    center, low, high = np.empty(shape), np.empty(shape), np.empty(shape)
+    plus = family.branch > 0
+    # Each branch is computed on its own columns only.
     # branch +1: (n·f_lo + f_IF)/m, increasing in f_IF
+    m = family.rf_harmonic[plus].astype(float)
+    harmonic = family.lo_harmonic[plus] * f_lo
+    center[:, plus] = (harmonic + if_center) / m
+    low[:, plus] = (harmonic + if_low_hz) / m
+    high[:, plus] = (harmonic + if_high_hz) / m
     # branch -1: |n·f_lo - f_IF|/m
+    minus = ~plus
+    m = family.rf_harmonic[minus].astype(float)
+    harmonic = family.lo_harmonic[minus] * f_lo
     a = (harmonic - if_high_hz) / m
     b = (harmonic - if_low_hz) / m
-    minus_low = np.where(a > 0, a, np.where(b < 0, -b, 0.0))
-    minus_high = np.maximum(np.abs(a), np.abs(b))
-    center = np.where(plus, (harmonic + if_center) / m, np.abs(harmonic - if_center) / m)
-    low = np.where(plus, (harmonic + if_low_hz) / m, minus_low)
-    high = np.where(plus, (harmonic + if_high_hz) / m, minus_high)
+    center[:, minus] = np.abs(harmonic - if_center) / m
+    low[:, minus] = np.where(a > 0, a, np.where(b < 0, -b, 0.0))
+    high[:, minus] = np.maximum(np.abs(a), np.abs(b))
     return center, low, high
 
 

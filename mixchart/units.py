@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 import re
-from decimal import Decimal, InvalidOperation
+from decimal import Decimal, DecimalException, InvalidOperation
 from typing import Annotated
 
 from pydantic import BeforeValidator, WithJsonSchema
@@ -75,7 +75,10 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
     if isinstance(value, bool):
         raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
     if isinstance(value, (int, float)):
-        hz = float(value)
+        try:
+            hz = float(value)
+        except OverflowError:  # an int beyond float range, e.g. a 400-digit JSON number
+            raise field_error(UnitError, field, value, "must be a finite frequency") from None
     elif isinstance(value, str):
         match = _TEXT.match(value)
         if not match:
@@ -90,6 +93,8 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
             hz = float(Decimal(number) * FREQUENCY_UNITS[unit_key])
         except InvalidOperation:  # pragma: no cover - the regex already guards this
             raise field_error(UnitError, field, value, "not a number") from None
+        except DecimalException:  # exponent beyond Decimal's range, e.g. "1e999999999 MHz"
+            raise field_error(UnitError, field, value, "must be a finite frequency") from None
     else:
         raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
     if not math.isfinite(hz):
