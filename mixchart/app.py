@@ -310,6 +310,14 @@ _TEXT_FIELDS = {
 }
 
 
+def _plan_value(plan: Plan, path: str) -> Any:
+    """The plan's value at a dotted JSON path such as ``"if.center_hz"``."""
+    node: Any = plan
+    for key in path.split("."):
+        node = getattr(node, "if_" if key == "if" else key)
+    return node
+
+
 def _freq_text(f_hz: float | None) -> str:
     return "" if f_hz is None else format_frequency(f_hz, 9)
 
@@ -376,17 +384,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         options=[("high side", "high"), ("low side", "low")], value=plan.lo.side, description="injection",
         style={"description_width": "112px", "button_width": "92px"},
     )
-    for key, value in (
-        ("rf_start", plan.rf.start_hz),
-        ("rf_stop", plan.rf.stop_hz),
-        ("rf_step", plan.rf.step_hz),
-        ("if_center", plan.if_.center_hz),
-        ("if_bandwidth", plan.if_.bandwidth_hz),
-        ("sig_bandwidth", plan.signal.bandwidth_hz),
-        ("lo_fixed", plan.lo.fixed_hz),
-        ("lo_step", plan.lo.step_hz),
-    ):
-        c[key] = text(key, value)
+    for key, (path, _label) in _TEXT_FIELDS.items():
+        c[key] = text(key, _plan_value(plan, path))
     c["sig_level"] = w.FloatSlider(
         value=plan.signal.level_dbm, min=-120, max=20, step=1, description="signal (dBm)", layout=lay, style=style,
         continuous_update=False, readout_format=".0f",
@@ -893,17 +892,8 @@ class PlannerApp:
             c.direction.value = plan.direction
             c.lo_mode.value = plan.lo.mode
             c.side.value = plan.lo.side
-            for key, value in (
-                ("rf_start", plan.rf.start_hz),
-                ("rf_stop", plan.rf.stop_hz),
-                ("rf_step", plan.rf.step_hz),
-                ("if_center", plan.if_.center_hz),
-                ("if_bandwidth", plan.if_.bandwidth_hz),
-                ("sig_bandwidth", plan.signal.bandwidth_hz),
-                ("lo_fixed", plan.lo.fixed_hz),
-                ("lo_step", plan.lo.step_hz),
-            ):
-                c.__dict__[key].value = _freq_text(value)
+            for key, (path, _label) in _TEXT_FIELDS.items():
+                c.__dict__[key].value = _freq_text(_plan_value(plan, path))
             c.lo_fixed.disabled = plan.lo.mode != "fixed"
             c.side.disabled = plan.lo.mode != "tracking"
             c.sig_level.value = plan.signal.level_dbm
