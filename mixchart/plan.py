@@ -19,7 +19,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from functools import cached_property
 from pathlib import Path
 from typing import Any, Literal
@@ -28,6 +27,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from .errors import MixchartError, PlanError, SweepTooLargeError
+from .fileio import atomic_write_text
 from .filters import FilterSpec
 from .levels import MixerSpec
 from .units import FrequencyHz, format_frequency
@@ -527,27 +527,7 @@ def save_plan(plan: Plan, path: str | os.PathLike[str]) -> Path:
     PlanError
         If the file cannot be written.
     """
-    path = Path(path)
-    text = dumps_plan(plan)
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
-    except OSError as exc:
-        raise PlanError(f"plan file: {str(path)!r} cannot be written ({exc.strerror or exc})") from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise PlanError(f"plan file: {str(path)!r} cannot be written ({exc.strerror or exc})") from None
-        raise
-    return path
+    return atomic_write_text(path, dumps_plan(plan), error=PlanError, field="plan file")
 
 
 def plan_json_schema() -> dict[str, Any]:

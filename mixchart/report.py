@@ -16,8 +16,6 @@ from __future__ import annotations
 import html
 import math
 import os
-import stat
-import tempfile
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -28,6 +26,7 @@ from . import __version__
 from .analysis import Evaluation, evaluate
 from .chart import CATEGORIES, CLOSE_DB, ViewOptions, build_chart, chart_data
 from .errors import MixchartError
+from .fileio import atomic_write_text
 from .levels import FLOOR_DBC
 from .plan import Plan, dumps_plan
 from .units import format_frequency
@@ -351,24 +350,4 @@ def write_report(plan: Plan, path: str | os.PathLike[str], *, base_dir: str | os
     """
     path = Path(path)
     text = report_html(plan, base_dir=base_dir, evaluation=evaluation, view=view, reference=reference)
-    try:
-        mode = stat.S_IMODE(path.stat().st_mode) if path.exists() else 0o644  # mkstemp would leave 0600
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    except OSError as exc:
-        raise MixchartError(f"output: {str(path)!r} cannot be written ({exc.strerror or exc})") from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            os.fchmod(handle.fileno(), mode)
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise MixchartError(f"output: {str(path)!r} cannot be written ({exc.strerror or exc})") from None
-        raise
-    return path
+    return atomic_write_text(path, text, error=MixchartError, field="output")
