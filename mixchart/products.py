@@ -216,9 +216,13 @@ def product_bands(
     f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
     m = family.rf_harmonic[None, :]
     n_signed = (family.sign * family.lo_harmonic)[None, :]
-    center = np.abs(m * f_in + n_signed * f_lo)
+    # |m·f_in ± n·f_lo|, worked in place to spare full-size temporaries
+    center = m * f_in
+    center += n_signed * f_lo
+    np.abs(center, out=center)
     half = 0.5 * bw_in_hz * m
-    low = np.maximum(center - half, 0.0)
+    low = center - half
+    np.maximum(low, 0.0, out=low)
     high = center + half
     return center, low, high
 
@@ -249,25 +253,27 @@ def response_bands(
     """
     f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
     if_center = 0.5 * (if_low_hz + if_high_hz)
-    shape = (f_lo.shape[0], len(family))
-    center, low, high = np.empty(shape), np.empty(shape), np.empty(shape)
+    m = family.rf_harmonic.astype(float)
     plus = family.branch > 0
-    # Each branch is computed on its own columns only.
-    # branch +1: (n·f_lo + f_IF)/m, increasing in f_IF
-    m = family.rf_harmonic[plus].astype(float)
-    harmonic = family.lo_harmonic[plus] * f_lo
-    center[:, plus] = (harmonic + if_center) / m
-    low[:, plus] = (harmonic + if_low_hz) / m
-    high[:, plus] = (harmonic + if_high_hz) / m
-    # branch -1: |n·f_lo - f_IF|/m
-    minus = ~plus
-    m = family.rf_harmonic[minus].astype(float)
-    harmonic = family.lo_harmonic[minus] * f_lo
-    a = (harmonic - if_high_hz) / m
-    b = (harmonic - if_low_hz) / m
-    center[:, minus] = np.abs(harmonic - if_center) / m
-    low[:, minus] = np.where(a > 0, a, np.where(b < 0, -b, 0.0))
-    high[:, minus] = np.maximum(np.abs(a), np.abs(b))
+    # Both branches at once, with per-column offsets (h = n·f_lo):
+    #   branch +1: f = (h + f_IF)/m, band [x, y] with x = (h + IF_low)/m <= y = (h + IF_high)/m;
+    #   branch -1: f = |h - f_IF|/m; with x = (h - IF_high)/m <= y = (h - IF_low)/m the band is
+    #     [x, y] if x > 0, [-y, -x] if y < 0, else [0, max(-x, y)] (it straddles h).
+    # low = x if x > 0 else (-y if y < 0 else 0) and high = max(|x|, |y|) cover both, since on
+    # branch +1 0 < x <= y.
+    harmonic = family.lo_harmonic * f_lo
+    center = harmonic + np.where(plus, if_center, -if_center)
+    np.abs(center, out=center)
+    center /= m
+    x = harmonic + np.where(plus, if_low_hz, -if_high_hz)
+    x /= m
+    y = np.add(harmonic, np.where(plus, if_high_hz, -if_low_hz), out=harmonic)
+    y /= m
+    low = np.where(y < 0, -y, 0.0)
+    np.copyto(low, x, where=x > 0)
+    np.abs(x, out=x)
+    np.abs(y, out=y)
+    high = np.maximum(x, y, out=x)
     return center, low, high
 
 
