@@ -419,13 +419,18 @@ def tuning_plane_loci(
     window: tuple[float, float, float, float],
     *,
     include_center: bool = True,
+    direction: str = "down",
 ) -> Lines:
     """Where each product lands on the IF, across the RF (x) versus LO (y) plane.
 
-    Product (m, n, sign) lands on an IF frequency ``f_t`` along the straight
-    lines ``m·f_RF + sign·n·f_LO = ±f_t``.  The strip between the lines for the
+    Down-conversion: product (m, n, sign) of an input at ``x`` with the LO at
+    ``y`` lands on an IF frequency ``f_t`` along the straight lines
+    ``m·x + sign·n·y = ±f_t``.  Up-conversion: the IF at ``f_t`` mixed with the
+    LO at ``y`` lands on ``x`` along ``x - sign·n·y = m·f_t`` and, for the
+    difference, ``x - n·y = -m·f_t``.  The strip between the lines for the
     lower and upper IF edges is where that product falls inside the IF
-    passband; a plan's LO line crossing a strip is a spur hit.
+    passband (down) or covers ``x`` (up); a plan's LO line crossing a strip is a
+    spur hit.
 
     Parameters
     ----------
@@ -437,6 +442,8 @@ def tuning_plane_loci(
         The plotted rectangle, Hz.
     include_center : bool
         Also return the lines for the IF centre (``edge == 0``).
+    direction : {"down", "up"}
+        Conversion direction.
 
     Returns
     -------
@@ -448,17 +455,12 @@ def tuning_plane_loci(
     if include_center:
         edges.insert(1, (0, 0.5 * (if_low_hz + if_high_hz)))
     parts: dict[str, list[np.ndarray]] = {k: [] for k in ("a", "b", "c", "m", "n", "s", "edge")}
-    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
     for edge, f_t in edges:
-        # m·x + s·n·y = +f_t always; the difference also reaches -f_t.
-        for rhs, rows in ((f_t, np.ones_like(m, dtype=bool)), (-f_t, s < 0)):
-            parts["a"].append(m[rows].astype(float))
-            parts["b"].append((s * n)[rows].astype(float))
-            parts["c"].append(np.full(rows.sum(), rhs))
-            parts["m"].append(m[rows])
-            parts["n"].append(n[rows])
-            parts["s"].append(s[rows])
-            parts["edge"].append(np.full(rows.sum(), edge))
+        # a strip of zero width: its two boundary lines coincide on the line for f_t
+        a, b, c, _c, (m, n, s) = _strip_coefficients(direction, family, f_t, f_t)
+        for key, value in zip(("a", "b", "c", "m", "n", "s"), (a, b, c, m, n, s)):
+            parts[key].append(value)
+        parts["edge"].append(np.full(a.size, edge))
     lines = {k: np.concatenate(v) for k, v in parts.items()}
     return _select(lines, window)
 
@@ -471,51 +473,8 @@ def tuning_plane_loci_up(
     *,
     include_center: bool = True,
 ) -> Lines:
-    """Up-conversion: where each product of the IF lands, across the RF (x) versus LO (y) plane.
-
-    An IF input at ``f_t`` gives product (m, n, sign) at ``|m·f_t + sign·n·f_LO|``;
-    it lands on an RF frequency ``x`` along ``x - sign·n·y = m·f_t`` and, for the
-    difference, also ``x - n·y = -m·f_t``.  The strip between the lines for the
-    lower and upper IF edges (``m`` times the IF width) is where that product
-    covers ``x``; a plan's LO line crossing a strip is a spur inside the
-    transmitted channel.
-
-    Parameters
-    ----------
-    max_order : int
-        Highest order ``m + n``.
-    if_low_hz, if_high_hz : float
-        IF passband edges, Hz.
-    window : (rf_min_hz, rf_max_hz, lo_min_hz, lo_max_hz)
-        The plotted rectangle, Hz.
-    include_center : bool
-        Also return the lines for the IF centre (``edge == 0``).
-
-    Returns
-    -------
-    Lines
-        Segments with ``x`` = RF and ``y`` = LO, in Hz.
-    """
-    family = product_family(max_order)
-    edges = [(-1, if_low_hz), (1, if_high_hz)]
-    if include_center:
-        edges.insert(1, (0, 0.5 * (if_low_hz + if_high_hz)))
-    m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
-    parts: dict[str, list[np.ndarray]] = {k: [] for k in ("a", "b", "c", "m", "n", "s", "edge")}
-    for edge, f_t in edges:
-        for rows, b, c in (
-            (np.ones_like(m, dtype=bool), -(s * n), m * f_t),
-            (s < 0, -n, -m * f_t),
-        ):
-            parts["a"].append(np.ones(rows.sum()))
-            parts["b"].append(b[rows].astype(float))
-            parts["c"].append(np.asarray(c, dtype=float)[rows])
-            parts["m"].append(m[rows])
-            parts["n"].append(n[rows])
-            parts["s"].append(s[rows])
-            parts["edge"].append(np.full(rows.sum(), edge))
-    lines = {k: np.concatenate(v) for k, v in parts.items()}
-    return _select(lines, window)
+    """:func:`tuning_plane_loci` for up-conversion (the IF is the input)."""
+    return tuning_plane_loci(max_order, if_low_hz, if_high_hz, window, include_center=include_center, direction="up")
 
 
 def output_plane_loci(max_order: int, f_lo_hz: float, window: tuple[float, float, float, float]) -> Lines:
