@@ -373,8 +373,8 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "output_x_label": f"{in_name} ({o_unit})" if not opts.normalised else f"{in_name} / LO",
         "output_y_label": f"{out_name} ({o_unit})" if not opts.normalised else f"{out_name} / LO",
         "output_title": (
-            f"Output plane at LO {format_frequency(lo_now)} (channel {format_frequency(ch)})"
-            + (", normalised to LO" if opts.normalised else "")
+            f"Output plane{' ÷ LO' if opts.normalised else ''} at LO {format_frequency(lo_now)} "
+            f"(channel {format_frequency(ch)})"
         ),
         "tuning_title": "Tuning plane: RF against LO",
         "direction": plan.direction,
