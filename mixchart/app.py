@@ -942,15 +942,17 @@ def _show_filter(fc: FilterControls, spec: Any) -> None:
 
 
 def _batched_model_class() -> type:
-    from bokeh.core.serialization import Deserializer, Serialized
-    from bokeh.protocol import Protocol
+    from bokeh.core.serialization import Deserializer, Serialized, Serializer
+    from bokeh.protocol.messages.patch_doc import PatchJson, patch_doc
     from jupyter_bokeh import BokehModel
 
     class _Batched(BokehModel):
         """A BokehModel that sends one message per batch and applies browser edits once.
 
         * ``with widget.batch(): ...`` collects the document changes made inside
-          and sends them as one PATCH-DOC message instead of one per change.
+          and sends them as one PATCH-DOC message instead of one per change,
+          as three comm messages with the arrays inline (the stock widget sends
+          two more comm messages per array).
         * jupyter_bokeh 4.1 runs a Python ``on_change`` callback twice for one
           browser edit (the property setter fires it, then a loop fires it
           again); here the setter alone fires it.
@@ -982,15 +984,18 @@ def _batched_model_class() -> type:
                 self._send_events([event])
 
         def _send_events(self, events: list[Any]) -> None:
-            import json
-
-            msg = Protocol().create("PATCH-DOC", events)
-            self.send({"msg": "patch", "payload": msg.header_json})
-            self.send({"msg": "patch", "payload": msg.metadata_json})
-            self.send({"msg": "patch", "payload": msg.content_json})
-            for buffer in msg.buffers:
-                self.send({"msg": "patch", "payload": json.dumps(buffer.ref)})
-                self.send({"msg": "patch"}, [buffer.to_bytes()])
+            # One PATCH-DOC as three comm messages, arrays inline (base64) in the
+            # content.  Protocol().create would put each array in a buffer of its
+            # own, sent as two more comm messages (a refresh holds 30-100 arrays),
+            # and in Voila every comm message costs more on its way to the page
+            # than the base64 does (benchmarks/bench_app.py measures both).
+            doc = events[0].document
+            serializer = Serializer(references=doc.models.synced_references, deferred=False)
+            content = PatchJson(events=serializer.encode(events))
+            doc.models.flush_synced(lambda model: not serializer.has_ref(model))
+            msg = patch_doc(patch_doc.create_header(), {}, content)
+            for part in (msg.header_json, msg.metadata_json, msg.content_json):
+                self.send({"msg": "patch", "payload": part})
 
         def _sync_model(self, _model: Any, content: dict[str, Any], _buffers: list[Any]) -> None:
             if content.get("event", "") != "jsevent":

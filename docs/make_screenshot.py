@@ -1,0 +1,74 @@
+"""Make docs/screenshot.png: the planner serving the built-in FM example, once idle.
+
+Run from the repository root (needs Voila and /usr/bin/chromium, as the browser tests do)::
+
+    python docs/make_screenshot.py
+
+It serves notebooks/planner.ipynb with no plan file (so the built-in example),
+opens it in headless Debian Chromium at 1600 px wide, waits until BokehJS is
+idle and the table is drawn, and saves the app's area.  The server is stopped
+before the script exits.
+"""
+
+from __future__ import annotations
+
+import shutil
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(REPO / "tests" / "browser"))
+sys.path.insert(0, str(REPO / "benchmarks"))
+
+import conftest as harness  # noqa: E402  Chromium flags, local-only pages, Voila stop
+import helpers as bh  # noqa: E402
+from bench_app import start_voila  # noqa: E402
+
+OUT = REPO / "docs" / "screenshot.png"
+VIEWPORT = {"width": 1600, "height": 1250}
+MARGIN_PX = 12
+
+
+def main() -> int:
+    from playwright.sync_api import sync_playwright
+
+    tmp = Path(tempfile.mkdtemp(prefix="mixchart-shot-"))
+    server = None
+    try:
+        server = start_voila(harness, REPO / "notebooks" / "planner.ipynb", None, tmp)
+        with sync_playwright() as pw:
+            browser = pw.chromium.launch(executable_path=str(harness.CHROMIUM), headless=True, args=harness.CHROMIUM_ARGS)
+            try:
+                page = harness._new_page(browser, 60_000)
+                page.set_viewport_size(VIEWPORT)
+                bh.open_voila(page, server.url)
+                page.locator(".mixchart-worst-table td").first.wait_for()
+                page.mouse.move(0, 0)  # no hover tooltip, no focus ring
+                time.sleep(1.0)  # let late layout (fonts, tab bar) settle
+                box = page.locator(".mixchart-app").bounding_box()
+                clip = {
+                    "x": max(box["x"] - MARGIN_PX, 0),
+                    "y": max(box["y"] - MARGIN_PX, 0),
+                    "width": min(box["width"] + 2 * MARGIN_PX, VIEWPORT["width"]),
+                    "height": min(box["height"] + 2 * MARGIN_PX, VIEWPORT["height"]),
+                }
+                OUT.parent.mkdir(exist_ok=True)
+                page.screenshot(path=str(OUT), clip=clip)
+                errors = bh.unexpected_console_errors(page)
+            finally:
+                browser.close()
+    finally:
+        if server is not None:
+            harness._stop_server(server)
+        shutil.rmtree(tmp, ignore_errors=True)
+    print(f"wrote {OUT} ({int(clip['width'])}x{int(clip['height'])} px)")
+    if errors:
+        print(f"console errors: {errors}", file=sys.stderr)
+        return 1
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,404 @@
+"""The planner app in a real browser, used as an RF engineer would use it.
+
+Voila serves ``notebooks/planner.ipynb`` with a copy of the built-in FM
+receiver example (``MIXCHART_PLAN``); headless Debian Chromium loads the page
+once for the whole module (a Voila page load costs 5-10 s).  Each test drives
+the page through the widgets and the chart, then reads back what BokehJS holds
+and what the page shows.
+
+Order: the tests share one page and one kernel.  Each one reads the state it
+starts from off the page and checks changes relative to it, and the tests that
+change the plan only as a side step (requirement slider, bad entry, injection
+side) put it back, so they pass in any order.  The IF drag deliberately leaves
+its change in place, and the channel test leaves the view on another channel;
+the save test then saves whatever the page shows.
+
+The page is 1600 px wide: at the harness's default 1280 px the output plane is
+clipped (the controls and both planes do not fit in one row and the row does
+not wrap or scroll), so it could not be dragged.
+
+Source data is compared through JSON (``_canon``): the points' ``margin``
+column holds NaN for the wanted row, and NaN != NaN would make a plain ``!=``
+report a change that did not happen.
+"""
+
+from __future__ import annotations
+
+import base64
+import json
+import re
+import shutil
+import time
+from pathlib import Path
+from types import SimpleNamespace
+
+import pytest
+
+import helpers as bh
+from mixchart.analysis import evaluate
+from mixchart.chart import CLOSE_DB
+from mixchart.plan import load_plan, loads_plan
+from mixchart.units import format_frequency, parse_frequency
+
+pytestmark = pytest.mark.browser
+
+REPO = Path(__file__).resolve().parents[2]
+NOTEBOOK = REPO / "notebooks" / "planner.ipynb"
+EXAMPLE = REPO / "mixchart" / "examples" / "fm_receiver.json"
+#: Wide and tall enough for the whole app (controls, both planes, the table).
+VIEWPORT = {"width": 1600, "height": 1250}
+MHZ = 1e6  # the FM example's display unit on both planes
+
+SOURCES = ("tuning_strips", "tuning_plan", "tuning_marks", "rf_band", "out_lines", "out_points",
+           "out_output_band", "out_input_band")
+
+
+# --------------------------------------------------------------------------- fixture and page helpers
+
+
+@pytest.fixture(scope="module")
+def app(tmp_path_factory, voila_server, browser_page_factory, artifacts_dir):
+    root = tmp_path_factory.mktemp("planner")
+    plan_path = root / "plan.json"
+    shutil.copy(EXAMPLE, plan_path)
+    server = voila_server(NOTEBOOK, plan=plan_path)
+    page = browser_page_factory()
+    page.set_viewport_size(VIEWPORT)
+    try:
+        t_load = bh.open_voila(page, server.url)
+        page.locator(".mixchart-app .mixchart-worst-table td").first.wait_for()
+    except Exception as exc:
+        raise AssertionError(f"the planner page never became idle: {exc}\nvoila log:\n{server.log_text()}") from exc
+    print(f"\nplanner page idle after {t_load:.1f} s")
+    return SimpleNamespace(page=page, server=server, root=root, plan_path=plan_path, shots=artifacts_dir)
+
+
+def _wait_until(fn, what: str, timeout_s: float = 20.0, interval_s: float = 0.05):
+    """Poll ``fn()`` until it returns something truthy; return that."""
+    deadline = time.monotonic() + timeout_s
+    while True:
+        value = fn()
+        if value:
+            return value
+        if time.monotonic() > deadline:
+            raise TimeoutError(f"{what} not seen within {timeout_s} s")
+        time.sleep(interval_s)
+
+
+def _open_tab(page, title: str) -> None:
+    """Click a tab of the control panel (a hidden tab's widgets cannot be used)."""
+    tab = page.locator(".mixchart-app .lm-TabBar-tab").filter(has_text=re.compile(rf"^\s*{title}\s*$"))
+    tab.click()
+    page.locator(".mixchart-app .lm-TabBar-tab.lm-mod-current").filter(has_text=title).wait_for()
+
+
+def _field(page, key: str) -> str:
+    """Text shown in a text field, e.g. ``_field(page, "if-center")`` -> ``"10.7 MHz"``."""
+    return page.locator(f".mixchart-{key} input").input_value()
+
+
+def _status(page) -> str:
+    return page.locator(".mixchart-status").inner_text().strip()
+
+
+def _status_line(page) -> str:
+    """The PASS/FAIL line of the status."""
+    lines = [line for line in _status(page).splitlines() if re.match(r"(PASS|FAIL):", line)]
+    assert len(lines) == 1, _status(page)
+    return lines[0]
+
+
+def _table_rows(page) -> list[list[str]]:
+    """Body rows of the worst-case table, as cell texts."""
+    return page.evaluate(
+        """() => [...document.querySelectorAll('.mixchart-worst-table table tr')]
+                 .filter((tr) => tr.querySelector('td'))
+                 .map((tr) => [...tr.querySelectorAll('td')].map((td) => td.innerText.trim()))"""
+    )
+
+
+def _margins(rows: list[list[str]]) -> list[float]:
+    return [float(r[5]) for r in rows]  # column 6: "margin dB"
+
+
+def _sources(page, names=SOURCES) -> dict[str, dict]:
+    return {name: bh.source_data(page, name) for name in names}
+
+
+def _canon(data) -> str:
+    """Comparable form of source data: NaN (e.g. the wanted row's margin) equals NaN here."""
+    return json.dumps(data, sort_keys=True)
+
+
+def _source_changed(page, name: str, before: dict, *, timeout_s: float = 20.0) -> dict:
+    """Wait until a source differs from ``before`` (NaN-aware, unlike a plain ``!=``); return it."""
+    old = _canon(before)
+    return _wait_until(
+        lambda: (d := bh.source_data(page, name)) and _canon(d) != old and d, f"a change of {name!r}", timeout_s
+    )
+
+
+def _figure_attr(page, figure: str, js_path: str):
+    """A property of a named figure model in BokehJS, e.g. ``title.text``."""
+    bh.figure_names(page)  # installs the page-side helpers
+    return page.evaluate(f"(n) => window.__mxt.model(n).{js_path}", figure)
+
+
+def _assert_clean(page) -> None:
+    """No console errors we did not expect, no Python output on stderr, no traceback text."""
+    assert bh.unexpected_console_errors(page) == []
+    assert bh.notebook_errors(page) == []
+    assert "Traceback" not in page.locator("body").inner_text()
+
+
+def _category(margin_db: float) -> str:
+    # as chart.py documents: below 0 violates, below CLOSE_DB close, else clear
+    return "violates" if margin_db < 0 else "close" if margin_db < CLOSE_DB else "clear"
+
+
+# --------------------------------------------------------------------------- tests
+
+
+def test_page_loads_and_draws_the_plan(app):
+    page = app.page
+    names = bh.figure_names(page)
+    assert "tuning_plane" in names and "output_plane" in names, names
+    data = _sources(page)
+    for name, cols in data.items():
+        assert cols and all(len(col) > 0 for col in cols.values()), (name, cols)
+    # The output plane's IF band is the plan's IF passband, in MHz.
+    if_c = parse_frequency(_field(page, "if-center"))
+    if_bw = parse_frequency(_field(page, "if-bandwidth"))
+    band = data["out_output_band"]
+    assert band["y0"][0] * MHZ == pytest.approx(if_c - if_bw / 2, rel=1e-9)
+    assert band["y1"][0] * MHZ == pytest.approx(if_c + if_bw / 2, rel=1e-9)
+    # The tuning plane's RF band spans the channels plus half the signal bandwidth each side.
+    rf_lo = parse_frequency(_field(page, "rf-start")) - parse_frequency(_field(page, "sig-bandwidth")) / 2
+    assert data["rf_band"]["x0"][0] * MHZ == pytest.approx(rf_lo, rel=1e-9)
+    assert re.fullmatch(r"(PASS|FAIL): worst margin [+-]\d+\.\d dB \(.+\); spur-free .*", _status_line(page))
+    rows = _table_rows(page)
+    assert len(rows) >= 3, rows
+    assert all(re.fullmatch(r"[+-]\d+\.\d", r[5]) for r in rows), rows
+    assert _margins(rows) == sorted(_margins(rows))  # worst first
+    shot = bh.screenshot(page, app.shots / "planner-initial.png")
+    assert shot.stat().st_size > 50_000
+    _assert_clean(page)
+
+
+def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
+    page = app.page
+    _open_tab(page, "Plan")
+    req0 = float(bh.slider_value(page, ".mixchart-requirement"))
+    rows0 = _table_rows(page)
+    before = _sources(page, ("tuning_strips", "tuning_marks"))
+    status0 = _status_line(page)
+    worst0 = float(re.search(r"worst margin ([+-]\d+\.\d) dB", status0).group(1))
+
+    # continuous_update=False: each key press commits one value (on key release).
+    bh.press_slider_key(page, ".mixchart-requirement", "ArrowRight", times=3)
+    # derived by hand: margin = rejection - requirement, and the rejection does
+    # not depend on the requirement, so every margin drops by exactly 3 dB (the
+    # table keeps its rows and order; the display rounds to 0.1 dB).
+    expected = [m - 3.0 for m in _margins(rows0)]
+    rows = _wait_until(
+        lambda: (r := _table_rows(page)) and all(abs(a - b) < 0.11 for a, b in zip(_margins(r), expected)) and r,
+        "every margin 3 dB lower",
+    )
+    assert float(bh.slider_value(page, ".mixchart-requirement")) == req0 + 3
+    assert [r[:5] for r in rows] == [r[:5] for r in rows0]  # same products, same levels
+    assert f"worst margin {worst0 - 3.0:+.1f} dB" in _wait_until(
+        lambda: (s := _status_line(page)) != status0 and s, "a new status line"
+    )
+
+    # A strip's colour is its intrinsic level against the requirement (chart.py):
+    # for the FM example at 70 -> 73 dB the (3,4) strips at -82.0 dBc go from
+    # clear (12 dB) to close (9 dB < CLOSE_DB).  (The table is sent before the
+    # chart, so wait for the chart's own final state.)
+    def coloured_for(req_db: float, strips: dict) -> bool:
+        return all(
+            cat == _category(-level - req_db)
+            for level, cat in zip(strips["level"], strips["category"])
+            if cat != "wanted"
+        )
+
+    strips = _wait_until(
+        lambda: (d := bh.source_data(page, "tuning_strips")) and coloured_for(req0 + 3, d) and d,
+        "strips coloured for the new requirement",
+    )
+    assert strips["category"] != before["tuning_strips"]["category"]
+    worst_mark0 = min(before["tuning_marks"]["margin"])
+    _wait_until(
+        lambda: abs(min(bh.source_data(page, "tuning_marks")["margin"]) - (worst_mark0 - 3.0)) < 1e-6,
+        "channel marks 3 dB worse",
+    )
+
+    # Back to where it was: the table and the chart return too.
+    bh.press_slider_key(page, ".mixchart-requirement", "ArrowLeft", times=3)
+    _wait_until(lambda: _table_rows(page) == rows0, "the original table")
+    _wait_until(
+        lambda: _canon(bh.source_data(page, "tuning_strips")) == _canon(before["tuning_strips"]), "the original strips"
+    )
+    assert _status_line(page) == status0
+    _assert_clean(page)
+
+
+def _title_channel(page) -> tuple[float, float]:
+    """(LO, channel) in Hz from the output plane's title."""
+    title = _figure_attr(page, "output_plane", "title.text")
+    match = re.search(r"at LO (.+?) \(channel (.+?)\)", title)
+    assert match, title
+    return parse_frequency(match.group(1)), parse_frequency(match.group(2))
+
+
+def test_channel_slider_moves_the_output_plane(app):
+    page = app.page
+    lo0, ch0 = _title_channel(page)
+    step = parse_frequency(_field(page, "rf-step"))
+    start = parse_frequency(_field(page, "rf-start"))
+    before = _sources(page, ("out_lines", "out_points", "tuning_now"))
+    _open_tab(page, "View")
+    presses = 3
+    key, sign = ("ArrowLeft", -1) if ch0 - presses * step >= start - 1 else ("ArrowRight", +1)
+    bh.press_slider_key(page, ".mixchart-channel", key, times=presses)
+    ch_want = ch0 + sign * presses * step
+    lo, ch = _wait_until(
+        lambda: (t := _title_channel(page)) and abs(t[1] - ch_want) < 1.0 and t, f"channel {ch_want} Hz in the title"
+    )
+    # Tracking LO on a grid that divides the channel step: it moves as the channel does.
+    assert lo - lo0 == pytest.approx(ch - ch0, abs=1.0)
+    expected_text = f"channel {format_frequency(ch)}, LO {format_frequency(lo)}"
+    _wait_until(lambda: expected_text in page.locator("span.mixchart-channel-text").inner_text(), expected_text)
+
+    lines = _source_changed(page, "out_lines", before["out_lines"])
+    _source_changed(page, "out_points", before["out_points"])
+    now = _source_changed(page, "tuning_now", before["tuning_now"])
+    assert now["x"][0] * MHZ == pytest.approx(ch, rel=1e-9)
+    # derived by hand: the wanted down-conversion is the difference |f_RF - f_LO|,
+    # so both ends of the wanted line lie on y = |x - LO| for the new LO.
+    wanted = [i for i, c in enumerate(lines["category"]) if c == "wanted"]
+    assert len(wanted) == 1, lines["label"]
+    (i,) = wanted
+    for x, y in ((lines["x0"][i], lines["y0"][i]), (lines["x1"][i], lines["y1"][i])):
+        assert y == pytest.approx(abs(x - lo / MHZ), abs=1e-6)
+    _assert_clean(page)
+
+
+def test_dragging_the_if_band_changes_the_plan_in_python(app):
+    page = app.page
+    _open_tab(page, "Plan")
+    if0_text = _field(page, "if-center")
+    if0 = parse_frequency(if0_text)
+    if_bw = parse_frequency(_field(page, "if-bandwidth"))
+    status0 = _status(page)
+    band = bh.source_data(page, "out_output_band")
+    y_mid = 0.5 * (band["y0"][0] + band["y1"][0])
+    assert y_mid * MHZ == pytest.approx(if0, rel=1e-9)
+    # Grab the band right of the input (RF) band, where only the IF band is.
+    x_end = _figure_attr(page, "output_plane", "x_range.end")
+    x = 0.5 * (bh.source_data(page, "out_input_band")["x1"][0] + x_end)
+    (_, sy0), (_, sy1) = bh.data_to_screen(page, "output_plane", [(x, y_mid), (x, y_mid + 1.0)])
+    mhz_per_px = 1.0 / abs(sy1 - sy0)
+
+    bh.drag(page, "output_plane", (x, y_mid), (x, y_mid + 1.0))  # up by 1 MHz
+
+    # The kernel received the edit, applied it, snapped it and showed it in the IF field.
+    text = _wait_until(lambda: (t := _field(page, "if-center")) != if0_text and t, "a new IF centre in the field")
+    if1 = parse_frequency(text)
+    assert if1 == pytest.approx(if0 + 1.0 * MHZ, abs=2 * mhz_per_px * MHZ), text
+    assert if1 == float(f"{if1:.6g}")  # snapped to 6 significant digits: no float drift
+    status = _wait_until(lambda: (s := _status(page)) != status0 and s, "a new status")
+    assert f"IF {format_frequency(if1)}" in status
+    # Python re-evaluated and pushed the snapped band (same width) back to the browser.
+    _wait_until(
+        lambda: (b := bh.source_data(page, "out_output_band"))
+        and abs(b["y0"][0] * MHZ - (if1 - if_bw / 2)) < 1e-3
+        and abs(b["y1"][0] * MHZ - (if1 + if_bw / 2)) < 1e-3,
+        "the snapped IF band in the chart",
+    )
+    assert _field(page, "if-bandwidth") == format_frequency(if_bw, 9)
+    bh.screenshot(page, app.shots / "planner-after-if-drag.png")
+    _assert_clean(page)
+
+
+def test_save_writes_the_plan_the_page_shows(app):
+    page = app.page
+    target = app.root / "saved by the browser.json"
+    target.unlink(missing_ok=True)
+    _open_tab(page, "File")
+    path_field = page.locator(".mixchart-save-path input")
+    path_field.fill(str(target))
+    path_field.press("Tab")
+    page.locator("button.mixchart-save").click()
+    msg = page.locator(".mixchart-file-msg")
+    _wait_until(lambda: f"saved {target}" in msg.inner_text(), "the 'saved' message")
+
+    saved = load_plan(target)
+    # The file holds what the page shows ...
+    assert format_frequency(saved.if_.center_hz, 9) == _field(page, "if-center")
+    assert format_frequency(saved.rf.start_hz, 9) == _field(page, "rf-start")
+    assert f"{saved.requirement.min_rejection_db:.0f}" == bh.slider_value(page, ".mixchart-requirement")
+    active_side = page.locator(".mixchart-side button.mod-active").inner_text().strip()
+    assert active_side == f"{saved.lo.side} side"
+    # ... and re-evaluates to the status line the page shows.
+    assert evaluate(saved, base_dir=target.parent).summary.line() == _status_line(page)
+
+    link = msg.locator("a.mixchart-download")
+    assert link.get_attribute("download") == target.name
+    href = link.get_attribute("href")
+    prefix = "data:application/json;base64,"
+    assert href.startswith(prefix)
+    text = base64.b64decode(href[len(prefix):]).decode("utf-8")
+    assert json.loads(text) == json.loads(target.read_text(encoding="utf-8"))
+    assert loads_plan(text) == saved
+    _assert_clean(page)
+
+
+def test_bad_entry_shows_a_message_and_keeps_the_chart(app):
+    page = app.page
+    _open_tab(page, "Plan")
+    field = page.locator(".mixchart-if-center input")
+    good = field.input_value()
+    before = _sources(page)
+    status0 = _status(page)
+    error = page.locator(".mixchart-if-center + * .mixchart-error")  # the message right below the field
+    assert error.count() == 0
+
+    field.fill("banana")
+    field.press("Enter")
+    error.wait_for()
+    text = error.inner_text()
+    assert "banana" in text and "IF centre" in text, text
+    assert "Traceback" not in text
+    # The handler answered (the message is there): the chart and the plan are untouched.
+    assert _canon(_sources(page)) == _canon(before)
+    assert _status(page) == status0
+
+    field.fill(good)  # the user corrects the entry: the message goes, nothing else changes
+    field.press("Enter")
+    error.wait_for(state="detached")
+    assert _canon(_sources(page)) == _canon(before)
+    _assert_clean(page)
+
+
+def test_low_side_injection_moves_the_plan_line(app):
+    page = app.page
+    _open_tab(page, "Plan")
+    if_c = parse_frequency(_field(page, "if-center"))
+    lo_step = parse_frequency(_field(page, "lo-step"))
+    side = page.locator(".mixchart-side")
+    assert side.locator("button.mod-active").inner_text().strip() == "high side"
+    before = bh.source_data(page, "tuning_plan")
+    # derived by hand: high-side tracking LO = f_RF + f_IF, on the LO grid
+    assert all(abs(y * MHZ - (x * MHZ + if_c)) <= lo_step / 2 + 1 for x, y in zip(before["x"], before["y"]))
+
+    side.locator("button", has_text="low side").click()
+    after = _source_changed(page, "tuning_plan", before)
+    assert after["x"] == before["x"]
+    # low-side tracking LO = f_RF - f_IF, on the LO grid
+    assert all(abs(y * MHZ - (x * MHZ - if_c)) <= lo_step / 2 + 1 for x, y in zip(after["x"], after["y"]))
+    _wait_until(lambda: "low-side" in _status(page), "low-side in the status")
+
+    side.locator("button", has_text="high side").click()
+    _wait_until(lambda: _canon(bh.source_data(page, "tuning_plan")) == _canon(before), "the high-side plan line again")
+    _wait_until(lambda: "high-side" in _status(page), "high-side in the status")
+    _assert_clean(page)
