@@ -69,6 +69,8 @@ __all__ = ["Evaluation", "Summary", "evaluate", "frame_records", "FRAME_COLUMNS"
 
 #: Failing (channel, product) rows kept in :attr:`Evaluation.hits`; more are counted, not stored.
 MAX_HIT_ROWS = 50_000
+#: A wanted signal this far (dB) down a fixed filter's skirt is reported in the warnings.
+WANTED_LOSS_WARN_DB = 3.0
 #: Channels processed per block; bounds peak memory whatever the sweep size.  Blocks of a
 #: few hundred channels keep the (channels x products) temporaries in cache and out of
 #: fresh-page faults: measured fastest for orders 7-15 on our machines.
@@ -733,6 +735,18 @@ def _warnings(ctx: _Context) -> list[str]:
         worst_step = float(np.max(np.abs(ctx.lo_hz - plan.nominal_lo_hz(ctx.channels_hz))))
         if worst_step > 0:
             out.append(f"LO grid error up to {format_frequency(worst_step)}: the wanted output is offset by as much")
+    down = plan.direction == "down"
+    wanted_at = (("filters.rf", ctx.rf_filter, ctx.channels_hz), ("filters.if", ctx.if_filter, ctx.f_out_hz if down else ctx.f_in_hz))
+    for field, filt, f_wanted in wanted_at:
+        if filt is None or filt.tracks_channel:
+            continue  # a tracking filter follows the wanted signal by construction
+        loss = filt.atten_db(f_wanted) - _passband_loss_db(filt)
+        k = int(np.argmax(loss))
+        if loss[k] > WANTED_LOSS_WARN_DB:
+            out.append(
+                f"{field}: the wanted signal at {format_frequency(f_wanted[k])} is {loss[k]:.1f} dB down the filter's "
+                f"skirt (channel {format_frequency(ctx.channels_hz[k])}); move the filter with the plan"
+            )
     drive = plan.signal.level_dbm
     out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))
     note = ctx.table.fallback_note(plan.max_order)
@@ -741,6 +755,17 @@ def _warnings(ctx: _Context) -> list[str]:
     if int(plan.max_order) > ctx.table.max_harmonic:
         out.append(f"the level table stops at harmonic {ctx.table.max_harmonic}; higher products use its floor")
     return out
+
+
+def _passband_loss_db(filt: Filter) -> float:
+    """Smallest loss of a fixed filter across its nominal passband, dB (its insertion loss)."""
+    low, high = filt.passband_hz()
+    if not (math.isfinite(low) and high > low):
+        return 0.0
+    if not math.isfinite(high):
+        high = 4 * max(low, 1.0)
+    grid = np.linspace(low, high, 129)
+    return float(np.min(filt.atten_db(grid)))
 
 
 def level_floor_dbc() -> float:

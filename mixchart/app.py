@@ -108,7 +108,7 @@ class PlanState:
             does nothing (so a repeated event is harmless).
         """
         try:
-            new = self.plan.with_changes(changes)
+            new = self.plan.with_changes(_filters_follow(self.plan, changes))
             if new == self.plan:
                 return None
             result = evaluate(new, base_dir=self.base_dir)
@@ -216,6 +216,42 @@ class PlanState:
             start = round(start / step) * step
             stop = start + math.floor((stop - start) / step + 1e-9) * step
         return self.try_update({"rf.start_hz": _snap(start), "rf.stop_hz": _snap(stop)})
+
+
+def _filters_follow(plan: Plan, changes: dict[str, Any]) -> dict[str, Any]:
+    """Move a fixed filter along with the band it was centred on.
+
+    When the IF centre moves and the IF filter was centred on the old IF centre,
+    the filter moves too; likewise a fixed RF filter centred on the RF band
+    follows the band.  (A filter centred elsewhere is the user's choice and
+    stays.)  Returns the changes with the filter moves added.
+    """
+    out = dict(changes)
+
+    def centred(spec: Any, f_hz: float) -> bool:
+        centre = getattr(spec, "f_center_hz", None)
+        return (
+            spec is not None
+            and not getattr(spec, "tracks_channel", False)
+            and centre is not None
+            and abs(centre - f_hz) <= 1e-9 * f_hz
+        )
+
+    if "if.center_hz" in changes and "filters.if" not in changes and centred(plan.filters.if_, plan.if_.center_hz):
+        try:
+            out["filters.if.f_center_hz"] = parse_frequency(changes["if.center_hz"], "if.center_hz")
+        except MixchartError:
+            pass  # the plan change itself reports the bad value
+    if ("rf.start_hz" in changes or "rf.stop_hz" in changes) and "filters.rf" not in changes:
+        old_mid = 0.5 * (plan.rf.start_hz + plan.rf.stop_hz)
+        if centred(plan.filters.rf, old_mid):
+            try:
+                start = parse_frequency(changes.get("rf.start_hz", plan.rf.start_hz), "rf.start_hz")
+                stop = parse_frequency(changes.get("rf.stop_hz", plan.rf.stop_hz), "rf.stop_hz")
+            except MixchartError:
+                return out
+            out["filters.rf.f_center_hz"] = 0.5 * (start + stop)
+    return out
 
 
 def _snap(f_hz: float) -> float:
@@ -582,6 +618,7 @@ class PlannerApp:
         self.chart: ChartHandle = build_chart(chart_data(state.evaluation, state.view), width=chart_width, height=470)
         self.controls = build_controls(state.plan, state.evaluation.channels_hz.size)
         self.bokeh = BatchedBokehModel(self.chart.layout)
+        self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
         self.status = w.HTML(value="")
         self.status.add_class("mixchart-status")
         self.table = w.HTML(value="")
@@ -596,7 +633,15 @@ class PlannerApp:
             "rules and licensed practice; check the plan against them.</div>"
         )
         self.widget = w.VBox(
-            [title, self.status, w.HBox([self.controls.panel, self.bokeh]), self.compare, self.table, self.reference_box]
+            [
+                title,
+                self.status,
+                # wraps the chart below the controls on narrow screens instead of cutting it off
+                w.HBox([self.controls.panel, self.bokeh], layout=w.Layout(flex_flow="row wrap")),
+                self.compare,
+                self.table,
+                self.reference_box,
+            ]
         )
         self.widget.add_class("mixchart-app")
         self._wire()

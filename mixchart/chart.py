@@ -487,7 +487,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
             y_range=Range1d(win[2], win[3]),
             tools="pan,wheel_zoom,box_zoom,reset,save",
             active_scroll="wheel_zoom",
-            toolbar_location="above",
+            toolbar_location="right",  # leaves the title the full width
             background_fill_color="#FFFFFF",
             border_fill_color="#FFFFFF",
             output_backend="canvas",
@@ -514,8 +514,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         line_color="color", line_alpha="alpha", line_width=1, name="strips",
     )
     marks = tuning.scatter(
-        x="x", y="y", source=src["tuning_marks"], marker="square", size=9, fill_color="color",
-        fill_alpha=0.55, line_color="color", name="channel_marks",
+        x="x", y="y", source=src["tuning_marks"], marker="square", size=8, fill_alpha=0,
+        line_color="color", line_width=1.5, name="channel_marks",
     )
     tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2, name="plan_line")
     pts_t = tuning.scatter(
