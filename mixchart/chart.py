@@ -241,12 +241,19 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "x": ev.channels_hz[::step] / scale,
         "y": ev.lo_hz[::step] / scale,
     }
+    # The plan line is recoloured where a channel's worst margin is not clear: one short
+    # segment per such channel, from the midpoint with its left neighbour to the right one.
     worst_cat = _category(ev.worst_margin_db).astype(object)
     bad = np.flatnonzero(worst_cat != "clear")[:: max(1, int(np.sum(worst_cat != "clear")) // _MAX_PLAN_POINTS)]
+    px, py = ev.channels_hz / scale, ev.lo_hz / scale
+    left = np.maximum(bad - 1, 0)
+    right = np.minimum(bad + 1, px.size - 1)
     wr = ev.worst_row.iloc[bad]
     sources["tuning_marks"] = {
-        "x": ev.channels_hz[bad] / scale,
-        "y": ev.lo_hz[bad] / scale,
+        "x0": 0.5 * (px[left] + px[bad]),
+        "y0": 0.5 * (py[left] + py[bad]),
+        "x1": 0.5 * (px[right] + px[bad]),
+        "y1": 0.5 * (py[right] + py[bad]),
         "label": [f"{r.label} ({r.rf_harmonic},{r.lo_harmonic})" for r in wr.itertuples()],
         "channel": [format_frequency(f) for f in ev.channels_hz[bad]],
         "margin": ev.worst_margin_db[bad].astype(float),
@@ -513,11 +520,11 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         xs="xs", ys="ys", source=src["tuning_strips"], fill_color="color", fill_alpha="fill_alpha",
         line_color="color", line_alpha="alpha", line_width=1, name="strips",
     )
-    marks = tuning.scatter(
-        x="x", y="y", source=src["tuning_marks"], marker="square", size=8, fill_alpha=0,
-        line_color="color", line_width=1.5, name="channel_marks",
+    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2.5, name="plan_line")
+    marks = tuning.segment(
+        x0="x0", y0="y0", x1="x1", y1="y1", source=src["tuning_marks"], line_color="color", line_width=4,
+        line_cap="butt", name="channel_marks",
     )
-    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2, name="plan_line")
     pts_t = tuning.scatter(
         x="x", y="y", source=src["tuning_points"], size=9, fill_color="color", line_color="#1A1A1A",
         line_width=0.5, marker="diamond", name="tuning_points",
