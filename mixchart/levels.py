@@ -86,7 +86,7 @@ class MixerSpec(BaseModel):
     @classmethod
     def _check_table(cls, value: str) -> str:
         if value != "builtin" and (value != value.strip() or not value.lower().endswith(".csv") or "\0" in value):
-            raise ValueError(f"table: {value!r} is invalid; 'builtin' or a path ending in .csv")
+            raise ValueError("give 'builtin' or a path ending in .csv")
         return value
 
 
