@@ -18,6 +18,7 @@ from .errors import MixchartError
 EXAMPLES = {
     "fm_receiver": "fm_receiver.json",
     "uplink_transmitter": "uplink_transmitter.json",
+    "ku_block_converter": "ku_block_converter.json",
 }
 DEFAULT_EXAMPLE = "fm_receiver"
 
