@@ -27,8 +27,11 @@ __all__ = [
     "engineering_scale",
 ]
 
-#: Unit name -> multiplier to hertz.  Matching is case-insensitive except that
-#: ``m``/``M`` are never accepted alone (milli versus mega is a classic slip).
+#: Unit name -> multiplier to hertz.  Matching is case-insensitive, with two guards
+#: against the milli/mega slip: ``m``/``M`` are never accepted alone, and exactly ``"mHz"``
+#: (SI millihertz, lower-case m, upper-case H) is refused with a hint to write ``"MHz"``.
+#: Other spellings of mhz (``"mhz"``, ``"Mhz"``, ``"MHZ"``...) are read as megahertz:
+#: nobody plans a mixer in millihertz.
 FREQUENCY_UNITS: dict[str, int] = {
     "hz": 1,
     "khz": 10**3,
@@ -36,6 +39,14 @@ FREQUENCY_UNITS: dict[str, int] = {
     "ghz": 10**9,
     "thz": 10**12,
 }
+
+#: The SI symbol for millihertz (BIPM SI Brochure, 9th ed., Table 7: prefix m = 10^-3).
+_MILLIHERTZ = "mHz"
+
+
+def _millihertz_error(field: str, value: object) -> UnitError:
+    return field_error(UnitError, field, value, "'mHz' is millihertz in SI; write 'MHz' for megahertz")
+
 
 _TEXT = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z]*)\s*$")
 
@@ -48,6 +59,11 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
     value : float, int or str
         A finite number in Hz, or text such as ``"10.7 MHz"``, ``"2.4GHz"``,
         ``"455 kHz"`` or ``"1e6"`` (Hz when no unit is given).
+        Unit names are matched without regard to case (``"mhz"``, ``"MHZ"``
+        and ``"Mhz"`` all mean megahertz: lower-case-only ``"mhz"`` is read
+        as MHz since nobody plans in millihertz), except that exactly
+        ``"mHz"``, the SI symbol for millihertz, is refused with a hint to
+        write ``"MHz"``.
     field : str
         Name of the field being parsed, repeated in any error message.
     allow_zero : bool
@@ -63,7 +79,8 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
     ------
     UnitError
         If the value is not a number or a recognised ``number unit`` text, is
-        not finite, is negative, or is zero when zero is not allowed.
+        not finite, is negative, or is zero when zero is not allowed, or if
+        the unit is exactly ``"mHz"`` (millihertz).
 
     Examples
     --------
@@ -84,6 +101,8 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
         if not match:
             raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
         number, unit = match.groups()
+        if unit == _MILLIHERTZ:
+            raise _millihertz_error(field, value)
         unit_key = unit.lower() if unit else "hz"
         if unit_key not in FREQUENCY_UNITS:
             raise field_error(
@@ -138,8 +157,9 @@ def format_frequency(f_hz: float, digits: int = 6, unit: str | None = None) -> s
     digits : int
         Significant digits to keep; trailing zeros are dropped.
     unit : str, optional
-        Force a unit from :data:`FREQUENCY_UNITS` (any case); by default the
-        unit is chosen with :func:`engineering_scale`.
+        Force a unit from :data:`FREQUENCY_UNITS` (any case, except that
+        exactly ``"mHz"``, millihertz, is refused as in :func:`parse_frequency`);
+        by default the unit is chosen with :func:`engineering_scale`.
 
     Returns
     -------
@@ -154,6 +174,8 @@ def format_frequency(f_hz: float, digits: int = 6, unit: str | None = None) -> s
     if unit is None:
         scale, name = engineering_scale(f_hz)
     else:
+        if unit == _MILLIHERTZ:
+            raise _millihertz_error("unit", unit)
         key = unit.lower()
         if key not in FREQUENCY_UNITS:
             raise field_error(UnitError, "unit", unit, "must be one of Hz, kHz, MHz, GHz, THz")
@@ -167,7 +189,9 @@ def format_frequency(f_hz: float, digits: int = 6, unit: str | None = None) -> s
     return f"{text} {name}"
 
 
-FREQUENCY_TEXT_PATTERN = r"^\s*[+]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*([kKmMgGtT]?[hH][zZ])?\s*$"
+#: JSON Schema pattern for frequency text: the units :func:`parse_frequency` accepts (any case,
+#: but not exactly "mHz", millihertz).
+FREQUENCY_TEXT_PATTERN = r"^\s*[+]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*([kKMgGtT]?[hH][zZ]|m(h[zZ]|HZ))?\s*$"
 
 
 def _validator(allow_zero: bool):

@@ -1,9 +1,13 @@
-"""Brute-force reference for the product engine: plain Python, plain floats, nested loops.
+"""Brute-force reference for the engine: plain Python, plain floats, nested loops.
 
 Nothing here imports mixchart's engine: the relations are written out again from
-the heterodyne physics, so the vectorised engine (:mod:`mixchart.products`,
-:func:`mixchart.analysis.evaluate`) can be checked against an independent
-implementation.
+the heterodyne physics and the documented level model, so the vectorised engine
+(:mod:`mixchart.products`, :func:`mixchart.analysis.evaluate`) can be checked
+against an independent implementation.  The only mixchart calls are
+:func:`mixchart.levels.build_table` (the mixer's level table is *input data*,
+read once into plain lists) and, for filter kinds whose formulas are not
+re-derived here (elliptic, Touchstone), :meth:`mixchart.filters.Filter.atten_db`
+on one scalar frequency at a time.
 
 Relations (standard heterodyne relations, derived by hand):
 
@@ -19,10 +23,16 @@ Relations (standard heterodyne relations, derived by hand):
 * Two closed bands overlap when neither lies wholly beyond the other (touching
   edges overlap).
 
+Levels and margins (:func:`sweep_levels`) follow the level model as documented in
+the :mod:`mixchart.analysis` module docstring and DEVELOPERS.md ("Level model in
+one page"); each rule is quoted where it is used.
+
 Used by tests/test_products.py, tests/test_analysis.py and benchmarks/bench_engine.py.
 """
 
 from __future__ import annotations
+
+import math
 
 
 def product_list(f_in_hz: float, f_lo_hz: float, bw_in_hz: float, max_order: int) -> list[tuple]:
@@ -102,8 +112,28 @@ def plan_lo(channel_hz: float, mode: str, side: str, if_hz: float, fixed_hz: flo
     return lo
 
 
+def wanted_conversion(direction: str, channel_hz: float, lo_hz: float, if_low_hz: float, if_high_hz: float) -> tuple:
+    """The wanted (1, 1) conversion of one channel: ``(f_in, f_out, sign)`` in Hz.
+
+    Derived by hand.  A receiver (``"down"``) takes the channel in and wants the (1, 1)
+    output that lands in the IF passband: the sum ``f + f_LO`` if it alone does, else the
+    difference ``|f - f_LO|`` (the usual superheterodyne conversion, also taken when a
+    grid or fixed LO leaves neither centre in the passband).  A transmitter (``"up"``)
+    wants the channel out: the IF input is ``|f - f_LO|`` and the wanted is the sum when
+    the channel is above the LO (``f = f_LO + f_IF``), the difference when below.
+    """
+    if direction == "down":
+        summ, diff = channel_hz + lo_hz, abs(channel_hz - lo_hz)
+        sum_in = if_low_hz <= summ <= if_high_hz
+        diff_in = if_low_hz <= diff <= if_high_hz
+        if sum_in and not diff_in:
+            return channel_hz, summ, 1
+        return channel_hz, diff, -1
+    return abs(channel_hz - lo_hz), channel_hz, (1 if channel_hz > lo_hz else -1)
+
+
 def sweep(plan, limit: int | None = None) -> list[dict]:
-    """Products, responses and the in-band product set of every channel of a plan.
+    """Products, responses, the in-band product set and the worst in-band spur of every channel.
 
     The plan is read only through its plain fields (``plan.rf.start_hz`` and so
     on); channels, LOs and the output passband are worked out here.
@@ -118,10 +148,14 @@ def sweep(plan, limit: int | None = None) -> list[dict]:
     Returns
     -------
     list of dict
-        One per channel: ``channel``, ``lo``, ``f_in``, ``products`` (list of
-        tuples as :func:`product_list`), ``responses`` (as :func:`response_list`,
-        receivers only) and ``in_band`` (set of ``(m, n, sign)`` overlapping the
-        output passband).
+        One per channel: ``channel``, ``lo``, ``f_in``, ``wanted_sign``,
+        ``products`` (list of tuples as :func:`product_list`), ``responses`` (as
+        :func:`response_list`, receivers only), ``in_band`` (set of ``(m, n,
+        sign)`` overlapping the output passband) and ``worst_in_band``: the
+        in-band product other than the wanted with the lowest ``(order, m,
+        sign)`` (lower orders are the stronger spurs; the frequency-only notion
+        of "worst", so that a benchmark of the products layer also does a
+        per-channel worst-case reduction), or None.
     """
     if_low = plan.if_.center_hz - plan.if_.bandwidth_hz / 2.0
     if_high = plan.if_.center_hz + plan.if_.bandwidth_hz / 2.0
@@ -134,9 +168,329 @@ def sweep(plan, limit: int | None = None) -> list[dict]:
     rows = []
     for ch in channels[:limit]:
         lo = plan_lo(ch, plan.lo.mode, plan.lo.side, plan.if_.center_hz, plan.lo.fixed_hz, plan.lo.step_hz)
-        f_in = ch if plan.direction == "down" else abs(ch - lo)
+        f_in, _f_out, wanted_sign = wanted_conversion(plan.direction, ch, lo, if_low, if_high)
         products = product_list(f_in, lo, bw, plan.max_order)
-        in_band = {(m, n, s) for m, n, s, _c, low, high in products if bands_overlap(low, high, out_low, out_high)}
+        in_band = set()
+        worst = None
+        for m, n, s, _c, low, high in products:
+            if bands_overlap(low, high, out_low, out_high):
+                in_band.add((m, n, s))
+                if not (m == 1 and n == 1 and s == wanted_sign):
+                    key = (m + n, m, s, n)
+                    if worst is None or key < worst:
+                        worst = key
         responses = response_list(lo, if_low, if_high, plan.max_order) if plan.direction == "down" else []
-        rows.append({"channel": ch, "lo": lo, "f_in": f_in, "products": products, "responses": responses, "in_band": in_band})
+        rows.append({"channel": ch, "lo": lo, "f_in": f_in, "wanted_sign": wanted_sign, "products": products,
+                     "responses": responses, "in_band": in_band,
+                     "worst_in_band": None if worst is None else (worst[1], worst[3], worst[2])})
     return rows
+
+
+# ------------------------------------------------------------------ levels and margins
+
+#: Level of a vanished product, dBc: mixchart.levels.FLOOR_DBC, restated from the
+#: levels.py docstring ("sit at the finite floor FLOOR_DBC = -300 dBc").
+FLOOR_DBC = -300.0
+#: LevelTable.level_dbc_at docstring: "offsets from the reference are clipped to +/-1000 dB".
+DRIVE_CLIP_DB = 1000.0
+_DB_PER_DECADE_POWER = 10.0
+
+
+def _db_one_plus(log10_x: float) -> float:
+    """``10·log10(1 + x)`` in dB given ``log10(x)``, without overflow (derived by hand)."""
+    if log10_x == math.inf:
+        return math.inf
+    if log10_x > 0.0:  # 10 log10(x (1 + 1/x)) = 10 log10 x + 10 log10(1 + 1/x)
+        return _DB_PER_DECADE_POWER * (log10_x + math.log10(1.0 + 10.0 ** -log10_x))
+    return _DB_PER_DECADE_POWER * math.log1p(10.0**log10_x) / math.log(10.0)
+
+
+def butterworth_loss_db(omega: float, order: int) -> float:
+    """Butterworth low-pass prototype loss ``10·log10(1 + Omega^(2n))``, dB.
+
+    Textbook formula (from memory: A. B. Williams & F. J. Taylor, *Electronic Filter
+    Design Handbook*, ch. 2, the Butterworth magnitude ``|H|^2 = 1/(1 + Omega^2n)``).
+    """
+    if omega == 0.0:
+        return 0.0
+    return _db_one_plus(2 * order * math.log10(omega))
+
+
+def chebyshev1_loss_db(omega: float, order: int, ripple_db: float) -> float:
+    """Chebyshev type I prototype loss ``10·log10(1 + eps²·T_n(Omega)²)``, dB.
+
+    ``eps² = 10^(ripple/10) - 1``; ``T_n(x) = cos(n·acos x)`` for ``|x| <= 1`` and
+    ``cosh(n·acosh x)`` above (textbook formula, from memory: Williams & Taylor, ch. 2).
+    """
+    eps_sq = 10.0 ** (ripple_db / 10.0) - 1.0
+    if omega <= 1.0:
+        t = math.cos(order * math.acos(omega))
+        return _DB_PER_DECADE_POWER * math.log10(1.0 + eps_sq * t * t)
+    if omega == math.inf:
+        return math.inf
+    x = order * math.acosh(omega)
+    log10_t = (x + math.log1p(math.exp(-2.0 * x)) - math.log(2.0)) / math.log(10.0)  # log10 cosh x
+    return _db_one_plus(math.log10(eps_sq) + 2.0 * log10_t)
+
+
+def tuned_circuit_loss_db(f_hz: float, f0_hz: float, q_loaded: float, stages: int) -> float:
+    """``stages`` single tuned circuits: each ``10·log10(1 + (Q·(f/f0 - f0/f))²)``, dB.
+
+    Textbook formula (from memory: Kennedy & Davis, *Electronic Communication Systems*,
+    the image-rejection ratio ``alpha = sqrt(1 + Q²·rho²)``, ``rho = f/f0 - f0/f``).
+    """
+    if f_hz == 0.0 or f_hz == math.inf:
+        return math.inf
+    q_rho = abs(q_loaded * (f_hz / f0_hz - f0_hz / f_hz))
+    if q_rho == 0.0:
+        return 0.0
+    return stages * _db_one_plus(2.0 * math.log10(q_rho))
+
+
+def _omega(spec, f_hz: float, f0_hz: float | None, arithmetic: bool) -> float:
+    """Normalised prototype frequency of a low/high/band-pass/band-stop filter.
+
+    Standard transforms (as scipy.signal.lp2hp/lp2bp/lp2bs; filters.PrototypeFilter docstring):
+    low-pass ``f/f_e``; high-pass ``f_e/f``; band-pass ``|f/f0 - f0/f|·f0/BW`` (geometric) or
+    ``2|f - f0|/BW`` (arithmetic, narrow-band); band-stop the reciprocal of the band-pass value.
+    """
+    response = spec.response
+    if response == "lowpass":
+        return f_hz / spec.f_edge_hz
+    if response == "highpass":
+        return math.inf if f_hz == 0.0 else spec.f_edge_hz / f_hz
+    if arithmetic:
+        band = abs(f_hz - f0_hz) * 2.0 / spec.bandwidth_hz
+    elif f_hz == 0.0 or f_hz == math.inf:
+        band = math.inf
+    else:
+        band = abs(f_hz / f0_hz - f0_hz / f_hz) * f0_hz / spec.bandwidth_hz
+    if response == "bandpass":
+        return band
+    return math.inf if band == 0.0 else 1.0 / band
+
+
+class FilterLoss:
+    """Loss of a plan's filter at one frequency, dB (positive = loss), plain floats.
+
+    Butterworth, Chebyshev type I, tuned-circuit, brick-wall and cascade filters are
+    re-derived from their textbook formulas above; elliptic and Touchstone filters call
+    :meth:`mixchart.filters.Filter.atten_db` on one scalar at a time.  A filter (or a
+    stage of a cascade) with ``tracks_channel`` is centred on the ``channel_hz`` given
+    (mixchart.filters docstring: "their centre is then given at evaluation time").
+    """
+
+    def __init__(self, spec, base_dir=None) -> None:
+        self.spec = spec
+        self.base_dir = base_dir
+        self.stages = list(spec.stages) if spec.kind == "cascade" else [spec]
+        self.tracks_channel = any(getattr(stage, "tracks_channel", False) for stage in self.stages)
+        self._built = {}
+
+    def __call__(self, f_hz: float, channel_hz: float | None) -> float:
+        return sum(self._stage(stage, i, f_hz, channel_hz) for i, stage in enumerate(self.stages))
+
+    def _stage(self, spec, index: int, f_hz: float, channel_hz: float | None) -> float:
+        f0 = getattr(spec, "f_center_hz", None)
+        if getattr(spec, "tracks_channel", False) and channel_hz is not None:
+            f0 = channel_hz
+        kind = spec.kind
+        if kind == "tuned":
+            return tuned_circuit_loss_db(f_hz, f0, spec.q_loaded, spec.stages)
+        if kind == "brickwall":  # filters.BrickWall: 0 dB edge to edge (edges included), stop_atten_db outside
+            return 0.0 if _omega(spec, f_hz, f0, arithmetic=True) <= 1.0 else spec.stop_atten_db
+        if kind == "butterworth":
+            return butterworth_loss_db(_omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order)
+        if kind == "chebyshev1":
+            return chebyshev1_loss_db(_omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order, spec.ripple_db)
+        # elliptic, touchstone: the library's own response, one scalar at a time
+        from mixchart.filters import build_filter
+
+        if index not in self._built:
+            self._built[index] = build_filter(spec, base_dir=self.base_dir)
+        built = self._built[index]
+        return float(built.atten_db(f_hz, f0 if built.tracks_channel else None))
+
+
+def product_label(direction: str, m: int, n: int, sign: int, wanted_sign: int) -> str:
+    """Label of an output product (mixchart.products.LABELS and analysis.FRAME_COLUMNS["label"]).
+
+    (0,1) LO leakage; (0,n>1) LO harmonic; (1,0) RF feedthrough of a receiver, IF
+    feedthrough of a transmitter (its input is the IF); the (1,1) of the wanted sign is
+    the wanted output; the other (1,1) is a transmitter's unwanted sideband, and a
+    receiver's "sum product" when it is the sum (else, when the wanted is the sum, a spur).
+    """
+    if m == 0:
+        return "LO leakage" if n == 1 else "LO harmonic"
+    if (m, n) == (1, 0):
+        return "RF feedthrough" if direction == "down" else "IF feedthrough"
+    if (m, n) == (1, 1):
+        if sign == wanted_sign:
+            return "wanted"
+        if direction == "up":
+            return "unwanted sideband"
+        return "sum product" if sign > 0 else "spur"
+    return "spur"
+
+
+def response_label(m: int, n: int, branch: int, wanted_branch: int) -> str:
+    """Label of a receiver response (mixchart.products.response_labels docstring, derived by hand).
+
+    (1,0) is IF feedthrough; the (1,1) branch holding the channel is the wanted input, the
+    other (1,1) branch the image; the (2,2) response on the wanted branch is the half-IF
+    response (high-side LO: ``(2·f_LO - f_IF)/2 = f_LO - f_IF/2``, halfway between the
+    wanted ``f_LO - f_IF`` and the LO).
+    """
+    if (m, n) == (1, 0):
+        return "IF feedthrough"
+    if (m, n) == (1, 1):
+        return "wanted" if branch == wanted_branch else "image"
+    if (m, n) == (2, 2) and branch == wanted_branch:
+        return "half-IF"
+    return "spur"
+
+
+def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
+    """Levels and margins of every product and response of every channel, in plain Python.
+
+    Every rule below is the documented level model, restated from the
+    :mod:`mixchart.analysis` module docstring ("analysis") and DEVELOPERS.md "Level
+    model in one page" ("dev"), not copied from the engine's code:
+
+    * Table level at a drive (levels.LevelTable.level_dbc_at docstring; dev):
+      ``T(m, n) + (m - 1)·(P - P_ref)``, the offset clipped to +/-1000 dB, never
+      below the floor -300 dBc, and vanished entries (at the floor) stay there.
+    * Products of the wanted signal (analysis; dev):
+      ``level = T(m, n) + (m - 1)·(P_mix - P_ref) - [A_out(f) - A_out(f_wanted)]``
+      with ``P_mix`` the signal level less the input filter's loss at the wanted
+      input (receiver: the preselector at the channel; transmitter: the IF filter at
+      the IF input), ``A_out`` the output filter (receiver: IF filter; transmitter:
+      RF filter) "at the point of the product's band nearest the output passband
+      centre", and ``f_wanted`` the wanted output centre.
+    * No output filter: "an ideal brick wall over the output passband (the IF
+      passband of a receiver; the RF tuning range, widened by half the signal
+      bandwidth, of a transmitter): products outside it do not reach the output"
+      (analysis): 0 dB in band, infinite loss (level -inf) outside.
+    * Receiver responses (analysis; dev):
+      ``level = T(m, n) + (m - 1)·(P_u - A_rf(f_in) - P_ref) - A_rf(f_in) + A_rf(f_wanted)
+      + (P_u - P_w)``: the table is read at the unwanted input's drive at the mixer,
+      ``P_u`` is ``signal.interferer_level_dbm`` (default: the wanted level ``P_w``),
+      ``f_wanted`` the channel.  The analysis docstring does not say at which point of
+      a response band ``A_rf(f_in)`` is taken; this reference takes the point nearest
+      the channel, the same choice as for products (the point nearest where the filter
+      passes most, for a filter centred on the channel).  "A receiver without a
+      described preselector rejects nothing by filtering": ``A_rf = 0``.
+    * ``margin = -level - min_rejection_db`` (analysis); the wanted product and the
+      wanted response have no margin (``+inf``) and never count as a worst case.
+    * Worst case of a channel: the smallest margin over its products and responses;
+      ties go to the first in family order (products before responses, then order,
+      ``m``, sign: mixchart.products.product_family / response_family docstrings).
+      Worst case of a product/response across the sweep: its smallest finite margin,
+      the first channel on ties.
+
+    Filters are evaluated by :class:`FilterLoss`; a filter with ``tracks_channel``
+    on the RF side (preselector, transmitter output filter) is centred on the channel.
+    The IF filter never tracks an RF channel.
+
+    Parameters
+    ----------
+    plan : mixchart.plan.Plan
+        The plan.
+    limit : int, optional
+        Only the first ``limit`` channels (for timing a subset).
+    base_dir : path-like, optional
+        Folder for the plan's relative file paths (CSV table, Touchstone).
+
+    Returns
+    -------
+    dict
+        ``channels``: one dict per channel with ``channel``, ``lo``, ``worst_margin_db``,
+        ``worst`` (the worst row) and ``rows`` (every product and response as a tuple
+        ``(kind, label, m, n, sign, f_center, f_low, f_high, level_dbc, margin_db)``);
+        ``worst_by_product``: ``{(kind, m, n, sign): (margin_db, channel_index, label)}``
+        for every product/response with a finite margin somewhere.
+    """
+    from mixchart.levels import build_table  # input data only: the mixer's level table
+
+    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
+    level_table = table.level_dbc.tolist()  # plain nested lists of floats, read once
+    rf_ref = float(table.rf_ref_dbm)
+    down = plan.direction == "down"
+    req = plan.requirement.min_rejection_db
+    p_w = plan.signal.level_dbm
+    p_u = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else p_w
+    if_low = plan.if_.center_hz - plan.if_.bandwidth_hz / 2.0
+    if_high = plan.if_.center_hz + plan.if_.bandwidth_hz / 2.0
+    bw = plan.signal.bandwidth_hz
+    if down:
+        out_low, out_high = if_low, if_high
+    else:
+        out_low, out_high = plan.rf.start_hz - bw / 2.0, plan.rf.stop_hz + bw / 2.0
+    out_centre = (out_low + out_high) / 2.0
+    rf_filter = None if plan.filters.rf is None else FilterLoss(plan.filters.rf, base_dir)
+    if_filter = None if plan.filters.if_ is None else FilterLoss(plan.filters.if_, base_dir)
+    input_filter, output_filter = (rf_filter, if_filter) if down else (if_filter, rf_filter)
+
+    def table_at(m: int, n: int, drive_dbm: float) -> float:
+        t = level_table[m][n]
+        if t <= FLOOR_DBC:
+            return FLOOR_DBC
+        offset = min(max(drive_dbm - rf_ref, -DRIVE_CLIP_DB), DRIVE_CLIP_DB)
+        level = t + (m - 1) * offset
+        return level if level > FLOOR_DBC else FLOOR_DBC
+
+    inf = math.inf
+    channels = []
+    worst_by_product: dict = {}
+    for index, row in enumerate(sweep(plan, limit)):
+        ch, lo, f_in, wanted_sign = row["channel"], row["lo"], row["f_in"], row["wanted_sign"]
+        f_out = ch + lo if (down and wanted_sign > 0) else (abs(ch - lo) if down else ch)
+        # RF-side filters are centred on the channel when they track it; the IF filter never is
+        rf_centre = ch
+        if input_filter is None:
+            p_mix = p_w
+        else:
+            p_mix = p_w - input_filter(f_in, rf_centre if down else None)
+        a_out_wanted = 0.0 if output_filter is None else output_filter(f_out, None if down else rf_centre)
+        in_band = row["in_band"]
+        rows = []
+        worst_key = None
+        worst = None
+        # ---- products of the wanted signal
+        for m, n, sign, centre, low, high in row["products"]:
+            label = product_label(plan.direction, m, n, sign, wanted_sign)
+            if output_filter is None:
+                a_rel = 0.0 if (m, n, sign) in in_band else inf
+            else:
+                point = min(max(out_centre, low), high)
+                a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted
+            level = table_at(m, n, p_mix) - a_rel
+            margin = inf if label == "wanted" else -level - req
+            rows.append(("product", label, m, n, sign, centre, low, high, level, margin))
+            if margin < inf:
+                key = (margin, 0, m + n, m, sign)
+                if worst_key is None or key < worst_key:
+                    worst_key, worst = key, rows[-1]
+                best = worst_by_product.get(("product", m, n, sign))
+                if best is None or margin < best[0]:
+                    worst_by_product[("product", m, n, sign)] = (margin, index, label)
+        # ---- receiver responses
+        if down:
+            wanted_branch = 1 if (wanted_sign < 0 and ch > lo) else -1  # the (1,1) branch holding the channel
+            a_w = 0.0 if rf_filter is None else rf_filter(ch, rf_centre)
+            for m, n, branch, centre, low, high in row["responses"]:
+                label = response_label(m, n, branch, wanted_branch)
+                a_in = 0.0 if rf_filter is None else rf_filter(min(max(ch, low), high), rf_centre)
+                level = table_at(m, n, p_u - a_in) - a_in + a_w + (p_u - p_w)
+                margin = inf if label == "wanted" else -level - req
+                rows.append(("response", label, m, n, branch, centre, low, high, level, margin))
+                if margin < inf:
+                    key = (margin, 1, m + n, m, branch)
+                    if worst_key is None or key < worst_key:
+                        worst_key, worst = key, rows[-1]
+                    best = worst_by_product.get(("response", m, n, branch))
+                    if best is None or margin < best[0]:
+                        worst_by_product[("response", m, n, branch)] = (margin, index, label)
+        channels.append({"channel": ch, "lo": lo, "worst_margin_db": inf if worst is None else worst[9],
+                         "worst": worst, "rows": rows})
+    return {"channels": channels, "worst_by_product": worst_by_product}

@@ -7,13 +7,15 @@ Unit multipliers are the SI prefixes: k = 10^3, M = 10^6, G = 10^9, T = 10^12
 from __future__ import annotations
 
 import math
+import re
 
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from mixchart.errors import MixchartError, UnitError
-from mixchart.units import engineering_scale, format_frequency, parse_frequency
+from mixchart.errors import MixchartError, PlanError, UnitError
+from mixchart.plan import plan_from_dict
+from mixchart.units import FREQUENCY_TEXT_PATTERN, engineering_scale, format_frequency, parse_frequency
 
 SI = "SI prefix (BIPM SI Brochure 9th ed., Table 7)"
 
@@ -160,3 +162,57 @@ def test_format_then_parse_round_trips_to_the_digits_shown(f_hz):
 def test_number_passes_through_unchanged(f_hz):
     # a float in Hz is returned as is (mixchart.units docstring: float64 Hz inside)
     assert parse_frequency(f_hz) == f_hz
+
+
+# ------------------------------------------------------------ millihertz versus megahertz
+
+
+@pytest.mark.parametrize(
+    ("text", "source"),
+    [
+        ("10 MHz", f"{SI}: M = 10^6, the SI spelling"),
+        ("10 mhz", "lower-case-only 'mhz' is read as MHz: nobody plans in millihertz (mixchart.units docstring)"),
+        ("10 MHZ", "case-insensitive unit names (mixchart.units docstring)"),
+        ("10 Mhz", "case-insensitive unit names (mixchart.units docstring)"),
+        ("10 mHZ", "only exactly 'mHz' is millihertz; other spellings are megahertz (mixchart.units docstring)"),
+        ("10MHz", f"{SI}; no space"),
+    ],
+)
+def test_megahertz_spellings_are_accepted(text, source):
+    assert parse_frequency(text) == 10_000_000.0, source
+
+
+@pytest.mark.parametrize("text", ["10 mHz", "10mHz", "  0.5 mHz ", "1e3 mHz"])
+def test_millihertz_is_refused_with_a_hint(text):
+    # "mHz" is the SI symbol for millihertz (BIPM SI Brochure 9th ed., Table 7: m = 10^-3), so
+    # reading it as 10^6 would be wrong by a factor of 10^9; it is refused, never guessed.
+    with pytest.raises(UnitError) as info:
+        parse_frequency(text, "if.center_hz")
+    message = str(info.value)
+    assert message == f"if.center_hz: {text!r} is invalid; 'mHz' is millihertz in SI; write 'MHz' for megahertz"
+    assert "\n" not in message
+
+
+def test_millihertz_is_refused_in_a_plan_and_as_a_forced_unit():
+    data = {"rf": {"start_hz": "100 mHz", "stop_hz": "100 MHz"}, "signal": {"bandwidth_hz": "1 kHz"},
+            "if": {"center_hz": "10 MHz", "bandwidth_hz": "1 MHz"}}
+    with pytest.raises(PlanError, match=r"^rf\.start_hz: '100 mHz' is invalid; 'mHz' is millihertz in SI; "
+                                        r"write 'MHz' for megahertz$"):
+        plan_from_dict(data)
+    with pytest.raises(UnitError, match=r"^unit: 'mHz' is invalid; 'mHz' is millihertz in SI; write 'MHz'"):
+        format_frequency(1e6, unit="mHz")
+    assert format_frequency(1e6, unit="MHz") == "1 MHz"
+
+
+@pytest.mark.parametrize("unit", ["Hz", "hz", "kHz", "KHZ", "MHz", "mhz", "MHZ", "Mhz", "mHZ", "mHz", "GHz", "thz",
+                                  "m", "M", "xHz", ""])
+def test_json_schema_pattern_accepts_exactly_what_the_parser_accepts(unit):
+    # The plan JSON Schema (mixchart.plan.plan_json_schema) uses FREQUENCY_TEXT_PATTERN for text
+    # frequencies; a text it accepts must parse, and one it refuses must not.
+    text = f"12.5 {unit}"
+    try:
+        parse_frequency(text)
+        parses = True
+    except UnitError:
+        parses = False
+    assert (re.match(FREQUENCY_TEXT_PATTERN, text) is not None) == parses
