@@ -96,9 +96,10 @@ def best_of(fn, repeat: int) -> float:
 def raw_layer(plan) -> np.ndarray:
     """Products layer over every channel, chunked: bands, responses, in-band test, worst in-band spur.
 
-    Returns, per channel, the column (into ``product_family(plan.max_order)``) of the in-band
-    product other than the wanted with the lowest (order, m, sign) -- the family is sorted that
-    way, so it is the first such column -- or -1.  The same work as ``reference.sweep``.
+    Down-conversion plans (the output passband is the IF).  Returns, per channel, the column
+    (into ``product_family(plan.max_order)``) of the in-band product other than the wanted with
+    the lowest (order, m, sign) -- the family is sorted that way, so it is the first such
+    column -- or -1.  The same work as ``reference.sweep``.
     """
     ch, lo = plan.channels_hz(), plan.lo_hz()
     pf, rf = product_family(plan.max_order), response_family(plan.max_order)

@@ -564,6 +564,25 @@ def test_evaluate_levels_and_margins_match_the_plain_python_reference(name):
     assert min(margins) < 0 < max(margins)
 
 
+@pytest.mark.parametrize("name", ["fm_receiver", "uplink_transmitter", "ku_block_converter"])
+def test_example_plans_match_the_plain_python_reference(name):
+    # the packaged example plans, every channel: worst margin and label, and the worst case of
+    # every product/response, as in the test above
+    path = example_path(name)
+    evaluation = evaluate(load_plan(path))
+    expected = ref.sweep_levels(evaluation.plan, base_dir=path.parent)
+    labels = evaluation.channels_frame()["label"]
+    for i, channel in enumerate(expected["channels"]):
+        assert_same_db(float(evaluation.worst_margin_db[i]), channel["worst_margin_db"], f"channel {i}")
+        assert labels.iloc[i] == channel["worst"][1], i
+    frame = evaluation.to_frame()
+    got = {_row_key(*k): margin for *k, margin in
+           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"])}
+    assert got.keys() == expected["worst_by_product"].keys()
+    for key, (margin, _channel, _label) in expected["worst_by_product"].items():
+        assert_same_db(got[key], margin, str(key))
+
+
 @pytest.mark.parametrize("seed", range(10))
 def test_evaluate_worst_margins_match_the_reference_on_random_plans(seed):
     plan = plan_from_dict(random_plan(np.random.default_rng(2000 + seed)))
@@ -590,7 +609,8 @@ def test_evaluate_worst_margins_match_the_reference_on_random_plans(seed):
          "derived by hand: 10 log10(1 + 2^10) = 30.107 dB (also the mixchart.filters.build_filter doctest)"),
         (lambda: ref.butterworth_loss_db(1e200, 10), 40000.0,
          "derived by hand: 10 log10(1 + (1e200)^20) = 10·4000 = 40000 dB, computed without overflow"),
-        (lambda: ref.chebyshev1_loss_db(1.0, 4, 0.5), 0.5, "Chebyshev I: T_n(1) = 1, so the loss at the ripple edge is the ripple"),
+        (lambda: ref.chebyshev1_loss_db(1.0, 4, 0.5), 0.5,
+         "Chebyshev I: T_n(1) = 1, so the loss at the ripple edge is the ripple"),
         (lambda: ref.chebyshev1_loss_db(0.0, 4, 0.5), 0.5, "Chebyshev I, even order: |T_4(0)| = 1, ripple at DC"),
         (lambda: ref.chebyshev1_loss_db(0.0, 5, 0.5), 0.0, "Chebyshev I, odd order: T_5(0) = 0, 0 dB at DC"),
         # T_3(2) = 4·2^3 - 3·2 = 26; eps^2 = 10^0.05 - 1 = 0.122018; 10 log10(1 + 0.122018·676) = 19.216 dB
