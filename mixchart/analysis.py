@@ -18,8 +18,10 @@ conversion: the transmitter's output spurs)::
 
 where ``P_mix`` is the wanted drive at the mixer (signal level less the input
 filter's loss) and ``A_out`` the output filter (IF filter of a receiver, RF
-filter of a transmitter) at the point of the product's band nearest the output
-passband centre.  An output filter that is not described is taken as an ideal
+filter of a transmitter) at the product band's least-loss point: the point of
+the band nearest the filter's own passband centre (the channel, for a filter
+that tracks it; 0 Hz for a low-pass, the top of the band for a high-pass).
+Filter losses are counted up to :data:`MAX_FILTER_LOSS_DB`.  An output filter that is not described is taken as an ideal
 brick wall over the output passband (the IF passband of a receiver; the RF
 tuning range, widened by half the signal bandwidth, of a transmitter): products
 outside it do not reach the output.
@@ -31,7 +33,8 @@ outside it do not reach the output.
           = T(m, n) + (m - 1)·(P_u - P_ref) - m·A_rf(f_in) + A_rf(f_wanted) + (P_u - P_w)
 
 i.e. preselector loss ``A`` at the unwanted input lowers the (m, n) output by
-``m·A``.  A receiver without a described preselector rejects nothing by
+``m·A``.  ``A_rf(f_in)`` is taken at the point of the responding input band
+nearest the channel (where a preselector centred on the channel passes most).  A receiver without a described preselector rejects nothing by
 filtering.  The response *rejection* is how much stronger than the wanted an
 unwanted input must be to give the same output.
 
@@ -71,6 +74,8 @@ __all__ = ["Evaluation", "Summary", "evaluate", "frame_records", "FRAME_COLUMNS"
 MAX_HIT_ROWS = 50_000
 #: A wanted signal this far (dB) down a fixed filter's skirt is reported in the warnings.
 WANTED_LOSS_WARN_DB = 3.0
+#: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
+MAX_FILTER_LOSS_DB = 400.0
 #: Channels processed per block; bounds peak memory whatever the sweep size.  Blocks of a
 #: few hundred channels keep the (channels x products) temporaries in cache and out of
 #: fresh-page faults: measured fastest for orders 7-15 on our machines.
@@ -272,6 +277,7 @@ class _Context:
     wanted_sign: np.ndarray
     out_low_hz: float  # output passband
     out_high_hz: float
+    out_filter_target_hz: float  # where the fixed output filter loses least
 
 
 def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
@@ -294,7 +300,9 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
         f_in = np.abs(channels - lo)
         half = plan.signal.bandwidth_hz / 2
         out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
-    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high)
+    output_filter = if_filter if plan.direction == "down" else rf_filter
+    target = _least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
+    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high, target)
 
 
 def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None) -> np.ndarray:
@@ -304,9 +312,37 @@ def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, cent
     c = None
     if filt.tracks_channel:
         c = centre
-    a = filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz)))
-    a_ref = filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz)))
+    a = _capped(filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz))))
+    a_ref = _capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))))
     return a - a_ref
+
+
+def _capped(atten_db: np.ndarray) -> np.ndarray:
+    """Filter loss limited to :data:`MAX_FILTER_LOSS_DB` (an exact zero of a response is not infinite here)."""
+    return np.minimum(atten_db, MAX_FILTER_LOSS_DB)
+
+
+def _least_loss_target_hz(filt: Filter | None, fallback_hz: float) -> float:
+    """Where a fixed filter loses least, nominally.
+
+    A band-pass filter or tuned circuit: its centre; otherwise the middle of its
+    nominal passband, 0 Hz when that starts at 0 (low-pass, band-stop) and
+    infinity when it has no top (high-pass).
+    """
+    if filt is None or filt.tracks_channel:
+        return fallback_hz
+    spec = filt.spec
+    centre = getattr(spec, "f_center_hz", None)
+    if centre is not None and (spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass"):
+        return float(centre)
+    low, high = filt.passband_hz()
+    if not (low == low and high == high):  # NaN: a cascade with no common passband
+        return fallback_hz
+    if low <= 0.0:
+        return 0.0
+    if math.isinf(high):
+        return math.inf
+    return 0.5 * (low + high)
 
 
 class _Derived:
@@ -430,7 +466,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         in_filter_centre = None
     if input_filter is not None:
         c = None if not input_filter.tracks_channel else in_filter_centre
-        drive = sig_dbm - input_filter.atten_db(f_in, c)
+        drive = sig_dbm - _capped(input_filter.atten_db(f_in, c))
     else:
         drive = np.full(nb, sig_dbm)
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
@@ -440,9 +476,11 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         # No output filter: an ideal brick wall over the output passband.
         out_atten = np.where(in_band, 0.0, np.inf)
     else:
-        out_centre = 0.5 * (ctx.out_low_hz + ctx.out_high_hz)
-        nearest = np.clip(out_centre, p_low, p_high)
+        # The product reaches the output through the least-loss point of its band: the
+        # point nearest the filter's own passband centre (the channel, if it tracks it).
         c = None if out_filter_centre is None else out_filter_centre[:, None]
+        target = c if (c is not None and output_filter.tracks_channel) else ctx.out_filter_target_hz
+        nearest = np.clip(target, p_low, p_high)
         out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c)
     p_level -= out_atten
     p_margin = margin[:, :k_p]
@@ -490,8 +528,8 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         # The unwanted input's loss at the band point nearest the channel (conservative).
         probe = np.clip(ch[:, None], r_low, r_high)
         c = ch[:, None] if ctx.rf_filter.tracks_channel else None
-        a_in = ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape))
-        a_w = ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None)[:, None]
+        a_in = _capped(ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape)))
+        a_w = _capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None))[:, None]
         mixer_drive = u_dbm - a_in
     else:
         a_in = np.broadcast_to(0.0, shape)
@@ -686,7 +724,11 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
     summary = Summary(
         worst_margin_db=float(worst_margin[i]),
         worst_channel_hz=float(ctx.channels_hz[i]),
-        worst_label=f"{worst['label']} ({worst['rf_harmonic']},{worst['lo_harmonic']})",
+        worst_label=(
+            f"{worst['label']} ({worst['rf_harmonic']},{worst['lo_harmonic']})"
+            if math.isfinite(worst_margin[i])
+            else "nothing reaches the output"
+        ),
         spur_free_fraction=float(np.mean(worst_margin >= 0)),
         n_channels=int(n_ch),
         n_failing_channels=int(np.sum(worst_margin < 0)),

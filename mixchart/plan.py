@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import os
 from functools import cached_property
 from pathlib import Path
@@ -83,11 +84,11 @@ class RfBand(_Strict):
     def _check(self) -> RfBand:
         if self.stop_hz < self.start_hz:
             raise ValueError(
-                f"stop_hz {format_frequency(self.stop_hz)} is below start_hz "
+                f"stop_hz: {format_frequency(self.stop_hz)} is below start_hz "
                 f"{format_frequency(self.start_hz)}"
             )
         if self.stop_hz > self.start_hz and self.step_hz is None:
-            raise ValueError("step_hz is required when stop_hz > start_hz")
+            raise ValueError("step_hz: missing; it is required when stop_hz > start_hz")
         return self
 
     @property
@@ -112,7 +113,10 @@ class Signal(_Strict):
         default=-30.0,
         ge=-200.0,
         le=60.0,
-        description="Wanted-signal level at the mixer's signal input, dBm.",
+        description=(
+            "Wanted-signal level ahead of the input-side filter (the preselector of a receiver, the IF "
+            "filter of a transmitter), dBm; the mixer's drive is this less that filter's loss."
+        ),
     )
     interferer_level_dbm: float | None = Field(
         default=None,
@@ -143,9 +147,9 @@ class LoSetting(_Strict):
     @model_validator(mode="after")
     def _check(self) -> LoSetting:
         if self.mode == "fixed" and self.fixed_hz is None:
-            raise ValueError("fixed_hz is required when mode is 'fixed'")
+            raise ValueError("fixed_hz: missing; it is required when mode is 'fixed'")
         if self.mode == "tracking" and self.fixed_hz is not None:
-            raise ValueError("fixed_hz is only used when mode is 'fixed'")
+            raise ValueError("fixed_hz: only used when mode is 'fixed'; remove it or set mode 'fixed'")
         return self
 
 
@@ -159,7 +163,7 @@ class IfBand(_Strict):
     def _check(self) -> IfBand:
         if self.bandwidth_hz >= 2 * self.center_hz:
             raise ValueError(
-                f"bandwidth_hz {format_frequency(self.bandwidth_hz)} puts the lower passband edge "
+                f"bandwidth_hz: {format_frequency(self.bandwidth_hz)} puts the lower passband edge "
                 f"at or below 0 Hz (centre {format_frequency(self.center_hz)})"
             )
         return self
@@ -241,12 +245,13 @@ class Plan(_Strict):
             )
         if self.lo.mode == "tracking" and self.lo.side == "low" and self.rf.start_hz <= self.if_.center_hz:
             raise ValueError(
-                f"low-side LO would be at or below 0 Hz: rf.start_hz {format_frequency(self.rf.start_hz)} "
+                f"lo.side: 'low' puts the LO at or below 0 Hz: rf.start_hz {format_frequency(self.rf.start_hz)} "
                 f"<= if.center_hz {format_frequency(self.if_.center_hz)}"
             )
-        if self.lo.step_hz is not None and self.lo.step_hz > self.if_.bandwidth_hz and self.lo.mode == "tracking":
-            # Legal but worth knowing; reported as a finding, not an error.
-            pass
+        if_filter = self.filters.if_
+        stages = [] if if_filter is None else list(if_filter.stages) if if_filter.kind == "cascade" else [if_filter]
+        if any(getattr(stage, "tracks_channel", False) for stage in stages):
+            raise ValueError("filters.if: an IF filter cannot track the channel (the IF is fixed); set tracks_channel false")
         return self
 
     # ------------------------------------------------------------------ sweep
@@ -382,6 +387,9 @@ def _one_line(exc: ValidationError, data: Any = None) -> PlanError:
         text = f"{loc}: missing; this field is required"
     elif first["type"] == "extra_forbidden":
         text = f"{loc}: unknown key (value {shown}); remove it or check its spelling"
+    elif isinstance(value, dict) and re.match(r"^[a-z_.]+: ", message):
+        # A whole-model check whose message already names the field and value it is about.
+        text = message if loc == "plan" else f"{loc}.{message}"
     else:
         text = f"{loc}: {shown} is invalid; {message}"
     return PlanError((text + more).replace("\n", " "))

@@ -287,6 +287,25 @@ class FilterLoss:
         self.tracks_channel = any(getattr(stage, "tracks_channel", False) for stage in self.stages)
         self._built = {}
 
+    def least_loss_hz(self) -> float:
+        """Where this fixed filter passes best, nominally (analysis docstring: "the filter's own
+        passband centre ... 0 Hz for a low-pass, the top of the band for a high-pass"): a band-pass
+        or tuned circuit's centre; 0 for a low-pass or band-stop; infinity for a high-pass.
+        Cascades and measured filters use the library's nominal passband (its middle)."""
+        spec = self.spec
+        if spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass":
+            return float(spec.f_center_hz)
+        if getattr(spec, "response", None) in ("lowpass", "bandstop"):
+            return 0.0
+        if getattr(spec, "response", None) == "highpass":
+            return math.inf
+        from mixchart.filters import build_filter
+
+        low, high = build_filter(spec, base_dir=self.base_dir).passband_hz()
+        if low <= 0.0:
+            return 0.0
+        return math.inf if math.isinf(high) else 0.5 * (low + high)
+
     def __call__(self, f_hz: float, channel_hz: float | None) -> float:
         return sum(self._stage(stage, i, f_hz, channel_hz) for i, stage in enumerate(self.stages))
 
@@ -365,8 +384,10 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
       with ``P_mix`` the signal level less the input filter's loss at the wanted
       input (receiver: the preselector at the channel; transmitter: the IF filter at
       the IF input), ``A_out`` the output filter (receiver: IF filter; transmitter:
-      RF filter) "at the point of the product's band nearest the output passband
-      centre", and ``f_wanted`` the wanted output centre.
+      RF filter) "at the product band's least-loss point: the point of the band
+      nearest the filter's own passband centre (the channel, for a filter that
+      tracks it; 0 Hz for a low-pass, the top of the band for a high-pass)", and
+      ``f_wanted`` the wanted output centre.
     * No output filter: "an ideal brick wall over the output passband (the IF
       passband of a receiver; the RF tuning range, widened by half the signal
       bandwidth, of a transmitter): products outside it do not reach the output"
@@ -427,9 +448,12 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     else:
         out_low, out_high = plan.rf.start_hz - bw / 2.0, plan.rf.stop_hz + bw / 2.0
     out_centre = (out_low + out_high) / 2.0
+    out_target = out_centre
     rf_filter = None if plan.filters.rf is None else FilterLoss(plan.filters.rf, base_dir)
     if_filter = None if plan.filters.if_ is None else FilterLoss(plan.filters.if_, base_dir)
     input_filter, output_filter = (rf_filter, if_filter) if down else (if_filter, rf_filter)
+    if output_filter is not None and not output_filter.tracks_channel:
+        out_target = output_filter.least_loss_hz()
 
     def table_at(m: int, n: int, drive_dbm: float) -> float:
         t = level_table[m][n]
@@ -462,7 +486,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
             if output_filter is None:
                 a_rel = 0.0 if (m, n, sign) in in_band else inf
             else:
-                point = min(max(out_centre, low), high)
+                point = min(max(ch if output_filter.tracks_channel else out_target, low), high)
                 a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted
             level = table_at(m, n, p_mix) - a_rel
             margin = inf if label == "wanted" else -level - req

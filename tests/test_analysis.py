@@ -627,10 +627,6 @@ def test_reference_filter_formulas(loss, expected_db, source):
     assert loss() == pytest.approx(expected_db, abs=5e-3), source
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "analysis docstring/engine: A_out is taken at the product band's point nearest the output passband "
-    "centre (the middle of the tuning range for a transmitter) even when the output filter tracks the "
-    "channel; the least-loss point is then the one nearest the channel. Reported to the lead."))
 def test_tracking_output_filter_passes_a_spur_that_covers_the_channel():
     # Invented transmitter: IF 400 MHz, signal 40 MHz wide, channels 1150 and 1850 MHz, low-side LO
     # (750 MHz for 1150 MHz), output filter = two tuned circuits tracking the channel.  Product

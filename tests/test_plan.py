@@ -292,7 +292,7 @@ BAD_FIELDS = [
     ("signal.bandwidth_hz", "NaN", "signal.bandwidth_hz: 'NaN' is invalid; give a frequency in Hz or text like '10.7 MHz'"),
     ("signal.bandwidth_hz", "inf Hz", "signal.bandwidth_hz: 'inf Hz' is invalid; give a frequency in Hz or text like '10.7 MHz'"),
     ("if.center_hz", 10**400, None),  # checked below: a 400-digit integer (regression: was OverflowError)
-    ("rf.stop_hz", "80 MHz", "rf: {...} is invalid; stop_hz 80 MHz is below start_hz 88 MHz"),
+    ("rf.stop_hz", "80 MHz", "rf.stop_hz: 80 MHz is below start_hz 88 MHz"),
     ("max_order", MAX_ORDER + 1, f"max_order: {MAX_ORDER + 1} is invalid; Input should be less than or equal to {MAX_ORDER}"),
     ("max_order", 1, "max_order: 1 is invalid; Input should be greater than or equal to 2"),
     ("max_order", "seven", "max_order: 'seven' is invalid; Input should be a valid integer, unable to parse string as an integer"),
@@ -310,10 +310,10 @@ BAD_FIELDS = [
     ("filters.if", {"kind": "butterworth", "response": "lowpass", "order": 3, "f_edge_hz": "20 MHz", "colour": 1},
      "filters.if.colour: unknown key (value 1); remove it or check its spelling"),
     ("signal.level_dbm", 99, "signal.level_dbm: 99 is invalid; Input should be less than or equal to 60"),
-    ("lo", {"mode": "fixed"}, "lo: {...} is invalid; fixed_hz is required when mode is 'fixed'"),
-    ("rf", {"start_hz": "88 MHz", "stop_hz": "108 MHz"}, "rf: {...} is invalid; step_hz is required when stop_hz > start_hz"),
+    ("lo", {"mode": "fixed"}, "lo.fixed_hz: missing; it is required when mode is 'fixed'"),
+    ("rf", {"start_hz": "88 MHz", "stop_hz": "108 MHz"}, "rf.step_hz: missing; it is required when stop_hz > start_hz"),
     ("if", {"center_hz": "100 kHz", "bandwidth_hz": "200 kHz"},
-     "if: {...} is invalid; bandwidth_hz 200 kHz puts the lower passband edge at or below 0 Hz (centre 100 kHz)"),
+     "if.bandwidth_hz: 200 kHz puts the lower passband edge at or below 0 Hz (centre 100 kHz)"),
     ("schema_version", 2, "schema_version: 2 is invalid; Input should be 1"),
 ]
 
@@ -388,7 +388,7 @@ def test_low_side_lo_below_zero_is_refused():
     with pytest.raises(PlanError) as info:
         plan_from_dict(data)
     assert str(info.value) == (
-        "plan: {...} is invalid; low-side LO would be at or below 0 Hz: "
+        "lo.side: 'low' puts the LO at or below 0 Hz: "
         "rf.start_hz 5 MHz <= if.center_hz 10.7 MHz"
     )
 
