@@ -47,3 +47,41 @@ def test_fixed_preselector_off_the_channel_is_reported() -> None:
     warnings = " ".join(evaluate(plan).warnings)
     # 88 and 108 MHz are outside a 93-103 MHz preselector: the edge channels are many dB down
     assert "filters.rf: the wanted signal at" in warnings
+
+
+def test_a_filter_that_nulls_the_wanted_signal_gives_finite_margins_and_a_warning() -> None:
+    # A geometric band-stop centred exactly on the IF has an exact zero of transmission there
+    # (infinite loss).  Relative levels must stay defined: no NaN, no numpy warning (warnings are
+    # errors in this suite), and the warning says the wanted signal is far down the filter.
+    plan, _ = example_plan("fm_receiver")
+    plan = plan.with_changes(
+        {"filters.if": {"kind": "butterworth", "response": "bandstop", "order": 3,
+                        "f_center_hz": "10.7 MHz", "bandwidth_hz": "300 kHz"}, "lo.step_hz": None}
+    )
+    ev = evaluate(plan)
+    frame = ev.to_frame()
+    assert not frame["margin_db"].isna().any()
+    assert not frame["level_dbc"].isna().any()
+    assert "filters.if: the wanted signal at 10.7 MHz is" in " ".join(ev.warnings)
+
+
+def test_a_transmitter_whose_spurs_all_miss_the_output_says_so() -> None:
+    # No output filter: an ideal brick wall over the RF band, 999.5-1000.5 MHz.  One 1 MHz wide
+    # channel at 1000 MHz from a 350 MHz IF, low-side LO 650 MHz.  Derived by hand, order <= 5:
+    # m·350 ± n·650 gives 50, 250, 300, 400, 600, 650, 700, 750, 950, 1050, 1300, 1350, 1400,
+    # 1600, 1650, 1700, 1750, 1950, 2000, 2050 MHz ... and 1000 MHz only for the wanted (1,1) sum,
+    # so nothing else reaches the output.  (At a 400 MHz IF the (2,3) would: |800 - 1800| = 1000.)
+    from mixchart.plan import plan_from_dict
+
+    plan = plan_from_dict({
+        "direction": "up",
+        "rf": {"start_hz": "1000 MHz", "stop_hz": "1000 MHz"},
+        "signal": {"bandwidth_hz": "1 MHz"},
+        "lo": {"mode": "tracking", "side": "low"},
+        "if": {"center_hz": "350 MHz", "bandwidth_hz": "2 MHz"},
+        "max_order": 5,
+    })
+    summary = evaluate(plan).summary
+    assert summary.worst_margin_db == float("inf")
+    assert summary.worst_label == "nothing reaches the output"
+    assert summary.spur_free_fraction == 1.0
