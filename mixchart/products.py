@@ -128,10 +128,20 @@ class ResponseFamily:
         return int(self.rf_harmonic.size)
 
 
-def _frozen(*arrays: np.ndarray) -> tuple[np.ndarray, ...]:
-    for array in arrays:
-        array.setflags(write=False)
-    return arrays
+def _family_columns(max_order: object, m_min: int, both_when) -> tuple[np.ndarray, ...]:
+    """Read-only (m, n, ±1) columns for 1 <= m + n <= max_order, m >= m_min, sorted by order,
+    then m, then -1 before +1; a pair gets both signs when ``both_when(m, n)`` is true, else +1."""
+    max_order = _check_order(max_order)
+    rows = []
+    for order in range(1, max_order + 1):
+        for m in range(m_min, order + 1):
+            n = order - m
+            rows.extend((m, n, s) for s in ((-1, 1) if both_when(m, n) else (1,)))
+    table = np.array(rows, dtype=np.int64)
+    columns = tuple(table[:, k].copy() for k in range(3))
+    for column in columns:
+        column.setflags(write=False)
+    return columns
 
 
 @lru_cache(maxsize=64)
@@ -154,15 +164,7 @@ def product_family(max_order: int) -> ProductFamily:
     >>> list(zip(fam.rf_harmonic, fam.lo_harmonic, fam.sign))  # doctest: +NORMALIZE_WHITESPACE
     [(0, 1, 1), (1, 0, 1), (0, 2, 1), (1, 1, -1), (1, 1, 1), (2, 0, 1)]
     """
-    max_order = _check_order(max_order)
-    rows = []
-    for order in range(1, max_order + 1):
-        for m in range(order + 1):
-            n = order - m
-            signs = (-1, 1) if (m and n) else (1,)
-            rows.extend((m, n, s) for s in signs)
-    table = np.array(rows, dtype=np.int64)
-    return ProductFamily(*_frozen(table[:, 0].copy(), table[:, 1].copy(), table[:, 2].copy()))
+    return ProductFamily(*_family_columns(max_order, m_min=0, both_when=lambda m, n: m and n))
 
 
 @lru_cache(maxsize=64)
@@ -179,15 +181,7 @@ def response_family(max_order: int) -> ResponseFamily:
     ResponseFamily
         Sorted by order, then ``m``, then branch (``-1`` first).
     """
-    max_order = _check_order(max_order)
-    rows = []
-    for order in range(1, max_order + 1):
-        for m in range(1, order + 1):
-            n = order - m
-            branches = (-1, 1) if n else (1,)
-            rows.extend((m, n, b) for b in branches)
-    table = np.array(rows, dtype=np.int64)
-    return ResponseFamily(*_frozen(table[:, 0].copy(), table[:, 1].copy(), table[:, 2].copy()))
+    return ResponseFamily(*_family_columns(max_order, m_min=1, both_when=lambda m, n: n))
 
 
 def product_bands(
