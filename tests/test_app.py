@@ -192,3 +192,17 @@ def test_state_is_usable_without_widgets() -> None:
     assert seen == ["view"]
     assert state.channel_index == state.evaluation.nearest_channel(2.35e9)
     assert ViewOptions().channel_hz is None
+
+
+def test_one_refresh_is_one_patch_message(app: PlannerApp) -> None:
+    # jupyter_bokeh's stock widget sends one PATCH-DOC (3+ comm messages) per changed source;
+    # ours collects a refresh's changes into one PATCH-DOC (header, metadata, content).
+    sent: list[dict] = []
+    original = app.bokeh.send
+    app.bokeh.send = lambda content, buffers=None: (sent.append(content), original(content, buffers))[1]
+    assert app.state.try_update({"requirement.min_rejection_db": 73.0}) is None
+    assert len(sent) == 3, [list(m) for m in sent]
+    header = json.loads(sent[0]["payload"])
+    assert header["msgtype"] == "PATCH-DOC"
+    events = json.loads(sent[2]["payload"])["events"]
+    assert len(events) > 1  # several sources changed, all in this one message
