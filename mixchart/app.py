@@ -358,21 +358,47 @@ def _freq_text(f_hz: float | None) -> str:
     return "" if f_hz is None else format_frequency(f_hz, 9)
 
 
+def _row() -> Any:
+    """A fresh 300 px layout: each widget needs its own, or hiding one hides all that share it."""
+    import ipywidgets as w
+
+    return w.Layout(width="300px")
+
+
+#: Which filter fields each kind uses (the rest are hidden).
+_FILTER_FIELDS = {
+    "none": (),
+    "tuned": ("order", "centre", "q"),
+    "butterworth": ("order", "centre", "bandwidth"),
+    "chebyshev1": ("order", "centre", "bandwidth", "ripple"),
+    "elliptic": ("order", "centre", "bandwidth", "ripple", "stop"),
+    "brickwall": ("centre", "bandwidth"),
+    "custom": (),
+}
+
+
+def _show_filter_fields(fc: FilterControls) -> None:
+    """Show only the fields the chosen filter kind uses; the JSON box is always there."""
+    used = _FILTER_FIELDS.get(fc.kind.value, ())
+    for field in ("order", "centre", "bandwidth", "q", "ripple", "stop"):
+        getattr(fc, field).layout.display = None if field in used else "none"
+    fc.order.description = "stages" if fc.kind.value == "tuned" else "order"
+
+
 def _filter_controls(name: str, label: str, tracking_default: bool) -> FilterControls:
     import ipywidgets as w
 
-    lay = w.Layout(width="300px")
     style = {"description_width": "92px"}
-    kind = w.Dropdown(options=_FILTER_KINDS, value="none", description=label, layout=lay, style=style)
-    order = w.BoundedIntText(value=3, min=1, max=20, description="order/stages", layout=lay, style=style)
+    kind = w.Dropdown(options=_FILTER_KINDS, value="none", description=label, layout=_row(), style=style)
+    order = w.BoundedIntText(value=3, min=1, max=20, description="order", layout=_row(), style=style)
     centre = w.Text(
-        value="track" if tracking_default else "", description="centre", layout=lay, style=style,
+        value="track" if tracking_default else "", description="centre", layout=_row(), style=style,
         continuous_update=False, placeholder="'track' or e.g. 10.7 MHz",
     )
-    bandwidth = w.Text(value="", description="bandwidth", layout=lay, style=style, continuous_update=False)
-    q = w.BoundedFloatText(value=50.0, min=0.1, max=1e6, description="loaded Q", layout=lay, style=style)
-    ripple = w.BoundedFloatText(value=0.5, min=0.001, max=10, description="ripple dB", layout=lay, style=style)
-    stop = w.BoundedFloatText(value=60.0, min=1, max=300, description="stop dB", layout=lay, style=style)
+    bandwidth = w.Text(value="", description="bandwidth", layout=_row(), style=style, continuous_update=False)
+    q = w.BoundedFloatText(value=50.0, min=0.1, max=1e6, description="loaded Q", layout=_row(), style=style)
+    ripple = w.BoundedFloatText(value=0.5, min=0.001, max=10, description="ripple dB", layout=_row(), style=style)
+    stop = w.BoundedFloatText(value=60.0, min=1, max=300, description="stop dB", layout=_row(), style=style)
     spec_json = w.Textarea(
         value="", description="JSON", layout=w.Layout(width="300px", height="70px"), style=style,
         continuous_update=False,
@@ -380,7 +406,10 @@ def _filter_controls(name: str, label: str, tracking_default: bool) -> FilterCon
     error = w.HTML(value="", layout=w.Layout(width="300px"))
     box = w.VBox([kind, order, centre, bandwidth, q, ripple, stop, spec_json, error])
     box.add_class(f"mixchart-filter-{name}")
-    return FilterControls(kind, order, centre, bandwidth, q, ripple, stop, spec_json, error, box)
+    controls = FilterControls(kind, order, centre, bandwidth, q, ripple, stop, spec_json, error, box)
+    kind.observe(lambda _change: _show_filter_fields(controls), names="value")
+    _show_filter_fields(controls)
+    return controls
 
 
 def build_controls(plan: Plan, n_channels: int) -> Controls:
@@ -399,12 +428,11 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     """
     import ipywidgets as w
 
-    lay = w.Layout(width="300px")
     style = {"description_width": "112px"}
 
     def text(key: str, value: float | None) -> Any:
         field, label = _TEXT_FIELDS[key]
-        return w.Text(value=_freq_text(value), description=label, layout=lay, style=style, continuous_update=False)
+        return w.Text(value=_freq_text(value), description=label, layout=_row(), style=style, continuous_update=False)
 
     errors = {key: w.HTML(value="", layout=w.Layout(width="300px")) for key in _TEXT_FIELDS}
     c: dict[str, Any] = {}
@@ -423,52 +451,52 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     for key, (path, _label) in _TEXT_FIELDS.items():
         c[key] = text(key, _plan_value(plan, path))
     c["sig_level"] = w.FloatSlider(
-        value=plan.signal.level_dbm, min=-120, max=20, step=1, description="signal (dBm)", layout=lay, style=style,
+        value=plan.signal.level_dbm, min=-120, max=20, step=1, description="signal (dBm)", layout=_row(), style=style,
         continuous_update=False, readout_format=".0f",
     )
     c["max_order"] = w.IntSlider(
-        value=plan.max_order, min=2, max=MAX_ORDER, description="max order", layout=lay, style=style,
+        value=plan.max_order, min=2, max=MAX_ORDER, description="max order", layout=_row(), style=style,
         continuous_update=False,
     )
     c["requirement"] = w.FloatSlider(
-        value=plan.requirement.min_rejection_db, min=0, max=150, step=1, description="required (dB)", layout=lay,
+        value=plan.requirement.min_rejection_db, min=0, max=150, step=1, description="required (dB)", layout=_row(),
         style=style, continuous_update=False, readout_format=".0f",
     )
     c["topology"] = w.Dropdown(
         options=[("double-balanced", "double_balanced"), ("single-balanced", "single_balanced"), ("single-ended", "single_ended")],
-        value=plan.mixer.topology, description="topology", layout=lay, style=style,
+        value=plan.mixer.topology, description="topology", layout=_row(), style=style,
     )
     c["balance"] = w.FloatSlider(
-        value=plan.mixer.balance_db, min=0, max=80, step=1, description="balance (dB)", layout=lay, style=style,
+        value=plan.mixer.balance_db, min=0, max=80, step=1, description="balance (dB)", layout=_row(), style=style,
         continuous_update=False, readout_format=".0f",
     )
     c["table_path"] = w.Text(
-        value=plan.mixer.table, description="level table", layout=lay, style=style, continuous_update=False,
+        value=plan.mixer.table, description="level table", layout=_row(), style=style, continuous_update=False,
         placeholder="builtin or a .csv path",
     )
-    c["rf_ref"] = w.FloatText(value=plan.mixer.rf_ref_dbm, description="table RF ref (dBm)", layout=lay, style=style)
-    c["lo_drive"] = w.FloatText(value=plan.mixer.lo_drive_dbm, description="LO drive (dBm)", layout=lay, style=style)
+    c["rf_ref"] = w.FloatText(value=plan.mixer.rf_ref_dbm, description="table ref (dBm)", layout=_row(), style=style)
+    c["lo_drive"] = w.FloatText(value=plan.mixer.lo_drive_dbm, description="LO drive (dBm)", layout=_row(), style=style)
     errors["mixer"] = w.HTML(value="", layout=w.Layout(width="300px"))
     errors["plan"] = w.HTML(value="", layout=w.Layout(width="300px"))
     rf_label = "preselector" if plan.direction == "down" else "output filter"
     rf_filter = _filter_controls("rf", rf_label, tracking_default=True)
     if_filter = _filter_controls("if", "IF filter", tracking_default=False)
     c["channel"] = w.IntSlider(
-        value=0, min=0, max=max(n_channels - 1, 0), description="channel", layout=lay, style=style,
+        value=0, min=0, max=max(n_channels - 1, 0), description="channel", layout=_row(), style=style,
         readout=False, continuous_update=True,
     )
     c["channel_text"] = w.HTML(value="")
     c["normalised"] = w.Checkbox(value=False, description="normalise to LO", indent=False)
     c["orders_shown"] = w.IntSlider(
-        value=plan.max_order, min=2, max=plan.max_order, description="orders shown", layout=lay, style=style,
+        value=plan.max_order, min=2, max=plan.max_order, description="orders shown", layout=_row(), style=style,
     )
     c["show_clear"] = w.Checkbox(value=True, description="show clear products", indent=False)
     c["keep_ref"] = w.Button(description="Keep as reference", icon="thumb-tack", layout=w.Layout(width="146px"))
     c["clear_ref"] = w.Button(description="Clear reference", layout=w.Layout(width="146px"))
-    c["save_path"] = w.Text(value="plan.json", description="file", layout=lay, style=style)
+    c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style)
     c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
     c["upload"] = w.FileUpload(accept=".json", multiple=False, description="Open plan…", layout=w.Layout(width="146px"))
-    c["load_path"] = w.Text(value="", description="load file", layout=lay, style=style, placeholder="path on the server")
+    c["load_path"] = w.Text(value="", description="load file", layout=_row(), style=style, placeholder="path on the server")
     c["load"] = w.Button(description="Load", layout=w.Layout(width="146px"))
     c["snapshot"] = w.Button(description="HTML snapshot", layout=w.Layout(width="146px"))
     c["file_msg"] = w.HTML(value="", layout=w.Layout(width="300px"))
