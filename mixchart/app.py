@@ -290,6 +290,9 @@ class Controls:
     side: Any
     lo_fixed: Any
     lo_step: Any
+    interferer: Any
+    name: Any
+    notes: Any
     rf_start: Any
     rf_stop: Any
     rf_step: Any
@@ -493,6 +496,16 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     c["show_clear"] = w.Checkbox(value=True, description="show clear products", indent=False)
     c["keep_ref"] = w.Button(description="Keep as reference", icon="thumb-tack", layout=w.Layout(width="146px"))
     c["clear_ref"] = w.Button(description="Clear reference", layout=w.Layout(width="146px"))
+    c["interferer"] = w.Text(
+        value="" if plan.signal.interferer_level_dbm is None else f"{plan.signal.interferer_level_dbm:g}",
+        description="interferer (dBm)", layout=_row(), style=style, continuous_update=False,
+        placeholder="blank: same as the signal",
+    )
+    c["name"] = w.Text(value=plan.name, description="plan name", layout=_row(), style=style, continuous_update=False)
+    c["notes"] = w.Textarea(
+        value=plan.notes, description="notes", layout=w.Layout(width="300px", height="60px"), style=style,
+        continuous_update=False,
+    )
     c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style)
     c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
     c["upload"] = w.FileUpload(accept=".json", multiple=False, description="Open plan…", layout=w.Layout(width="146px"))
@@ -513,7 +526,7 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
 
     plan_tab = w.VBox(
         rows("direction", "rf_start", "rf_stop", "rf_step", "if_center", "if_bandwidth", "lo_mode", "side",
-             "lo_fixed", "lo_step", "sig_bandwidth", "sig_level", "max_order", "requirement")
+             "lo_fixed", "lo_step", "sig_bandwidth", "sig_level", "interferer", "max_order", "requirement")
         + [errors["plan"]]
     )
     filter_tab = w.VBox([rf_filter.box, if_filter.box])
@@ -521,6 +534,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     view_tab = w.VBox([c["channel"], c["channel_text"], c["orders_shown"], c["normalised"], c["show_clear"]])
     file_tab = w.VBox(
         [
+            c["name"],
+            c["notes"],
             w.HBox([c["keep_ref"], c["clear_ref"]]),
             c["save_path"],
             w.HBox([c["save"], c["snapshot"]]),
@@ -681,7 +696,10 @@ class PlannerApp:
         c = self.controls
         for key, (path, _label) in _TEXT_FIELDS.items():
             c.__dict__[key].observe(self._text_handler(key, path), names="value")
+        c.interferer.observe(self._interferer_handler, names="value")
         simple = {
+            "name": "name",
+            "notes": "notes",
             "direction": "direction",
             "lo_mode": "lo.mode",
             "side": "lo.side",
@@ -752,6 +770,20 @@ class PlannerApp:
             self.controls.errors[error_key].value = _error_html(error or "")
 
         return handler
+
+    def _interferer_handler(self, change: dict) -> None:
+        if self._syncing:
+            return
+        text = str(change["new"]).strip()
+        try:
+            value = None if text == "" else round(float(text), 2)
+        except ValueError:
+            self.controls.errors["plan"].value = _error_html(
+                f"signal.interferer_level_dbm: {text!r} is invalid; give a level in dBm, or leave it blank"
+            )
+            return
+        error = self.state.try_update({"signal.interferer_level_dbm": value})
+        self.controls.errors["plan"].value = _error_html(error or "")
 
     def _float_handler(self, path: str, digits: int) -> Callable[[dict], None]:
         def handler(change: dict) -> None:
@@ -972,6 +1004,10 @@ class PlannerApp:
             c.sig_level.value = plan.signal.level_dbm
             c.max_order.value = plan.max_order
             c.requirement.value = plan.requirement.min_rejection_db
+            level = plan.signal.interferer_level_dbm
+            c.interferer.value = "" if level is None else f"{level:g}"
+            c.name.value = plan.name
+            c.notes.value = plan.notes
             c.topology.value = plan.mixer.topology
             c.balance.value = plan.mixer.balance_db
             c.table_path.value = plan.mixer.table

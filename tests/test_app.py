@@ -217,3 +217,20 @@ def test_filter_form_shows_only_the_fields_of_its_kind(app: PlannerApp) -> None:
     shown = {f for f in ("order", "centre", "bandwidth", "q", "ripple", "stop") if getattr(fc, f).layout.display != "none"}
     assert shown == {"order", "centre", "bandwidth", "ripple", "stop"} and fc.order.description == "order"
     assert fc.kind.layout.display != "none"  # hiding a field never hides the kind selector
+
+
+def test_name_notes_and_interferer_level_are_editable(app: PlannerApp) -> None:
+    app.controls.name.value = "tuner, option B"
+    app.controls.notes.value = "try a 21.4 MHz IF next"
+    assert (app.state.plan.name, app.state.plan.notes) == ("tuner, option B", "try a 21.4 MHz IF next")
+    before = app.state.evaluation.to_frame()
+    app.controls.interferer.value = "-20"  # unwanted inputs 10 dB above the -30 dBm wanted signal
+    assert app.state.plan.signal.interferer_level_dbm == -20.0
+    after = app.state.evaluation.to_frame()
+    image = lambda f: f[(f["label"] == "image")]["level_dbc"].iloc[0]  # noqa: E731
+    # derived by hand: a (1,1) response moves 1 dB per dB of interferer level (m = 1)
+    assert image(after) - image(before) == pytest.approx(10.0)
+    app.controls.interferer.value = "loud"
+    assert "interferer_level_dbm" in app.controls.errors["plan"].value
+    app.controls.interferer.value = ""
+    assert app.state.plan.signal.interferer_level_dbm is None
