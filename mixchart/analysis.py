@@ -779,14 +779,14 @@ def _warnings(ctx: _Context) -> list[str]:
             out.append(f"LO grid error up to {format_frequency(worst_step)}: the wanted output is offset by as much")
     down = plan.direction == "down"
     wanted_at = (("filters.rf", ctx.rf_filter, ctx.channels_hz), ("filters.if", ctx.if_filter, ctx.f_out_hz if down else ctx.f_in_hz))
-    for field, filt, f_wanted in wanted_at:
+    for name, filt, f_wanted in wanted_at:
         if filt is None or filt.tracks_channel:
             continue  # a tracking filter follows the wanted signal by construction
         loss = filt.atten_db(f_wanted) - _passband_loss_db(filt)
         k = int(np.argmax(loss))
         if loss[k] > WANTED_LOSS_WARN_DB:
             out.append(
-                f"{field}: the wanted signal at {format_frequency(f_wanted[k])} is {loss[k]:.1f} dB down the filter's "
+                f"{name}: the wanted signal at {format_frequency(f_wanted[k])} is {loss[k]:.1f} dB down the filter's "
                 f"skirt (channel {format_frequency(ctx.channels_hz[k])}); move the filter with the plan"
             )
     drive = plan.signal.level_dbm

@@ -8,6 +8,7 @@ repository as ``notebooks/planner.ipynb``; a test keeps the two identical.
 
 from __future__ import annotations
 
+import importlib.util
 import json
 import os
 import shutil
@@ -106,13 +107,8 @@ def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0, open_brows
     int
         Exit status: 0 after Ctrl-C, 2 if Voila is missing or fails to start.
     """
-    if shutil.which("voila") is None:
-        try:
-            import voila  # noqa: F401
-        except ImportError:
-            raise MixchartError(
-                "serve: Voila is not installed; install it with: pip install 'mixchart[app]'"
-            ) from None
+    if importlib.util.find_spec("voila") is None:
+        raise MixchartError("serve: Voila is not installed; install it with: pip install 'mixchart[app]'")
     port = port or _free_port()
     folder = Path(tempfile.mkdtemp(prefix="mixchart-serve-"))
     notebook = folder / "planner.ipynb"
