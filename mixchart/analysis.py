@@ -229,6 +229,10 @@ class Evaluation:
         """The built ``(rf, if)`` filters (None where the plan describes none)."""
         return self._context.rf_filter, self._context.if_filter
 
+    def failing_channels_hz(self) -> np.ndarray:
+        """Centres of the channels with at least one product or response below the requirement, Hz."""
+        return self.channels_hz[self.worst_margin_db < 0]
+
     def nearest_channel(self, f_hz: float) -> int:
         """Index of the channel closest to ``f_hz`` (Hz)."""
         return int(np.argmin(np.abs(self.channels_hz - f_hz)))

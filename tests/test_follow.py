@@ -85,3 +85,16 @@ def test_a_transmitter_whose_spurs_all_miss_the_output_says_so() -> None:
     assert summary.worst_margin_db == float("inf")
     assert summary.worst_label == "nothing reaches the output"
     assert summary.spur_free_fraction == 1.0
+
+
+def test_failing_channels_are_listed() -> None:
+    # Derived by hand: three tracking tuned circuits of Q 40 reject the image of a 100 MHz
+    # channel (121.4 MHz) by 3·10·log10(1 + (40·(121.4/100 - 100/121.4))^2) = 71.7 dB > 70 dB,
+    # and the rejection falls as the channel rises, so only channels above 100 MHz can fail;
+    # at 108 MHz it is 3·10·log10(1 + (40·(129.4/108 - 108/129.4))^2) = 69.7 dB < 70 dB.
+    plan, _ = example_plan("fm_receiver")
+    ev = evaluate(plan)
+    failing = ev.failing_channels_hz()
+    assert failing.size == ev.summary.n_failing_channels > 0
+    assert failing.min() > 100e6 and failing.max() == 108e6
+    assert set(failing) == set(ev.channels_hz[ev.worst_margin_db < 0])
