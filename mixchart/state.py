@@ -1,0 +1,245 @@
+"""The planner's state, without any widget: the plan being edited, a reference, the view.
+
+:class:`PlanState` validates every change (a bad change leaves the last valid
+plan in place and returns the one-line message) and tells its listeners what
+changed.  It is what :mod:`mixchart.app` wires widgets to, and what tests drive
+without a browser.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import replace
+from pathlib import Path
+from typing import Any, Callable
+
+import numpy as np
+
+from .analysis import Evaluation, evaluate
+from .chart import ViewOptions
+from .errors import MixchartError
+from .plan import Plan, load_plan, loads_plan, save_plan
+from .units import parse_frequency
+
+__all__ = ["PlanState", "example_plan", "Listener"]
+
+Listener = Callable[["PlanState", str], None]
+
+
+def example_plan(name: str = "fm_receiver") -> tuple[Plan, Path]:
+    """A built-in example plan and its folder."""
+    from .cli import example_path
+
+    path = example_path(name)
+    return load_plan(path), path.parent
+
+
+class PlanState:
+    """The app's state, without any widget.
+
+    Parameters
+    ----------
+    plan : Plan
+        The plan to start from.
+    base_dir : path-like, optional
+        Folder for relative file paths inside the plan.
+
+    Attributes
+    ----------
+    plan : Plan
+        The current (always valid) plan.
+    evaluation : Evaluation
+        Its evaluation.
+    reference : tuple of (Plan, Evaluation) or None
+        The plan kept for comparison.
+    view : ViewOptions
+        Channel, normalisation and shown orders.
+    """
+
+    def __init__(self, plan: Plan, base_dir: str | os.PathLike[str] | None = None) -> None:
+        self.base_dir = None if base_dir is None else Path(base_dir)
+        self.plan = plan
+        self.evaluation = evaluate(plan, base_dir=self.base_dir)
+        self.reference: tuple[Plan, Evaluation] | None = None
+        self.view = ViewOptions()
+        self._listeners: list[Listener] = []
+
+    def observe(self, listener: Listener) -> None:
+        """Call ``listener(state, what)`` after each change; ``what`` is
+        ``"plan"``, ``"view"`` or ``"reference"``."""
+        self._listeners.append(listener)
+
+    def _notify(self, what: str) -> None:
+        for listener in list(self._listeners):
+            listener(self, what)
+
+    # --------------------------------------------------------------- plan
+    def try_update(self, changes: dict[str, Any]) -> str | None:
+        """Apply changes at dotted JSON paths if the result is a valid plan.
+
+        Parameters
+        ----------
+        changes : dict
+            e.g. ``{"if.center_hz": "21.4 MHz"}``.
+
+        Returns
+        -------
+        str or None
+            The one-line error if the change was refused (the plan is then
+            unchanged), else None.  A change that leaves the plan as it was
+            does nothing (so a repeated event is harmless).
+        """
+        try:
+            new = self.plan.with_changes(_filters_follow(self.plan, changes))
+            if new == self.plan:
+                return None
+            result = evaluate(new, base_dir=self.base_dir)
+        except MixchartError as exc:
+            return str(exc)
+        self.plan, self.evaluation = new, result
+        self._notify("plan")
+        return None
+
+    def replace_plan(self, plan: Plan, base_dir: str | os.PathLike[str] | None = None) -> str | None:
+        """Replace the whole plan (after a load).  Returns an error text or None."""
+        folder = self.base_dir if base_dir is None else Path(base_dir)
+        try:
+            result = evaluate(plan, base_dir=folder)
+        except MixchartError as exc:
+            return str(exc)
+        self.plan, self.evaluation, self.base_dir = plan, result, folder
+        self.view = replace(self.view, channel_hz=None)
+        self._notify("plan")
+        return None
+
+    def load_text(self, text: str | bytes) -> str | None:
+        """Load a plan from JSON text (e.g. an uploaded file).  Returns an error text or None."""
+        try:
+            plan = loads_plan(text)
+        except MixchartError as exc:
+            return str(exc)
+        return self.replace_plan(plan)
+
+    def load_path(self, path: str | os.PathLike[str]) -> str | None:
+        """Load a plan file.  Returns an error text or None."""
+        try:
+            plan = load_plan(path)
+        except MixchartError as exc:
+            return str(exc)
+        return self.replace_plan(plan, Path(path).resolve().parent)
+
+    def save(self, path: str | os.PathLike[str]) -> Path:
+        """Save the current plan atomically; re-loading it re-evaluates to what is shown."""
+        return save_plan(self.plan, path)
+
+    # --------------------------------------------------------------- view
+    def set_view(self, **changes: Any) -> None:
+        """Change view options (see :class:`~mixchart.chart.ViewOptions`)."""
+        new = replace(self.view, **changes)
+        if new != self.view:
+            self.view = new
+            self._notify("view")
+
+    @property
+    def channel_index(self) -> int:
+        """Index of the channel the output plane shows."""
+        if self.view.channel_hz is None:
+            return int(np.argmin(self.evaluation.worst_margin_db))
+        return self.evaluation.nearest_channel(self.view.channel_hz)
+
+    # ---------------------------------------------------------- reference
+    def keep_reference(self) -> None:
+        """Keep the current plan as the reference for comparison."""
+        self.reference = (self.plan, self.evaluation)
+        self._notify("reference")
+
+    def clear_reference(self) -> None:
+        """Forget the reference plan."""
+        if self.reference is not None:
+            self.reference = None
+            self._notify("reference")
+
+    # ---------------------------------------------------------- drag edits
+    def apply_band_drag(self, band: str, low: float, high: float) -> str | None:
+        """Apply a dragged band from the chart.
+
+        Parameters
+        ----------
+        band : {"rf", "if"}
+            Which band was dragged.
+        low, high : float
+            New edges, Hz (any order).  The RF band keeps its raster; a band is
+            moved to the dragged centre and, if its width changed by more than
+            1 %, resized.
+
+        Returns
+        -------
+        str or None
+            Error text if the result is not a valid plan.
+        """
+        low, high = sorted((float(low), float(high)))
+        if not (math.isfinite(low) and math.isfinite(high)) or high <= 0:
+            return f"{band} band: dragged to {low!r}..{high!r} Hz, which is not a usable band"
+        centre, width = 0.5 * (low + high), high - low
+        plan = self.plan
+        if band == "if":
+            old_w = plan.if_.bandwidth_hz
+            new_w = width if abs(width - old_w) > 0.01 * old_w else old_w
+            return self.try_update({"if.center_hz": _snap(centre), "if.bandwidth_hz": _snap(new_w)})
+        half_sig = plan.signal.bandwidth_hz / 2
+        old_lo, old_hi = plan.rf.start_hz - half_sig, plan.rf.stop_hz + half_sig
+        old_w = old_hi - old_lo
+        shift = centre - 0.5 * (old_lo + old_hi)
+        start, stop = plan.rf.start_hz + shift, plan.rf.stop_hz + shift
+        if abs(width - old_w) > 0.01 * max(old_w, 1.0):
+            start, stop = low + half_sig, max(high - half_sig, low + half_sig)
+        step = plan.rf.step_hz
+        if step:
+            start = round(start / step) * step
+            stop = start + math.floor((stop - start) / step + 1e-9) * step
+        return self.try_update({"rf.start_hz": _snap(start), "rf.stop_hz": _snap(stop)})
+
+
+def _filters_follow(plan: Plan, changes: dict[str, Any]) -> dict[str, Any]:
+    """Move a fixed filter along with the band it was centred on.
+
+    When the IF centre moves and the IF filter was centred on the old IF centre,
+    the filter moves too; likewise a fixed RF filter centred on the RF band
+    follows the band.  (A filter centred elsewhere is the user's choice and
+    stays.)  Returns the changes with the filter moves added.
+    """
+    out = dict(changes)
+
+    def centred(spec: Any, f_hz: float) -> bool:
+        centre = getattr(spec, "f_center_hz", None)
+        return (
+            spec is not None
+            and not getattr(spec, "tracks_channel", False)
+            and centre is not None
+            and abs(centre - f_hz) <= 1e-9 * f_hz
+        )
+
+    if "if.center_hz" in changes and "filters.if" not in changes and centred(plan.filters.if_, plan.if_.center_hz):
+        try:
+            out["filters.if.f_center_hz"] = parse_frequency(changes["if.center_hz"], "if.center_hz")
+        except MixchartError:
+            pass  # the plan change itself reports the bad value
+    if ("rf.start_hz" in changes or "rf.stop_hz" in changes) and "filters.rf" not in changes:
+        old_mid = 0.5 * (plan.rf.start_hz + plan.rf.stop_hz)
+        if centred(plan.filters.rf, old_mid):
+            try:
+                start = parse_frequency(changes.get("rf.start_hz", plan.rf.start_hz), "rf.start_hz")
+                stop = parse_frequency(changes.get("rf.stop_hz", plan.rf.stop_hz), "rf.stop_hz")
+            except MixchartError:
+                return out
+            out["filters.rf.f_center_hz"] = 0.5 * (start + stop)
+    return out
+
+
+def _snap(f_hz: float) -> float:
+    """Round a dragged frequency to 6 significant digits (no float drift in the plan)."""
+    if f_hz <= 0 or not math.isfinite(f_hz):
+        return f_hz
+    digits = 6 - int(math.floor(math.log10(f_hz))) - 1
+    return float(round(f_hz, digits))
