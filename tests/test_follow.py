@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from mixchart.analysis import evaluate
-from mixchart.app import PlanState, example_plan
+from mixchart.state import PlanState, example_plan
 
 
 def test_moving_the_if_moves_an_if_filter_centred_on_it() -> None:
