@@ -812,8 +812,3 @@ def _passband_loss_db(filt: Filter) -> float:
         high = 4 * max(low, 1.0)
     grid = np.linspace(low, high, 129)
     return float(np.min(filt.atten_db(grid)))
-
-
-def level_floor_dbc() -> float:
-    """Level given to products the mixer model says vanish, dBc."""
-    return FLOOR_DBC
