@@ -52,7 +52,7 @@ import numpy as np
 import pandas as pd
 
 from .filters import Filter, build_filter
-from .levels import FLOOR_DBC, LevelTable, build_table
+from .levels import LevelTable, build_table
 from .plan import Plan
 from .products import (
     LABELS,
