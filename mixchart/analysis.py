@@ -565,8 +565,8 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         "f_high_hz": r_high,
         "in_band": np.broadcast_to(True, shape),
         "table_dbc": table_r,
-        # what the drive and the filter did, for display: -(level - table)
-        "rf_atten_db": _Derived(lambda level, table: -(level - table), r_level, table_r),
+        # the preselector's part of the level: m·A(f_in) - A(f_wanted)
+        "rf_atten_db": _Derived(lambda a, w, mm: mm * a - w, a_in, np.broadcast_to(a_w, shape), m),
         "if_atten_db": zero,
         "level_dbc": r_level,
         "rejection_db": _Derived(lambda level: -level + (u_dbm - sig_dbm), r_level),
