@@ -437,6 +437,10 @@ class PlannerApp:
         self._syncing = False
         self.chart: ChartHandle = build_chart(chart_data(state.evaluation, state.view), width=chart_width, height=470)
         self.controls = build_controls(state.plan, state.evaluation.channels_hz.size)
+        from bokeh.events import Tap
+
+        # before the widget is made: the browser learns which UI events to send from its first render
+        self.chart.tuning.on_event(Tap, self._on_tap)
         self.bokeh = BatchedBokehModel(self.chart.layout)
         self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
         self.status = w.HTML(value="")
@@ -510,9 +514,6 @@ class PlannerApp:
         c.upload.observe(self._on_upload, names="value")
         for name in ("out_output_band", "out_input_band", "rf_band"):
             self.chart.sources[name].on_change("data", self._drag_handler(name))
-        from bokeh.events import Tap
-
-        self.chart.tuning.on_event(Tap, self._on_tap)
 
     def _guarded(self, fn: Callable[[], None]) -> None:
         if self._syncing:

@@ -402,3 +402,21 @@ def test_low_side_injection_moves_the_plan_line(app):
     _wait_until(lambda: _canon(bh.source_data(page, "tuning_plan")) == _canon(before), "the high-side plan line again")
     _wait_until(lambda: "high-side" in _status(page), "high-side in the status")
     _assert_clean(page)
+
+
+def test_clicking_the_tuning_plane_picks_the_nearest_channel(app):
+    page = app.page
+    _open_tab(page, "View")
+    now = bh.source_data(page, "tuning_now")
+    target = 95.03 if abs(now["x"][0] - 95.0) > 1 else 101.03  # somewhere else in the 88-108 MHz band
+    (x, y), = bh.data_to_screen(page, "tuning_plane", [(target, now["y"][0])])
+    page.mouse.click(x, y)
+    # the channel raster is 100 kHz: the nearest channel centre to the click
+    expected = round(target * 10) / 10
+    after = _wait_until(
+        lambda: (d := bh.source_data(page, "tuning_now")) and abs(d["x"][0] - expected) < 0.051 and d,
+        "the clicked channel",
+    )
+    assert after["channel"][0] == format_frequency(after["x"][0] * MHZ)
+    assert f"channel {format_frequency(after['x'][0] * MHZ)}" in page.locator(".mixchart-channel-text").first.inner_text()
+    _assert_clean(page)
