@@ -11,7 +11,9 @@ starts from off the page and checks changes relative to it, and the tests that
 change the plan only as a side step (requirement slider, bad entry, injection
 side) put it back, so they pass in any order.  The IF drag deliberately leaves
 its change in place, and the channel test leaves the view on another channel;
-the save test then saves whatever the page shows.
+the save test then saves whatever the page shows.  The RF-band drag and the
+click on the tuning plane also leave their changes; they read their start
+from the page too.
 
 The page is 1600 px wide: at the harness's default 1280 px the output plane is
 clipped (the controls and both planes do not fit in one row and the row does
@@ -419,4 +421,30 @@ def test_clicking_the_tuning_plane_picks_the_nearest_channel(app):
     )
     assert after["channel"][0] == format_frequency(after["x"][0] * MHZ)
     assert f"channel {format_frequency(after['x'][0] * MHZ)}" in page.locator(".mixchart-channel-text").first.inner_text()
+    _assert_clean(page)
+
+
+def test_dragging_the_rf_band_moves_the_tuning_range(app):
+    page = app.page
+    _open_tab(page, "Plan")
+    start0 = parse_frequency(_field(page, "rf-start"))
+    stop0 = parse_frequency(_field(page, "rf-stop"))
+    step = parse_frequency(_field(page, "rf-step"))
+    band = bh.source_data(page, "rf_band")
+    x_mid = 0.5 * (band["x0"][0] + band["x1"][0])
+    y_lo = _figure_attr(page, "tuning_plane", "y_range.start")
+    y_hi = _figure_attr(page, "tuning_plane", "y_range.end")
+    y = y_lo + 0.1 * (y_hi - y_lo)  # low in the plane, clear of the plan line and the current channel
+    (sx0, _), (sx1, _) = bh.data_to_screen(page, "tuning_plane", [(x_mid, y), (x_mid + 1.0, y)])
+    mhz_per_px = 1.0 / abs(sx1 - sx0)
+
+    bh.drag(page, "tuning_plane", (x_mid, y), (x_mid - 2.0, y))  # left by 2 MHz
+
+    text = _wait_until(lambda: (t := _field(page, "rf-start")) != format_frequency(start0, 9) and t, "a new RF start")
+    start1 = parse_frequency(text)
+    stop1 = parse_frequency(_field(page, "rf-stop"))
+    # the band keeps its width and its 100 kHz raster (derived by hand: 88 MHz - 2 MHz = 86 MHz)
+    assert start1 == pytest.approx(start0 - 2.0 * MHZ, abs=2 * mhz_per_px * MHZ + step)
+    assert stop1 - start1 == pytest.approx(stop0 - start0)
+    assert round(start1 / step) * step == pytest.approx(start1)
     _assert_clean(page)
