@@ -234,3 +234,15 @@ def test_name_notes_and_interferer_level_are_editable(app: PlannerApp) -> None:
     assert "interferer_level_dbm" in app.controls.errors["plan"].value
     app.controls.interferer.value = ""
     assert app.state.plan.signal.interferer_level_dbm is None
+
+
+def test_snapshot_from_the_app_writes_an_offline_report(app: PlannerApp, tmp_path) -> None:
+    app.state.try_update({"name": "tuner <draft>"})
+    app.state.keep_reference()
+    app.state.try_update({"lo.side": "low"})
+    path = app.snapshot(str(tmp_path / "meeting.html"))
+    assert path is not None and "wrote" in app.controls.file_msg.value
+    text = path.read_text(encoding="utf-8")
+    assert "tuner &lt;draft&gt;" in text and "tuner <draft>" not in text  # user text escaped
+    assert 'id="reference-json"' in text  # the kept reference travels with the snapshot
+    assert "<script src=\"http" not in text  # BokehJS inline: opens offline
