@@ -75,7 +75,7 @@ def app(tmp_path_factory, voila_server, browser_page_factory, artifacts_dir):
     return SimpleNamespace(page=page, server=server, root=root, plan_path=plan_path, shots=artifacts_dir)
 
 
-def _wait_until(fn, what: str, timeout_s: float = 20.0, interval_s: float = 0.05):
+def _wait_until(fn, what: str, timeout_s: float = 45.0, interval_s: float = 0.05):
     """Poll ``fn()`` until it returns something truthy; return that."""
     deadline = time.monotonic() + timeout_s
     while True:
@@ -132,7 +132,7 @@ def _canon(data) -> str:
     return json.dumps(data, sort_keys=True)
 
 
-def _source_changed(page, name: str, before: dict, *, timeout_s: float = 20.0) -> dict:
+def _source_changed(page, name: str, before: dict, *, timeout_s: float = 45.0) -> dict:
     """Wait until a source differs from ``before`` (NaN-aware, unlike a plain ``!=``); return it."""
     old = _canon(before)
     return _wait_until(
