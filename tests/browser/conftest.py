@@ -386,6 +386,7 @@ def voila_server(tmp_path_factory):
             url=f"http://127.0.0.1:{port}/", port=port, notebook=notebook, log_path=log_path, proc=proc
         )
         servers[key] = server
+        _RUNNING.append(server)
         deadline = time.monotonic() + timeout_s
         while not _port_open(port):
             if proc.poll() is not None:
@@ -405,3 +406,37 @@ def voila_server(tmp_path_factory):
     yield start
     for server in servers.values():
         _stop_server(server)
+        if server in _RUNNING:
+            _RUNNING.remove(server)
+
+
+_RUNNING: list[VoilaServer] = []
+
+
+@pytest.hookimpl(hookwrapper=True)
+def pytest_runtest_makereport(item, call):
+    """On a failed browser test, keep a screenshot and show the Voila logs' tails.
+
+    A failure on a loaded CI machine is otherwise hard to read after the fact:
+    the screenshot goes to ``tests/browser/artifacts/<test>-failure.png`` and the
+    last lines of each running server's log are added to the report.
+    """
+    outcome = yield
+    report = outcome.get_result()
+    if report.when != "call" or not report.failed:
+        return
+    pages = []
+    for value in item.funcargs.values():
+        page = getattr(value, "page", value)
+        if hasattr(page, "screenshot") and hasattr(page, "mouse"):
+            pages.append(page)
+    folder = Path(__file__).resolve().parent / "artifacts"
+    folder.mkdir(exist_ok=True)
+    for i, page in enumerate(pages):
+        try:
+            page.screenshot(path=str(folder / f"{item.name}-failure{i or ''}.png"), full_page=True)
+        except Exception as exc:  # noqa: BLE001 - a diagnostic must not hide the real failure
+            report.sections.append(("failure screenshot", f"could not take it: {exc}"))
+    for server in _RUNNING:
+        tail = "\n".join(server.log_text().splitlines()[-40:])
+        report.sections.append((f"voila log tail ({server.notebook.name}, port {server.port})", tail))
