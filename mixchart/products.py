@@ -621,6 +621,7 @@ def _strip_coefficients(direction: str, family: ProductFamily, t_low: float, t_h
     return a, b, lo, hi, meta
 
 
+@lru_cache(maxsize=32)
 def tuning_plane_strips(
     direction: str, max_order: int, if_low_hz: float, if_high_hz: float, window: tuple[float, float, float, float]
 ) -> Strips:
@@ -646,7 +647,8 @@ def tuning_plane_strips(
     Returns
     -------
     Strips
-        Only strips that cover part of the window.
+        Only strips that cover part of the window.  Results are cached (the
+        arguments are plain numbers), so the arrays are read-only.
     """
     family = product_family(max_order)
     a, b, c_lo, c_hi, (m, n, s) = _strip_coefficients(direction, family, if_low_hz, if_high_hz)
@@ -687,4 +689,8 @@ def tuning_plane_strips(
         order = np.argsort(angle, kind="stable")
         xs.append(x[order])
         ys.append(y[order])
-    return Strips(xs=xs, ys=ys, rf_harmonic=m[keep], lo_harmonic=n[keep], sign=s[keep])
+    strips = Strips(xs=xs, ys=ys, rf_harmonic=m[keep], lo_harmonic=n[keep], sign=s[keep])
+    # cached (a channel change redraws the same strips): hand out read-only arrays
+    for array in (*xs, *ys, strips.rf_harmonic, strips.lo_harmonic, strips.sign):
+        array.setflags(write=False)
+    return strips

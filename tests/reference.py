@@ -480,6 +480,19 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         rows = []
         worst_key = None
         worst = None
+
+        def record(kind, label, m, n, sign, centre, low, high, level, index=index, rows=rows):
+            """Keep a row; track the channel's worst and each (kind, m, n, sign)'s worst over the sweep."""
+            nonlocal worst_key, worst
+            margin = inf if label == "wanted" else -level - req
+            rows.append((kind, label, m, n, sign, centre, low, high, level, margin))
+            if margin < inf:
+                key = (margin, 0 if kind == "product" else 1, m + n, m, sign)
+                if worst_key is None or key < worst_key:
+                    worst_key, worst = key, rows[-1]
+                best = worst_by_product.get((kind, m, n, sign))
+                if best is None or margin < best[0]:
+                    worst_by_product[(kind, m, n, sign)] = (margin, index, label)
         # ---- products of the wanted signal
         for m, n, sign, centre, low, high in row["products"]:
             label = product_label(plan.direction, m, n, sign, wanted_sign)
@@ -489,15 +502,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
                 point = min(max(ch if output_filter.tracks_channel else out_target, low), high)
                 a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted
             level = table_at(m, n, p_mix) - a_rel
-            margin = inf if label == "wanted" else -level - req
-            rows.append(("product", label, m, n, sign, centre, low, high, level, margin))
-            if margin < inf:
-                key = (margin, 0, m + n, m, sign)
-                if worst_key is None or key < worst_key:
-                    worst_key, worst = key, rows[-1]
-                best = worst_by_product.get(("product", m, n, sign))
-                if best is None or margin < best[0]:
-                    worst_by_product[("product", m, n, sign)] = (margin, index, label)
+            record("product", label, m, n, sign, centre, low, high, level)
         # ---- receiver responses
         if down:
             wanted_branch = 1 if (wanted_sign < 0 and ch > lo) else -1  # the (1,1) branch holding the channel
@@ -506,15 +511,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
                 label = response_label(m, n, branch, wanted_branch)
                 a_in = 0.0 if rf_filter is None else rf_filter(min(max(ch, low), high), rf_centre)
                 level = table_at(m, n, p_u - a_in) - a_in + a_w + (p_u - p_w)
-                margin = inf if label == "wanted" else -level - req
-                rows.append(("response", label, m, n, branch, centre, low, high, level, margin))
-                if margin < inf:
-                    key = (margin, 1, m + n, m, branch)
-                    if worst_key is None or key < worst_key:
-                        worst_key, worst = key, rows[-1]
-                    best = worst_by_product.get(("response", m, n, branch))
-                    if best is None or margin < best[0]:
-                        worst_by_product[("response", m, n, branch)] = (margin, index, label)
+                record("response", label, m, n, branch, centre, low, high, level)
         channels.append({"channel": ch, "lo": lo, "worst_margin_db": inf if worst is None else worst[9],
                          "worst": worst, "rows": rows})
     return {"channels": channels, "worst_by_product": worst_by_product}
