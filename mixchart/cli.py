@@ -54,19 +54,24 @@ def _fmt_db(value: float) -> str:
 def _text_table(frame, top: int) -> str:
     from .units import format_frequency
 
+    shown = frame.head(top)
+    channel = [format_frequency(f, 7) for f in shown["channel_hz"]]
+    lo = [format_frequency(f, 7) for f in shown["lo_hz"]]
+    band = [f"{format_frequency(a, 7)}-{format_frequency(b, 7)}" for a, b in zip(shown["f_low_hz"], shown["f_high_hz"])]
+    # frequency columns as wide as their longest entry, so long values never run together
+    w_ch, w_lo, w_band = (max([len(head), *map(len, col)]) for head, col in
+                          (("channel", channel), ("LO", lo), ("spur/input band", band)))
     lines = [
-        f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>12} {'LO':>12} "
-        f"{'spur/input band':>27} {'level dBc':>9} {'margin':>7} {'need RF':>7} {'need IF':>7}"
+        f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>{w_ch}} {'LO':>{w_lo}} "
+        f"{'spur/input band':>{w_band}} {'level dBc':>10} {'margin':>7} {'need RF':>7} {'need IF':>7}"
     ]
-    for row in frame.head(top).itertuples(index=False):
-        band = f"{format_frequency(row.f_low_hz, 7)}-{format_frequency(row.f_high_hz, 7)}"
+    for k, row in enumerate(shown.itertuples(index=False)):
         need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:7.1f}"
         need_if = "" if row.extra_if_db != row.extra_if_db else f"{row.extra_if_db:7.1f}"
         lines.append(
             f"{row.kind:<8} {row.label:<17} {row.rf_harmonic:>2} {row.lo_harmonic:>2} "
-            f"{'+' if row.sign > 0 else '-':>1} {format_frequency(row.channel_hz, 7):>12} "
-            f"{format_frequency(row.lo_hz, 7):>12} {band:>27} {_fmt_db(row.level_dbc):>9} "
-            f"{_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7}"
+            f"{'+' if row.sign > 0 else '-':>1} {channel[k]:>{w_ch}} {lo[k]:>{w_lo}} "
+            f"{band[k]:>{w_band}} {_fmt_db(row.level_dbc):>10} {_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7}"
         )
     if len(frame) > top:
         lines.append(f"... {len(frame) - top} more rows (use --top)")
