@@ -313,7 +313,6 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         [
             c["name"],
             c["notes"],
-            w.HBox([c["keep_ref"], c["clear_ref"]]),
             c["save_path"],
             w.HBox([c["save"], c["snapshot"]]),
             w.HBox([c["upload"]]),
@@ -326,7 +325,10 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     for i, title in enumerate(["Plan", "Filters", "Mixer", "View", "File"]):
         tabs.set_title(i, title)
     tabs.layout.width = "340px"
-    return Controls(rf_filter=rf_filter, if_filter=if_filter, errors=errors, panel=tabs, **c)
+    # Compare sits under the tabs, always in view: it is what a design meeting reaches for.
+    compare = w.HBox([c["keep_ref"], c["clear_ref"]], layout=w.Layout(margin="6px 0 0 0"))
+    panel = w.VBox([tabs, compare], layout=w.Layout(width="340px"))
+    return Controls(rf_filter=rf_filter, if_filter=if_filter, errors=errors, panel=panel, **c)
 
 
 # ===================================================================== wiring
