@@ -57,12 +57,14 @@ from .plan import Plan
 from .products import (
     LABELS,
     WANTED,
+    ResponseFamily,
     is_inverted,
     overlaps,
     product_bands,
     product_family,
     product_labels,
     response_bands,
+    response_bands_at,
     response_family,
     response_labels,
 )
@@ -349,6 +351,27 @@ def _least_loss_target_hz(filt: Filter | None, fallback_hz: float) -> float:
     return 0.5 * (low + high)
 
 
+def _gather(column, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    """Values of a (Cb, K) block column at the (row, column) pairs, as a fresh 1-D array.
+
+    A broadcast view is read from the one row or column it repeats, and a C-contiguous
+    array through one flat ``take``: both several times faster than ``column[rows, cols]``.
+    Computed columns (:class:`_Derived`, :class:`_ByGroup`) gather their inputs the same way.
+    """
+    if not isinstance(column, np.ndarray):
+        return column.gather(rows, cols)
+    row_stride, col_stride = column.strides
+    if row_stride == 0 and col_stride == 0:
+        return np.full(rows.size, column[0, 0], dtype=column.dtype)
+    if row_stride == 0:
+        return column[0].take(cols)
+    if col_stride == 0:
+        return column[:, 0].take(rows)
+    if column.flags.c_contiguous:
+        return column.ravel().take(rows * column.shape[1] + cols)
+    return np.asarray(column[rows, cols])
+
+
 class _Derived:
     """A (Cb, K) float column computed only at the (row, column) pairs asked for."""
 
@@ -358,8 +381,8 @@ class _Derived:
         self.fn = fn
         self.arrays = arrays
 
-    def __getitem__(self, index) -> np.ndarray:
-        return self.fn(*(array[index] for array in self.arrays))
+    def gather(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        return self.fn(*(_gather(array, rows, cols) for array in self.arrays))
 
 
 class _Block:
@@ -370,29 +393,55 @@ class _Block:
     computed on demand, so nothing is copied to join the two families.
     ``margin_db`` is the joined (Cb, K) margin that the reductions need (the
     parts' margins are views of it); :meth:`take` gathers the rows asked for.
+    Columns that depend only on the product/response (m, n, sign, ...) or only on
+    the channel are joined once here, so that :meth:`take` reads them in one go.
     """
 
     def __init__(self, parts: list[dict[str, np.ndarray]], margin_db: np.ndarray) -> None:
         self.parts = parts
         self.widths = [part["margin_db"].shape[1] for part in parts]
         self.margin_db = margin_db
+        self.by_column: dict[str, np.ndarray] = {}  # (K,) values of the joined block's columns
+        self.by_row: dict[str, np.ndarray] = {}  # (Cb,) values, the same in both families
+        if len(parts) == 2:
+            first, second = parts
+            for key, a in first.items():
+                b = second[key]
+                if key == "margin_db" or not (isinstance(a, np.ndarray) and isinstance(b, np.ndarray)):
+                    continue
+                if a.strides[0] == 0 and b.strides[0] == 0:
+                    self.by_column[key] = np.concatenate([a[0], b[0]])
+                elif a.strides[1] == 0 and b.strides[1] == 0 and np.array_equal(a[:, 0], b[:, 0]):
+                    self.by_row[key] = a[:, 0]
 
     def take(self, rows: np.ndarray, cols: np.ndarray) -> dict[str, np.ndarray]:
         """Columns at the (row, column) pairs, in the order given (column index into the joined block)."""
         if len(self.parts) == 1:
-            return {k: np.asarray(v[rows, cols]) for k, v in self.parts[0].items()}
+            return {k: _gather(v, rows, cols) for k, v in self.parts[0].items()}
         first, second = self.parts
         k0 = self.widths[0]
         in_first = cols < k0
-        r0, c0 = rows[in_first], cols[in_first]
-        r1, c1 = rows[~in_first], cols[~in_first] - k0
+        at0, at1 = np.flatnonzero(in_first), np.flatnonzero(~in_first)
+        r0, c0 = rows[at0], cols[at0]
+        r1, c1 = rows[at1], cols[at1] - k0
         out: dict[str, np.ndarray] = {}
         for key, a in first.items():
-            b = second[key]
-            values = np.empty(rows.size, dtype=np.result_type(a.dtype, b.dtype))
-            values[in_first] = a[r0, c0]
-            values[~in_first] = b[r1, c1]
-            out[key] = values
+            if key in self.by_column:
+                out[key] = self.by_column[key].take(cols)
+            elif key in self.by_row:
+                out[key] = self.by_row[key].take(rows)
+            elif key == "margin_db":
+                out[key] = _gather(self.margin_db, rows, cols)
+            elif not at1.size:  # all products
+                out[key] = _gather(a, r0, c0)
+            elif not at0.size:  # all responses
+                out[key] = _gather(second[key], r1, c1)
+            else:
+                b = second[key]
+                values = np.empty(rows.size, dtype=np.result_type(a.dtype, b.dtype))
+                values[at0] = _gather(a, r0, c0)
+                values[at1] = _gather(b, r1, c1)
+                out[key] = values
         return out
 
 
@@ -404,9 +453,8 @@ class _ByGroup:
         self.group = group
         self.dtype = table.dtype
 
-    def __getitem__(self, index) -> np.ndarray:
-        rows, cols = index
-        return self.table[self.group[rows], cols]
+    def gather(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        return self.table.ravel().take(self.group.take(rows) * self.table.shape[1] + cols)
 
 
 def _labels_by_group(table: np.ndarray, group: np.ndarray, margin: np.ndarray) -> _ByGroup:
@@ -419,11 +467,9 @@ def _labels_by_group(table: np.ndarray, group: np.ndarray, margin: np.ndarray) -
     return _ByGroup(table, group)
 
 
-def _writable(values: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
-    """``values`` as a fresh writable float array of ``shape`` (no copy when it already is one)."""
-    if isinstance(values, np.ndarray) and values.shape == shape and values.flags.writeable and values.flags.owndata:
-        return values
-    return np.array(np.broadcast_to(values, shape), dtype=float)
+def _brick_wall_db(in_band: np.ndarray) -> np.ndarray:
+    """Loss of the ideal brick-wall output filter, dB: 0 in band, infinite outside."""
+    return np.where(in_band, 0.0, np.inf)
 
 
 def _extra_out(margin: np.ndarray, in_band: np.ndarray) -> np.ndarray:
@@ -434,6 +480,47 @@ def _extra_out(margin: np.ndarray, in_band: np.ndarray) -> np.ndarray:
 def _extra_rf(margin: np.ndarray, a_in: np.ndarray, m: np.ndarray) -> np.ndarray:
     """Extra preselector rejection a failing response needs: its shortfall / m, dB."""
     return np.where((margin < 0) & np.isfinite(a_in) & (m > 0), -margin / m, np.nan)
+
+
+class _ResponseBands:
+    """Centre, low and high edge (Hz) of the responding input bands, computed only where gathered.
+
+    The same values as :func:`~mixchart.products.response_bands` over a (Cb, K) block;
+    :attr:`columns` are its three columns.  One gather works out all three edges
+    and keeps them for the other two columns of the same gather.
+    """
+
+    dtype = np.dtype(float)
+
+    def __init__(self, lo_hz: np.ndarray, family: ResponseFamily, if_low_hz: float, if_high_hz: float) -> None:
+        self.lo_hz = lo_hz
+        self.family = family
+        self.if_hz = (if_low_hz, if_high_hz)
+        self._last: tuple[np.ndarray, np.ndarray, tuple[np.ndarray, ...]] | None = None
+        self.columns = tuple(_BandEdge(self, which) for which in range(3))
+
+    def at(self, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, ...]:
+        """The three edges at the (row, column) pairs, Hz."""
+        if self._last is None or self._last[0] is not rows or self._last[1] is not cols:
+            fam = self.family
+            bands = response_bands_at(
+                self.lo_hz.take(rows), fam.rf_harmonic.take(cols), fam.lo_harmonic.take(cols), fam.branch.take(cols), *self.if_hz
+            )
+            self._last = (rows, cols, bands)
+        return self._last[2]
+
+
+class _BandEdge:
+    """One of the three columns of :class:`_ResponseBands` (0 centre, 1 low edge, 2 high edge)."""
+
+    dtype = np.dtype(float)
+
+    def __init__(self, bands: _ResponseBands, which: int) -> None:
+        self.bands = bands
+        self.which = which
+
+    def gather(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        return self.bands.at(rows, cols)[self.which]
 
 
 def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
@@ -470,15 +557,17 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         in_filter_centre = None
     if input_filter is not None:
         c = None if not input_filter.tracks_channel else in_filter_centre
-        drive = sig_dbm - _capped(input_filter.atten_db(f_in, c))
+        drive = (sig_dbm - _capped(input_filter.atten_db(f_in, c)))[:, None]
     else:
-        drive = np.full(nb, sig_dbm)
+        drive = np.full((1, 1), sig_dbm)  # the same for every channel: levels work out once per column
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_p = np.broadcast_to(table_p, shape)
-    p_level = _writable(ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive[:, None]), shape)
+    level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive)  # (1 or Cb, K)
     if output_filter is None:
-        # No output filter: an ideal brick wall over the output passband.
-        out_atten = np.where(in_band, 0.0, np.inf)
+        # No output filter: an ideal brick wall over the output passband, loss 0 dB or infinite,
+        # so the level is the table level in band and -inf outside (level - 0 and level - inf).
+        out_atten = _Derived(_brick_wall_db, in_band)
+        p_level = np.where(in_band, level, -np.inf)
     else:
         # The product reaches the output through the least-loss point of its band: the
         # point nearest the filter's own passband centre (the channel, if it tracks it).
@@ -486,10 +575,9 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         target = c if (c is not None and output_filter.tracks_channel) else ctx.out_filter_target_hz
         nearest = np.clip(target, p_low, p_high)
         out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c)
-    p_level -= out_atten
+        p_level = level - out_atten
     p_margin = margin[:, :k_p]
-    np.negative(p_level, out=p_margin)
-    p_margin -= req  # margin = -level - requirement
+    np.subtract(-req, p_level, out=p_margin)  # margin = -level - requirement, in one pass
     # labels depend on the channel only through the wanted sign: one table row per sign
     p_labels = _labels_by_group(
         product_labels(pf, plan.direction, np.array([-1, 1])), (sign > 0).astype(np.intp), p_margin
@@ -522,8 +610,12 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         return _Block([products], margin)
 
     # ---- receiver spurious responses
-    r_center, r_low, r_high = response_bands(lo, plan.if_.lo_hz, plan.if_.hi_hz, rfam)
-    shape = r_center.shape
+    shape = (nb, len(rfam))
+    if ctx.rf_filter is not None:
+        r_center, r_low, r_high = response_bands(lo, plan.if_.lo_hz, plan.if_.hi_hz, rfam)
+    else:
+        # nothing but the frames reads the bands: work them out only for the rows gathered
+        r_center, r_low, r_high = _ResponseBands(lo, rfam, plan.if_.lo_hz, plan.if_.hi_hz).columns
     zero = np.broadcast_to(0.0, shape)
     nan = np.broadcast_to(np.nan, shape)
     m = np.broadcast_to(rfam.rf_harmonic, shape)
@@ -536,18 +628,20 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         a_w = _capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None))[:, None]
         mixer_drive = u_dbm - a_in
     else:
-        a_in = np.broadcast_to(0.0, shape)
-        a_w = np.zeros((nb, 1))
-        mixer_drive = np.broadcast_to(u_dbm - 0.0, (nb, 1))
+        # no preselector: every channel alike, so the levels work out once per column
+        a_in = np.zeros((1, 1))
+        a_w = np.zeros((1, 1))
+        mixer_drive = u_dbm - a_in
     table_r = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_r = np.broadcast_to(table_r, shape)
-    r_level = _writable(ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], mixer_drive), shape)
+    r_level = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], mixer_drive)  # (1 or Cb, K)
     r_level -= a_in
     r_level += a_w
     r_level += u_dbm - sig_dbm
     r_margin = margin[:, k_p:]
-    np.negative(r_level, out=r_margin)
-    r_margin -= req
+    np.subtract(-req, r_level, out=r_margin)  # margin = -level - requirement
+    r_level = np.broadcast_to(r_level, shape)
+    a_in = np.broadcast_to(a_in, shape)
     # The wanted input is on the (1,1) branch +1, (f_LO + f_IF), only for a difference
     # conversion with the LO below the channel; otherwise it is |f_LO - f_IF| (branch -1).
     wanted_branch = np.where((sign < 0) & (ch > lo), 1, -1)
@@ -623,8 +717,22 @@ def _subset(data: dict[str, np.ndarray], index: np.ndarray) -> dict[str, np.ndar
     return {k: v[index] for k, v in data.items()}
 
 
+def _prune_hits(parts: list[dict[str, np.ndarray]], limit_db: float | None) -> list[dict[str, np.ndarray]]:
+    """The parts without their rows of margin above ``limit_db`` (None: no limit), in order."""
+    if limit_db is None:
+        return parts
+    pruned = []
+    for part in parts:
+        keep = np.flatnonzero(part["margin_db"] <= limit_db)
+        if keep.size == part["margin_db"].size:
+            pruned.append(part)
+        elif keep.size:
+            pruned.append(_subset(part, keep))
+    return pruned
+
+
 def _worst_hits(parts: list[dict[str, np.ndarray]]) -> dict[str, np.ndarray]:
-    """The MAX_HIT_ROWS smallest margins of parts each sorted by margin (ties keep part order)."""
+    """The MAX_HIT_ROWS rows of smallest margin, sorted by margin; ties keep the parts' order."""
     merged = _concat(parts)
     return _subset(merged, np.argsort(merged["margin_db"], kind="stable")[:MAX_HIT_ROWS])
 
@@ -660,7 +768,8 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
     best_margin = best_channel = best_rows = None  # worst case of each product/response so far
     hit_parts: list[dict[str, np.ndarray]] = []
     n_hit_rows = 0
-    n_kept = 0
+    n_kept = 0  # rows in hit_parts
+    kept_margin = np.empty(0)  # the MAX_HIT_ROWS (or fewer) smallest failing margins so far
     hit_limit: float | None = None
     step = max(1, int(chunk_channels))
     for start in range(0, n_ch, step):
@@ -696,29 +805,38 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         count = int(np.count_nonzero(fail))
         n_hit_rows += count
         if count:
-            # once MAX_HIT_ROWS are kept, only rows worse than the MAX_HIT_ROWS-th worst kept can enter
-            fail_rows, fail_cols = np.nonzero(fail if hit_limit is None else margin < hit_limit)
-            if fail_rows.size > MAX_HIT_ROWS:
-                worst = np.sort(np.argsort(margin[fail_rows, fail_cols], kind="stable")[:MAX_HIT_ROWS])
-                fail_rows, fail_cols = fail_rows[worst], fail_cols[worst]
-            if fail_rows.size:
-                part = block.take(fail_rows, fail_cols)
-                hit_parts.append(_subset(part, np.argsort(part["margin_db"], kind="stable")))
-                n_kept += fail_rows.size
-                if n_kept >= MAX_HIT_ROWS:
-                    # the MAX_HIT_ROWS-th smallest margin kept so far: later rows must beat it
-                    kept = np.concatenate([p["margin_db"] for p in hit_parts])
-                    hit_limit = float(np.partition(kept, MAX_HIT_ROWS - 1)[MAX_HIT_ROWS - 1])
-            if n_kept > 2 * MAX_HIT_ROWS:  # merge now and then, not after every block
-                hit_parts = [_worst_hits(hit_parts)]
-                n_kept = MAX_HIT_ROWS
+            # once MAX_HIT_ROWS are kept, only rows worse than the MAX_HIT_ROWS-th worst kept can
+            # enter; flat indices into the block (much faster than np.nonzero on a 2-D mask)
+            flat = np.flatnonzero(fail if hit_limit is None else margin < hit_limit)
+            flat_margin = margin.ravel().take(flat)
+            if kept_margin.size + flat.size > MAX_HIT_ROWS:
+                # tighten the limit with this block's margins before gathering its rows: only rows
+                # at or below the MAX_HIT_ROWS-th smallest margin so far can stay
+                pool = np.partition(np.concatenate([kept_margin, flat_margin]), MAX_HIT_ROWS - 1)
+                kept_margin = pool[:MAX_HIT_ROWS]
+                hit_limit = float(pool[MAX_HIT_ROWS - 1])
+                inside = np.flatnonzero(flat_margin <= hit_limit)
+                if inside.size > MAX_HIT_ROWS:  # ties at the limit: the first ones win
+                    inside = np.sort(inside[np.argsort(flat_margin[inside], kind="stable")[:MAX_HIT_ROWS]])
+                flat = flat[inside]
+            else:
+                kept_margin = np.concatenate([kept_margin, flat_margin])
+            if flat.size:
+                hit_parts.append(block.take(*np.divmod(flat, n_cols)))  # row-major: channel order
+                n_kept += flat.size
+            if n_kept > 2 * MAX_HIT_ROWS:  # now and then, drop the rows the limit has since shut out
+                hit_parts = _prune_hits(hit_parts, hit_limit)
+                n_kept = sum(part["margin_db"].size for part in hit_parts)
+                if n_kept > 2 * MAX_HIT_ROWS:  # many ties at the limit: merge
+                    hit_parts = [_worst_hits(hit_parts)]
+                    n_kept = MAX_HIT_ROWS
     worst_row = _frame_from(worst_cols)
     # each product/response once, by margin; ties in channel, then family, order
     found = np.flatnonzero(np.isfinite(best_margin))
     order = found[np.lexsort((found, best_channel[found], best_margin[found]))]
     wbp = _frame_from(_subset(best_rows, order))
     hit_frame = (
-        _frame_from(_worst_hits(hit_parts)).sort_values("margin_db", kind="stable").reset_index(drop=True)
+        _frame_from(_worst_hits(_prune_hits(hit_parts, hit_limit)))  # by margin, ties in channel order
         if hit_parts
         else wbp.iloc[:0].copy()
     )

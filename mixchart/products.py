@@ -35,6 +35,7 @@ __all__ = [
     "response_family",
     "product_bands",
     "response_bands",
+    "response_bands_at",
     "overlaps",
     "is_inverted",
     "Lines",
@@ -208,8 +209,9 @@ def product_bands(
     """
     f_in = np.asarray(f_in_hz, dtype=float)[:, None]
     f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
-    m = family.rf_harmonic[None, :]
-    n_signed = (family.sign * family.lo_harmonic)[None, :]
+    # float harmonics: the same values, without a cast inside every full-size multiply
+    m = family.rf_harmonic.astype(float)[None, :]
+    n_signed = (family.sign * family.lo_harmonic).astype(float)[None, :]
     # |m·f_in ± n·f_lo|, worked in place to spare full-size temporaries
     center = m * f_in
     center += n_signed * f_lo
@@ -246,16 +248,48 @@ def response_bands(
         A band of the ``-1`` branch that straddles ``n·f_lo`` starts at 0 Hz.
     """
     f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
+    return response_bands_at(f_lo, family.rf_harmonic, family.lo_harmonic, family.branch, if_low_hz, if_high_hz)
+
+
+def response_bands_at(
+    f_lo_hz: np.ndarray,
+    rf_harmonic: np.ndarray,
+    lo_harmonic: np.ndarray,
+    branch: np.ndarray,
+    if_low_hz: float,
+    if_high_hz: float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`response_bands` element by element: the arguments broadcast together.
+
+    Lets a caller work out the bands only at the (channel, response) pairs it needs,
+    e.g. ``f_lo_hz = lo[rows]`` with ``rf_harmonic = family.rf_harmonic[cols]``; the
+    arithmetic is the same, so the values are identical to those of :func:`response_bands`.
+
+    Parameters
+    ----------
+    f_lo_hz : array_like of float
+        LO frequency, Hz.
+    rf_harmonic, lo_harmonic, branch : array_like of int
+        ``m >= 1``, ``n >= 0`` and the branch (+1/-1) of each response (see
+        :class:`ResponseFamily`).
+    if_low_hz, if_high_hz : float
+        IF passband edges, Hz.
+
+    Returns
+    -------
+    f_center_hz, f_low_hz, f_high_hz : numpy.ndarray
+        Centre and edges of each responding input band, Hz, of the broadcast shape.
+    """
     if_center = 0.5 * (if_low_hz + if_high_hz)
-    m = family.rf_harmonic.astype(float)
-    plus = family.branch > 0
+    m = np.asarray(rf_harmonic).astype(float)
+    plus = np.asarray(branch) > 0
     # Both branches at once, with per-column offsets (h = n·f_lo):
     #   branch +1: f = (h + f_IF)/m, band [x, y] with x = (h + IF_low)/m <= y = (h + IF_high)/m;
     #   branch -1: f = |h - f_IF|/m; with x = (h - IF_high)/m <= y = (h - IF_low)/m the band is
     #     [x, y] if x > 0, [-y, -x] if y < 0, else [0, max(-x, y)] (it straddles h).
     # low = x if x > 0 else (-y if y < 0 else 0) and high = max(|x|, |y|) cover both, since on
     # branch +1 0 < x <= y.
-    harmonic = family.lo_harmonic * f_lo
+    harmonic = np.multiply(lo_harmonic, f_lo_hz, dtype=float)
     center = harmonic + np.where(plus, if_center, -if_center)
     np.abs(center, out=center)
     center /= m
@@ -263,7 +297,8 @@ def response_bands(
     x /= m
     y = np.add(harmonic, np.where(plus, if_high_hz, -if_low_hz), out=harmonic)
     y /= m
-    low = np.where(y < 0, -y, 0.0)
+    low = np.zeros(np.shape(y))
+    np.negative(y, out=low, where=y < 0)  # -y where y < 0, else 0 (cheaper than np.where here)
     np.copyto(low, x, where=x > 0)
     np.abs(x, out=x)
     np.abs(y, out=y)
