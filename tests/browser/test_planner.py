@@ -197,15 +197,17 @@ def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
     worst0 = float(re.search(r"worst margin ([+-]\d+\.\d) dB", status0).group(1))
 
     # continuous_update=False: each key press commits one value (on key release).
-    bh.press_slider_key(page, ".mixchart-requirement", "ArrowRight", times=3)
-    # derived by hand: margin = rejection - requirement, and the rejection does
-    # not depend on the requirement, so every margin drops by exactly 3 dB (the
-    # table keeps its rows and order; the display rounds to 0.1 dB).
-    expected = [m - 3.0 for m in _margins(rows0)]
-    rows = _wait_until(
-        lambda: (r := _table_rows(page)) and all(abs(a - b) < 0.11 for a, b in zip(_margins(r), expected)) and r,
-        "every margin 3 dB lower",
-    )
+    # One press at a time, as a user watching the table would: derived by hand,
+    # margin = rejection - requirement and the rejection does not depend on the
+    # requirement, so every margin drops by exactly 1 dB a press (the table keeps
+    # its rows and order; the display rounds to 0.1 dB).
+    for k in (1, 2, 3):
+        bh.press_slider_key(page, ".mixchart-requirement", "ArrowRight")
+        expected = [m - k for m in _margins(rows0)]
+        rows = _wait_until(
+            lambda: (r := _table_rows(page)) and all(abs(a - b) < 0.11 for a, b in zip(_margins(r), expected)) and r,
+            f"every margin {k} dB lower",
+        )
     assert float(bh.slider_value(page, ".mixchart-requirement")) == req0 + 3
     assert [r[:5] for r in rows] == [r[:5] for r in rows0]  # same products, same levels
     assert f"worst margin {worst0 - 3.0:+.1f} dB" in _wait_until(
@@ -235,7 +237,11 @@ def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
     )
 
     # Back to where it was: the table and the chart return too.
-    bh.press_slider_key(page, ".mixchart-requirement", "ArrowLeft", times=3)
+    for k in (2, 1, 0):
+        bh.press_slider_key(page, ".mixchart-requirement", "ArrowLeft")
+        expected = [m - k for m in _margins(rows0)]
+        _wait_until(lambda: all(abs(a - b) < 0.11 for a, b in zip(_margins(_table_rows(page)), expected)),
+                    f"every margin {k} dB below the original")
     _wait_until(lambda: _table_rows(page) == rows0, "the original table")
     _wait_until(
         lambda: _canon(bh.source_data(page, "tuning_strips")) == _canon(before["tuning_strips"]), "the original strips"
@@ -261,11 +267,12 @@ def test_channel_slider_moves_the_output_plane(app):
     _open_tab(page, "View")
     presses = 3
     key, sign = ("ArrowLeft", -1) if ch0 - presses * step >= start - 1 else ("ArrowRight", +1)
-    bh.press_slider_key(page, ".mixchart-channel", key, times=presses)
-    ch_want = ch0 + sign * presses * step
-    lo, ch = _wait_until(
-        lambda: (t := _title_channel(page)) and abs(t[1] - ch_want) < 1.0 and t, f"channel {ch_want} Hz in the title"
-    )
+    for k in range(1, presses + 1):  # one press at a time, each seen in the title before the next
+        bh.press_slider_key(page, ".mixchart-channel", key)
+        ch_want = ch0 + sign * k * step
+        lo, ch = _wait_until(
+            lambda: (t := _title_channel(page)) and abs(t[1] - ch_want) < 1.0 and t, f"channel {ch_want} Hz in the title"
+        )
     # Tracking LO on a grid that divides the channel step: it moves as the channel does.
     assert lo - lo0 == pytest.approx(ch - ch0, abs=1.0)
     expected_text = f"channel {format_frequency(ch)}, LO {format_frequency(lo)}"
