@@ -167,7 +167,7 @@ def _summary_card(title: str | None, ev: Evaluation) -> str:
     colour = CATEGORIES["wanted" if state == "PASS" else "violates"][1]
     name = "" if title is None else f" <b>{_e(title)}</b>"
     return (f'<div class="card" style="--state:{colour}"><div><span class="state">{state}</span>{name}</div>'
-            f'<p class="line">{_e(s.line())}</p></div>')
+            f'<p class="line">{_e(s.line().split(": ", 1)[1])}</p></div>')  # the state is shown above it
 
 
 def _worst_table(ev: Evaluation, top: int) -> str:

@@ -43,9 +43,16 @@ def test_self_contained(rendered):
     assert "Bokeh" in page and "data-root-id" in page  # BokehJS inline and the chart's root
 
 
+def _shows_card(page: str, ev) -> bool:
+    """Whether the page shows ev's summary card: the verdict once, then the rest of the status line."""
+    state, rest = ev.summary.line().split(": ", 1)
+    assert state == ("PASS" if ev.summary.worst_margin_db >= 0 else "FAIL")
+    return f'<span class="state">{state}</span>' in page and f'<p class="line">{html.escape(rest)}</p>' in page
+
+
 def test_contents(rendered):
     plan, ev, page = rendered
-    assert html.escape(ev.summary.line()) in page
+    assert _shows_card(page, ev)
     assert CAUTION in page.lower()
     worst = ev.to_frame().iloc[0]
     assert f"<td>{html.escape(worst['label'])}</td>" in page
@@ -101,7 +108,7 @@ def test_reference_side_by_side(fm):
     low = plan.with_changes({"lo.side": "low", "name": "low side & <b>"})
     ev_low = evaluate(low, base_dir=cli.example_path().parent)
     page = report.report_html(plan, evaluation=ev, reference=(low, ev_low))
-    assert html.escape(ev.summary.line()) in page and html.escape(ev_low.summary.line()) in page
+    assert _shows_card(page, ev) and _shows_card(page, ev_low)
     assert page.count('class="card"') == 2
     assert page.count("data-root-id") == 2  # one chart per plan
     assert "<tr class=differs><th>LO</th>" in page
