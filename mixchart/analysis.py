@@ -284,6 +284,7 @@ class _Context:
     out_low_hz: float  # output passband
     out_high_hz: float
     out_filter_target_hz: float  # where the fixed output filter loses least
+    lo_filter: Filter | None = None  # checked for the LO drive it takes away; not applied to levels
 
 
 def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
@@ -292,6 +293,7 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
     table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
     rf_filter = None if plan.filters.rf is None else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf.")
     if_filter = None if plan.filters.if_ is None else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if.")
+    lo_filter = None if plan.filters.lo is None else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo.")
     if plan.direction == "down":
         f_in = channels
         diff = np.abs(channels - lo)
@@ -308,7 +310,8 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
         out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
     output_filter = if_filter if plan.direction == "down" else rf_filter
     target = _least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
-    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high, target)
+    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high, target,
+                    lo_filter=lo_filter)
 
 
 def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None) -> np.ndarray:
@@ -910,6 +913,17 @@ def _warnings(ctx: _Context) -> list[str]:
             out.append(
                 f"{name}: the wanted signal at {format_frequency(f_wanted[k])} is {loss[k]:.1f} dB down the filter's "
                 f"skirt (channel {format_frequency(ctx.channels_hz[k])}); move the filter with the plan"
+            )
+    if ctx.lo_filter is not None and not ctx.lo_filter.tracks_channel:
+        # The built-in and CSV tables hold at the stated LO drive; an LO filter whose skirt the
+        # LO walks onto starves the mixer, and the levels are not scaled for that.
+        loss = _capped(ctx.lo_filter.atten_db(ctx.lo_hz)) - _passband_loss_db(ctx.lo_filter)
+        k = int(np.argmax(loss))
+        if loss[k] > WANTED_LOSS_WARN_DB:
+            out.append(
+                f"filters.lo: the LO at {format_frequency(ctx.lo_hz[k])} is {loss[k]:.1f} dB down the filter's skirt "
+                f"(channel {format_frequency(ctx.channels_hz[k])}); the mixer's LO drive falls by as much and the "
+                "levels, stated at the table's LO drive, do not follow"
             )
     drive = plan.signal.level_dbm
     out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))

@@ -188,7 +188,7 @@ class Filters(_Strict):
     )
     if_: FilterSpec | None = Field(default=None, alias="if", description="IF filter.")
     lo: FilterSpec | None = Field(
-        default=None, description="LO filter (described for documentation; not applied to levels)."
+        default=None, description="LO filter: not applied to levels; a warning says when the LO sits on its skirt (lost LO drive)."
     )
 
 

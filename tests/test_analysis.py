@@ -765,3 +765,37 @@ def test_no_negative_frequency_and_order_limits_hold(data):
     assert per_kind["product"] == order * (order + 1), "derived by hand: N(N+1) products"
     if data["direction"] == "down":
         assert per_kind["response"] == order**2, "derived by hand: N^2 responses"
+
+
+# ------------------------------------------------------------ LO filter: a drive check, not a level
+
+
+def test_lo_filter_skirt_under_the_lo_is_flagged():
+    # Receiver LO 110.7-120.7 MHz (high side of 100-110 MHz, 10.7 MHz IF).  A fixed 3rd-order
+    # Butterworth LO band-pass at 125 MHz, 10 MHz wide.  Derived by hand at the lowest LO:
+    # Omega = (110.7/125 - 125/110.7)·125/10 = (0.88560 - 1.12918)·12.5 = -3.0447,
+    # loss = 10 log10(1 + 3.0447^6) = 29.04 dB, the largest over the LO range.
+    lo_filter = {"kind": "butterworth", "response": "bandpass", "order": 3,
+                 "f_center_hz": "125 MHz", "bandwidth_hz": "10 MHz"}
+    evaluation = evaluate(plan_from_dict(receiver(filters={"lo": lo_filter})))
+    (line,) = [w for w in evaluation.warnings if w.startswith("filters.lo:")]
+    assert "the LO at 110.7 MHz is 29.0 dB down the filter's skirt (channel 100 MHz)" in line
+    # not applied to levels: the margins are those of the same plan without the LO filter
+    bare = evaluate(plan_from_dict(receiver()))
+    assert np.array_equal(evaluation.worst_margin_db, bare.worst_margin_db)
+
+
+def test_lo_filter_covering_the_lo_range_is_quiet():
+    # Same receiver; LO band-pass centred on the LO range (115.7 MHz) and 40 MHz wide: at the
+    # ends Omega = (110.7/115.7 - 115.7/110.7)·115.7/40 = -0.258, loss 10 log10(1 + 0.258^6)
+    # = 0.001 dB (derived by hand), far under the 3 dB warning.
+    lo_filter = {"kind": "butterworth", "response": "bandpass", "order": 3,
+                 "f_center_hz": "115.7 MHz", "bandwidth_hz": "40 MHz"}
+    evaluation = evaluate(plan_from_dict(receiver(filters={"lo": lo_filter})))
+    assert not [w for w in evaluation.warnings if w.startswith("filters.lo:")]
+
+
+def test_lo_filter_file_is_checked(tmp_path):
+    plan = plan_from_dict(receiver(filters={"lo": {"kind": "touchstone", "path": "nowhere.s2p"}}))
+    with pytest.raises(ValueError, match=r"^filters\.lo\.path: '.*nowhere\.s2p' is invalid; cannot be read"):
+        evaluate(plan, base_dir=tmp_path)

@@ -91,9 +91,8 @@ MALICIOUS = [
 @pytest.mark.parametrize("text", MALICIOUS)
 def test_user_text_is_escaped(fm, text):
     plan, _ = fm
-    hostile = plan.with_changes(
-        {"name": text, "notes": f"notes: {text}", "filters.lo": {"kind": "touchstone", "path": f"{text}.s2p"}}
-    )
+    # (file paths are checked when the plan is evaluated, so the hostile text goes in the free-text fields)
+    hostile = plan.with_changes({"name": text, "notes": f"notes: {text}"})
     page = report.report_html(hostile, base_dir=cli.example_path().parent)
     assert text not in page
     assert html.escape(text) in page
@@ -172,3 +171,14 @@ def test_cli_snapshot_bad_plan(tmp_path, capsys, content):
     assert not out.exists()
     err = capsys.readouterr().err
     assert err.startswith("mixchart: error:") and "Traceback" not in err
+
+
+def test_a_file_name_with_markup_is_escaped(fm, tmp_path):
+    plan, _ = fm
+    name = 'lo <b>&"filter".s2p'  # a legal Linux file name carrying HTML markup
+    # a flat 2-port in the Touchstone 1.0 layout: freq, then S11 S21 S12 S22 as (dB, angle) pairs
+    (tmp_path / name).write_text("# MHz S DB R 50\n50 -30 0 -1 0 -1 0 -30 0\n200 -30 0 -1 0 -1 0 -30 0\n")
+    hostile = plan.with_changes({"filters.lo": {"kind": "touchstone", "path": name}})
+    page = report.report_html(hostile, base_dir=tmp_path)
+    assert name not in page
+    assert html.escape(name) in page
