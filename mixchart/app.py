@@ -365,7 +365,7 @@ def _filter_spec_from_controls(fc: FilterControls, tracking_allowed: bool) -> di
     return spec
 
 
-def _table_html(ev: Evaluation, rows: int = 12) -> str:
+def _table_html(ev: Evaluation, rows: int = 12, caption: str = "Worst case of each product across the tuning range") -> str:
     from .chart import CATEGORIES, CLOSE_DB
 
     frame = ev.to_frame().head(rows)
@@ -388,7 +388,7 @@ def _table_html(ev: Evaluation, rows: int = 12) -> str:
         "<style>.mixchart-table td,.mixchart-table th{padding:2px 10px;text-align:left}"
         ".mixchart-table tr:nth-child(even){background:#F3F5F7}</style>"
         '<table class="mixchart-table" style="border-collapse:collapse;font-size:13px">'
-        f"<caption style='text-align:left;font-weight:bold'>Worst case of each product across the tuning range</caption>"
+        f"<caption style='text-align:left;font-weight:bold'>{html.escape(caption)}</caption>"
         f"{head}{''.join(body)}</table>"
     )
 
@@ -767,7 +767,11 @@ class PlannerApp:
                 with self._reference_widget.batch():
                     update_chart(self.reference_chart, data, reset_ranges=True)
             label = w.HTML(f"<b>Reference plan:</b> {html.escape(ref[0].name)}")
-            self.reference_box.children = (label, self._reference_widget)
+            table = w.HTML(_table_html(ref[1], caption="Reference: worst case of each product"),
+                           layout=w.Layout(margin="0 0 0 16px"))
+            table.add_class("mixchart-reference-table")
+            body = w.HBox([self._reference_widget, table], layout=w.Layout(flex_flow="row wrap"))
+            self.reference_box.children = (label, body)
         self._refresh_compare()
 
     def _sync_widgets(self) -> None:

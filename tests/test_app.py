@@ -151,7 +151,14 @@ def test_compare_keeps_a_reference(app: PlannerApp) -> None:
     app.state.try_update({"lo.side": "low"})
     assert "Reference" in app.compare.value and "Edited" in app.compare.value
     assert "high-side" in app.compare.value and "low-side" in app.compare.value
-    assert len(app.reference_box.children) == 2
+    label, body = app.reference_box.children
+    chart, table = body.children
+    assert chart is app._reference_widget
+    # the reference keeps its own worst-case table, led by its worst row (for the FM example's
+    # high-side plan, the image at 108 MHz)
+    ref_first_row = app.state.reference[1].to_frame().iloc[0]
+    assert ref_first_row["label"] == "image" and f"{ref_first_row['margin_db']:+.1f}" in table.value
+    assert "Reference: worst case" in table.value
     app.state.clear_reference()
     assert app.compare.value == "" and not app.reference_box.children
 
