@@ -903,27 +903,25 @@ def _warnings(ctx: _Context) -> list[str]:
         if worst_step > 0:
             out.append(f"LO grid error up to {format_frequency(worst_step)}: the wanted output is offset by as much")
     down = plan.direction == "down"
-    wanted_at = (("filters.rf", ctx.rf_filter, ctx.channels_hz), ("filters.if", ctx.if_filter, ctx.f_out_hz if down else ctx.f_in_hz))
-    for name, filt, f_wanted in wanted_at:
+    # (field, filter, the frequencies that must pass it, what they are, what follows)
+    must_pass = (
+        ("filters.rf", ctx.rf_filter, ctx.channels_hz, "the wanted signal", "move the filter with the plan"),
+        ("filters.if", ctx.if_filter, ctx.f_out_hz if down else ctx.f_in_hz, "the wanted signal",
+         "move the filter with the plan"),
+        # the tables hold at the stated LO drive: an LO on the skirt starves the mixer, and the
+        # levels are not scaled for that (the LO filter is not applied to levels)
+        ("filters.lo", ctx.lo_filter, ctx.lo_hz, "the LO",
+         "the mixer's LO drive falls by as much and the levels, stated at the table's LO drive, do not follow"),
+    )
+    for name, filt, f_hz, what, advice in must_pass:
         if filt is None or filt.tracks_channel:
             continue  # a tracking filter follows the wanted signal by construction
-        loss = filt.atten_db(f_wanted) - _passband_loss_db(filt)
+        loss = _capped(filt.atten_db(f_hz)) - _passband_loss_db(filt)
         k = int(np.argmax(loss))
         if loss[k] > WANTED_LOSS_WARN_DB:
             out.append(
-                f"{name}: the wanted signal at {format_frequency(f_wanted[k])} is {loss[k]:.1f} dB down the filter's "
-                f"skirt (channel {format_frequency(ctx.channels_hz[k])}); move the filter with the plan"
-            )
-    if ctx.lo_filter is not None and not ctx.lo_filter.tracks_channel:
-        # The built-in and CSV tables hold at the stated LO drive; an LO filter whose skirt the
-        # LO walks onto starves the mixer, and the levels are not scaled for that.
-        loss = _capped(ctx.lo_filter.atten_db(ctx.lo_hz)) - _passband_loss_db(ctx.lo_filter)
-        k = int(np.argmax(loss))
-        if loss[k] > WANTED_LOSS_WARN_DB:
-            out.append(
-                f"filters.lo: the LO at {format_frequency(ctx.lo_hz[k])} is {loss[k]:.1f} dB down the filter's skirt "
-                f"(channel {format_frequency(ctx.channels_hz[k])}); the mixer's LO drive falls by as much and the "
-                "levels, stated at the table's LO drive, do not follow"
+                f"{name}: {what} at {format_frequency(f_hz[k])} is {loss[k]:.1f} dB down the filter's "
+                f"skirt (channel {format_frequency(ctx.channels_hz[k])}); {advice}"
             )
     drive = plan.signal.level_dbm
     out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))

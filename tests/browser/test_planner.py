@@ -110,12 +110,13 @@ def _status_line(page) -> str:
     return lines[0]
 
 
-def _table_rows(page) -> list[list[str]]:
-    """Body rows of the worst-case table, as cell texts."""
+def _table_rows(page, table: str = ".mixchart-worst-table") -> list[list[str]]:
+    """Body rows of a worst-case table (the edited plan's by default), as cell texts."""
     return page.evaluate(
-        """() => [...document.querySelectorAll('.mixchart-worst-table table tr')]
+        """(table) => [...document.querySelectorAll(`${table} table tr`)]
                  .filter((tr) => tr.querySelector('td'))
-                 .map((tr) => [...tr.querySelectorAll('td')].map((td) => td.innerText.trim()))"""
+                 .map((tr) => [...tr.querySelectorAll('td')].map((td) => td.innerText.trim()))""",
+        table,
     )
 
 
@@ -457,15 +458,6 @@ def test_dragging_the_rf_band_moves_the_tuning_range(app):
     _assert_clean(page)
 
 
-def _reference_rows(page) -> list[list[str]]:
-    """Body rows of the reference plan's worst-case table, as cell texts."""
-    return page.evaluate(
-        """() => [...document.querySelectorAll('.mixchart-reference-table table tr')]
-                 .filter((tr) => tr.querySelector('td'))
-                 .map((tr) => [...tr.querySelectorAll('td')].map((td) => td.innerText.trim()))"""
-    )
-
-
 def test_keep_as_reference_then_low_side_shows_both_plans(app):
     # Keep this test last in the file: the reference chart's BokehJS document stays in the page
     # after Clear reference (the app reuses it for the next reference), and the helpers read
@@ -476,7 +468,7 @@ def test_keep_as_reference_then_low_side_shows_both_plans(app):
     status_high = _status_line(page)
     # the compare buttons sit under the tabs, in view whatever tab is open
     page.get_by_role("button", name="Keep as reference").click()
-    ref_rows = _wait_until(lambda: _reference_rows(page), "the reference table")
+    ref_rows = _wait_until(lambda: _table_rows(page, ".mixchart-reference-table"), "the reference table")
     assert ref_rows == rows_high  # the reference is the plan as it was kept
     _wait_until(lambda: bh.figure_names(page).count("tuning_plane") == 2, "a second (reference) tuning plane")
 
@@ -487,11 +479,14 @@ def test_keep_as_reference_then_low_side_shows_both_plans(app):
     # Reference (high side) and edited (low side) summaries side by side, each with its own verdict
     assert "Reference" in text and "high-side" in text and status_high in text
     assert "Edited" in text and _status_line(page) in text and _status_line(page) != status_high
-    assert _reference_rows(page) == rows_high  # the reference does not follow the edit
+    assert _table_rows(page, ".mixchart-reference-table") == rows_high  # the reference does not follow the edit
     assert _table_rows(page) != rows_high
 
     page.get_by_role("button", name="Clear reference").click()
-    _wait_until(lambda: not _reference_rows(page) and not compare.inner_text().strip(), "the reference cleared")
+    _wait_until(
+        lambda: not _table_rows(page, ".mixchart-reference-table") and not compare.inner_text().strip(),
+        "the reference cleared",
+    )
     page.locator(".mixchart-side").locator("button", has_text="high side").click()
     _wait_until(lambda: _status_line(page) == status_high, "the high-side plan again")
     _assert_clean(page)
