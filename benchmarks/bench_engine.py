@@ -103,7 +103,7 @@ def raw_layer(plan) -> np.ndarray:
     """
     ch, lo = plan.channels_hz(), plan.lo_hz()
     pf, rf = product_family(plan.max_order), response_family(plan.max_order)
-    if_lo, if_hi = plan.if_.lo_hz, plan.if_.hi_hz
+    if_lo, if_hi = plan.if_.f_low_hz, plan.if_.f_high_hz
     one_one = (pf.rf_harmonic == 1) & (pf.lo_harmonic == 1)
     worst = np.empty(ch.size, dtype=np.int64)
     for start in range(0, ch.size, CHUNK_CHANNELS):

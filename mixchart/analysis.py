@@ -298,10 +298,10 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
         f_in = channels
         diff = np.abs(channels - lo)
         summ = channels + lo
-        in_if = lambda f: (f >= plan.if_.lo_hz) & (f <= plan.if_.hi_hz)  # noqa: E731
+        in_if = lambda f: (f >= plan.if_.f_low_hz) & (f <= plan.if_.f_high_hz)  # noqa: E731
         wanted_sign = np.where(in_if(summ) & ~in_if(diff), 1, -1)
         f_out = np.where(wanted_sign > 0, summ, diff)
-        out_low, out_high = plan.if_.lo_hz, plan.if_.hi_hz
+        out_low, out_high = plan.if_.f_low_hz, plan.if_.f_high_hz
     else:
         f_out = channels
         wanted_sign = np.where(channels > lo, 1, -1)
@@ -615,10 +615,10 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     # ---- receiver spurious responses
     shape = (nb, len(rfam))
     if ctx.rf_filter is not None:
-        r_center, r_low, r_high = response_bands(lo, plan.if_.lo_hz, plan.if_.hi_hz, rfam)
+        r_center, r_low, r_high = response_bands(lo, plan.if_.f_low_hz, plan.if_.f_high_hz, rfam)
     else:
         # nothing but the frames reads the bands: work them out only for the rows gathered
-        r_center, r_low, r_high = _ResponseBands(lo, rfam, plan.if_.lo_hz, plan.if_.hi_hz).columns
+        r_center, r_low, r_high = _ResponseBands(lo, rfam, plan.if_.f_low_hz, plan.if_.f_high_hz).columns
     zero = np.broadcast_to(0.0, shape)
     nan = np.broadcast_to(np.nan, shape)
     m = np.broadcast_to(rfam.rf_harmonic, shape)
@@ -881,9 +881,9 @@ def _warnings(ctx: _Context) -> list[str]:
     out: list[str] = []
     rf_low = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
     rf_high = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
-    if plan.if_.lo_hz <= rf_high and plan.if_.hi_hz >= rf_low:
+    if plan.if_.f_low_hz <= rf_high and plan.if_.f_high_hz >= rf_low:
         out.append(
-            f"IF passband {format_frequency(plan.if_.lo_hz)}-{format_frequency(plan.if_.hi_hz)} overlaps the RF band "
+            f"IF passband {format_frequency(plan.if_.f_low_hz)}-{format_frequency(plan.if_.f_high_hz)} overlaps the RF band "
             f"{format_frequency(rf_low)}-{format_frequency(rf_high)}: signals there feed straight through"
         )
     if plan.direction == "down":

@@ -203,7 +203,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     sources: dict[str, dict[str, Any]] = {}
 
     # --------------------------------------------------------- tuning plane
-    strips = tuning_plane_strips(plan.direction, max_shown, plan.if_.lo_hz, plan.if_.hi_hz, tuning_win)
+    strips = tuning_plane_strips(plan.direction, max_shown, plan.if_.f_low_hz, plan.if_.f_high_hz, tuning_win)
     intrinsic = table.level_dbc_at(strips.rf_harmonic, strips.lo_harmonic, plan.signal.level_dbm)
     cats = _category(-intrinsic - req).astype(object)
     # the strip holding the plan line is the wanted conversion
@@ -344,7 +344,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         **_style(p_cat),
         "size": np.array([14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat], dtype=float),
     }
-    if_band = (plan.if_.lo_hz, plan.if_.hi_hz)
+    if_band = (plan.if_.f_low_hz, plan.if_.f_high_hz)
     if down:
         in_band, out_band = band, if_band
         in_filter, out_filter = ctx_rf, ctx_if

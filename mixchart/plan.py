@@ -169,12 +169,12 @@ class IfBand(_Strict):
         return self
 
     @property
-    def lo_hz(self) -> float:
+    def f_low_hz(self) -> float:
         """Lower passband edge, Hz."""
         return self.center_hz - self.bandwidth_hz / 2
 
     @property
-    def hi_hz(self) -> float:
+    def f_high_hz(self) -> float:
         """Upper passband edge, Hz."""
         return self.center_hz + self.bandwidth_hz / 2
 

@@ -111,7 +111,7 @@ def test_a_drag_to_an_impossible_place_is_refused_and_the_band_goes_back(app: Pl
     assert app.state.plan == good
     assert app.controls.errors["plan"].value
     band = app.chart.sources["out_output_band"].data
-    assert band["y0"][0] * scale == pytest.approx(good.if_.lo_hz)
+    assert band["y0"][0] * scale == pytest.approx(good.if_.f_low_hz)
 
 
 def test_channel_slider_moves_the_output_plane(app: PlannerApp) -> None:
