@@ -44,7 +44,7 @@ The margin is ``-level - min_rejection_db``: positive passes.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -155,9 +155,14 @@ class Summary:
         )
 
 
-@dataclass(frozen=True)
 class Evaluation:
-    """Result of :func:`evaluate`.
+    """Result of :func:`evaluate`; read-only.
+
+    Every array is a read-only numpy array (writing one raises ``ValueError``)
+    and every table is handed out as a copy-on-write copy, so nothing a caller
+    does to a returned value changes the evaluation or its per-channel
+    re-evaluation (:meth:`channel_frame`).  Two evaluations compare equal only
+    when they are the same object, and hash by identity.
 
     Attributes
     ----------
@@ -181,26 +186,75 @@ class Evaluation:
         the table's reference, LO grid error, table entries from the model...).
     """
 
-    plan: Plan
-    channels_hz: np.ndarray
-    lo_hz: np.ndarray
-    f_wanted_out_hz: np.ndarray
-    inverted: np.ndarray
-    worst_margin_db: np.ndarray
-    worst_row: pd.DataFrame
-    worst_by_product: pd.DataFrame
-    hits: pd.DataFrame
-    summary: Summary
-    warnings: tuple[str, ...]
-    _context: _Context = field(repr=False)
+    __slots__ = (
+        "plan", "channels_hz", "lo_hz", "f_wanted_out_hz", "inverted", "worst_margin_db",
+        "_worst_row", "_worst_by_product", "_hits", "summary", "warnings", "_context",
+    )
+
+    def __init__(
+        self,
+        *,
+        plan: Plan,
+        channels_hz: np.ndarray,
+        lo_hz: np.ndarray,
+        f_wanted_out_hz: np.ndarray,
+        inverted: np.ndarray,
+        worst_margin_db: np.ndarray,
+        worst_row: pd.DataFrame,
+        worst_by_product: pd.DataFrame,
+        hits: pd.DataFrame,
+        summary: Summary,
+        warnings: tuple[str, ...],
+        context: _Context,
+    ) -> None:
+        values = {
+            "plan": plan,
+            "channels_hz": _read_only(channels_hz),
+            "lo_hz": _read_only(lo_hz),
+            "f_wanted_out_hz": _read_only(f_wanted_out_hz),
+            "inverted": _read_only(inverted),
+            "worst_margin_db": _read_only(worst_margin_db),
+            "_worst_row": worst_row.copy(),
+            "_worst_by_product": worst_by_product.copy(),
+            "_hits": hits.copy(),
+            "summary": summary,
+            "warnings": tuple(warnings),
+            "_context": context,
+        }
+        for name, value in values.items():
+            object.__setattr__(self, name, value)
+
+    def __setattr__(self, name: str, value: object) -> None:
+        raise AttributeError(f"Evaluation is read-only; cannot set {name!r}")
+
+    def __delattr__(self, name: str) -> None:
+        raise AttributeError(f"Evaluation is read-only; cannot delete {name!r}")
+
+    def __repr__(self) -> str:
+        return f"<Evaluation of {self.plan.name!r}: {self.summary.line()}>"
+
+    @property
+    def worst_row(self) -> pd.DataFrame:
+        """The worst product/response of each channel (a copy-on-write copy)."""
+        return self._worst_row.copy(deep=False)
+
+    @property
+    def worst_by_product(self) -> pd.DataFrame:
+        """The worst case of each product/response across the sweep (a copy-on-write copy)."""
+        return self._worst_by_product.copy(deep=False)
+
+    @property
+    def hits(self) -> pd.DataFrame:
+        """Failing rows, the worst first (a copy-on-write copy)."""
+        return self._hits.copy(deep=False)
 
     def to_frame(self) -> pd.DataFrame:
         """Worst case of every product/response across the sweep (one row each, wanted excluded)."""
-        return self.worst_by_product.copy()
+        return self._worst_by_product.copy()
 
     def channels_frame(self) -> pd.DataFrame:
         """One row per channel: its worst product/response (columns: :data:`FRAME_COLUMNS`)."""
-        return self.worst_row.copy()
+        return self._worst_row.copy()
 
     def channel_frame(self, index: int) -> pd.DataFrame:
         """Every product and response of one channel, wanted rows included.
@@ -245,9 +299,16 @@ class Evaluation:
             "plan": self.plan.name,
             "summary": {k: _plain(v) for k, v in self.summary.__dict__.items()},
             "warnings": list(self.warnings),
-            "worst_by_product": frame_records(self.worst_by_product),
-            "hits": frame_records(self.hits),
+            "worst_by_product": frame_records(self._worst_by_product),
+            "hits": frame_records(self._hits),
         }
+
+
+def _read_only(array: np.ndarray) -> np.ndarray:
+    """A read-only copy of ``array`` (nothing else holds a writable alias of it)."""
+    out = np.array(array, copy=True)
+    out.setflags(write=False)
+    return out
 
 
 def _plain(value: Any) -> Any:
@@ -310,6 +371,7 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
         out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
     output_filter = if_filter if plan.direction == "down" else rf_filter
     target = _least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
+    channels, lo, f_in, f_out, wanted_sign = (_read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
     return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high, target,
                     lo_filter=lo_filter)
 
@@ -872,7 +934,7 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         hits=hit_frame,
         summary=summary,
         warnings=tuple(_warnings(ctx)),
-        _context=ctx,
+        context=ctx,
     )
 
 

@@ -20,12 +20,11 @@ import json
 import math
 import re
 import os
-from functools import cached_property
 from pathlib import Path
 from typing import Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError, model_validator
 
 from .errors import MixchartError, PlanError, SweepTooLargeError
 from .fileio import atomic_write_text
@@ -203,6 +202,41 @@ class Requirement(_Strict):
     )
 
 
+class _GridCache:
+    """Holds a plan's channel and LO arrays once computed; invisible to ``==`` and copies.
+
+    Every cache compares equal to every other, so two equal plans compare equal
+    whether or not either has been swept; the arrays are read-only; and a cache
+    remembers which plan filled it, so a shallow copy of a plan recomputes its
+    own grid rather than trusting its source's.
+    """
+
+    __slots__ = ("_owner", "_grid")
+
+    def __init__(self) -> None:
+        self._owner: int | None = None
+        self._grid: tuple[np.ndarray, np.ndarray] | None = None
+
+    def get(self, plan: Plan) -> tuple[np.ndarray, np.ndarray]:
+        if self._grid is None or self._owner != id(plan):
+            channels, lo = _channels_and_lo(plan)
+            channels.setflags(write=False)
+            lo.setflags(write=False)
+            self._grid, self._owner = (channels, lo), id(plan)
+        return self._grid
+
+    def __eq__(self, other: object) -> bool:
+        return isinstance(other, _GridCache)
+
+    __hash__ = None  # type: ignore[assignment]
+
+    def __copy__(self) -> _GridCache:
+        return _GridCache()
+
+    def __deepcopy__(self, memo: dict[int, Any]) -> _GridCache:
+        return _GridCache()
+
+
 class Plan(_Strict):
     """One frequency plan.
 
@@ -233,6 +267,7 @@ class Plan(_Strict):
     mixer: MixerSpec = Field(default_factory=MixerSpec)
     filters: Filters = Field(default_factory=Filters)
     requirement: Requirement = Field(default_factory=Requirement)
+    _grid_cache: _GridCache = PrivateAttr(default_factory=lambda: _GridCache())
 
     @model_validator(mode="after")
     def _check(self) -> Plan:
@@ -255,9 +290,11 @@ class Plan(_Strict):
         return self
 
     # ------------------------------------------------------------------ sweep
-    @cached_property
+    @property
     def _grid(self) -> tuple[np.ndarray, np.ndarray]:
-        return _channels_and_lo(self)
+        # The sweep grid is cached outside the model's fields and private state, so equal
+        # plans compare equal (and copies never see a stale grid): see _GridCache.
+        return self._grid_cache.get(self)
 
     def channels_hz(self) -> np.ndarray:
         """Channel centres of the RF tuning range, Hz, shape ``(n_channels,)``."""

@@ -41,7 +41,6 @@ __all__ = [
     "Lines",
     "clip_lines",
     "tuning_plane_loci",
-    "tuning_plane_loci_up",
     "Strips",
     "tuning_plane_strips",
     "output_plane_loci",
@@ -65,6 +64,15 @@ LABELS: tuple[str, ...] = (
 )
 SPUR, WANTED, IMAGE, HALF_IF, IF_FEEDTHROUGH, LO_LEAKAGE, LO_HARMONIC = range(7)
 RF_FEEDTHROUGH, SUM_PRODUCT, UNWANTED_SIDEBAND, IF_FEEDTHROUGH_OUT = 7, 8, 9, 10
+
+
+DIRECTIONS = ("down", "up")
+
+
+def _check_direction(direction: object) -> str:
+    if not isinstance(direction, str) or direction not in DIRECTIONS:
+        raise field_error(MixchartError, "direction", direction, "must be 'down' or 'up'")
+    return direction
 
 
 def _check_order(max_order: object) -> int:
@@ -494,18 +502,6 @@ def tuning_plane_loci(
     return _select(lines, window)
 
 
-def tuning_plane_loci_up(
-    max_order: int,
-    if_low_hz: float,
-    if_high_hz: float,
-    window: tuple[float, float, float, float],
-    *,
-    include_center: bool = True,
-) -> Lines:
-    """:func:`tuning_plane_loci` for up-conversion (the IF is the input)."""
-    return tuning_plane_loci(max_order, if_low_hz, if_high_hz, window, include_center=include_center, direction="up")
-
-
 def output_plane_loci(max_order: int, f_lo_hz: float, window: tuple[float, float, float, float]) -> Lines:
     """Each product's output against the input frequency, for one LO.
 
@@ -564,6 +560,7 @@ def product_labels(family: ProductFamily, direction: str, wanted_sign: np.ndarra
     -------
     numpy.ndarray of int8, shape (C, K)
     """
+    _check_direction(direction)
     m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
     base = np.full(m.size, SPUR, dtype=np.int8)
     base[(m == 0) & (n == 1)] = LO_LEAKAGE
@@ -638,6 +635,7 @@ class Strips:
 
 
 def _strip_coefficients(direction: str, family: ProductFamily, t_low: float, t_high: float):
+    _check_direction(direction)
     m, n, s = family.rf_harmonic, family.lo_harmonic, family.sign
     diff = s < 0
     if direction == "down":
@@ -665,8 +663,8 @@ def tuning_plane_strips(
     Down-conversion: the input at ``x`` mixed with the LO at ``y`` through
     (m, n, sign) lands inside the IF passband.  Up-conversion: the IF passband
     mixed with the LO at ``y`` lands on ``x``.  Each region is the strip
-    between the two lines of :func:`tuning_plane_loci` (or
-    :func:`tuning_plane_loci_up`) for the IF edges, clipped to the window.
+    between the two lines of :func:`tuning_plane_loci` for the IF edges,
+    clipped to the window.
 
     Parameters
     ----------
