@@ -15,6 +15,8 @@ __all__ = [
     "FilterError",
     "LevelTableError",
     "SweepTooLargeError",
+    "field_error",
+    "one_line",
 ]
 
 
@@ -42,6 +44,30 @@ class SweepTooLargeError(MixchartError):
     """A requested sweep would need an unreasonable amount of work or memory."""
 
 
+def one_line(text: str) -> str:
+    """``text`` with every control or line-separator character escaped, so it prints as one line.
+
+    Parameters
+    ----------
+    text : str
+        Any text, e.g. a message holding a key read from an untrusted file.
+
+    Returns
+    -------
+    str
+        The same text, with characters such as ``\\n``, ``\\r`` and ``\\u2028``
+        written as their backslash escapes.
+
+    Examples
+    --------
+    >>> one_line("bad\\nkey")
+    'bad\\\\nkey'
+    """
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in text)
+
+
 def field_error(cls: type[MixchartError], field: str, value: object, allowed: str) -> MixchartError:
     """Build a one-line error naming ``field``, repeating ``value`` and saying what is allowed.
 
@@ -64,4 +90,4 @@ def field_error(cls: type[MixchartError], field: str, value: object, allowed: st
     text = repr(value)
     if len(text) > 80:
         text = text[:77] + "..."
-    return cls(f"{field}: {text} is invalid; {allowed}".replace("\n", " "))
+    return cls(one_line(f"{field}: {text} is invalid; {allowed}"))

@@ -25,13 +25,14 @@ from typing import Annotated, Literal, Union
 
 import numpy as np
 from numpy.typing import ArrayLike
-from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, model_validator
+from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError, model_validator
 
 from .errors import FilterError, field_error
 from .units import FrequencyHz, format_frequency
+from .validation import from_validation_error
 
 __all__ = ["PrototypeFilter", "TunedCircuit", "BrickWall", "MeasuredFilter", "Cascade", "FilterSpec",
-           "parse_filter_spec", "Filter", "build_filter"]
+           "parse_filter_spec", "iter_filter_stages", "Filter", "build_filter"]
 
 Response = Literal["lowpass", "highpass", "bandpass", "bandstop"]
 _DB_PER_NEPER_SQ = 10.0 / math.log(10.0)  # 10*log10(x) == _DB_PER_NEPER_SQ * ln(x)
@@ -221,12 +222,36 @@ def parse_filter_spec(data: object) -> PrototypeFilter | TunedCircuit | BrickWal
 
     Raises
     ------
-    pydantic.ValidationError
-        If the data is not a valid spec.  Errors raised by the model validators
-        carry a :class:`FilterError` (``ctx["error"]``) whose one-line message
-        names the field; ``loc`` includes the union tag (e.g. ``("elliptic", "order")``).
+    FilterError
+        If the data is not a valid spec: one line naming the field (e.g.
+        ``filter.order`` or ``stages.0.q_loaded``) and repeating the value.
     """
-    return _ADAPTER.validate_python(data)
+    try:
+        return _ADAPTER.validate_python(data)
+    except ValidationError as exc:
+        raise from_validation_error(exc, data, FilterError, root="filter") from None
+
+
+def iter_filter_stages(spec, where: str = "filter"):
+    """Every non-cascade filter inside ``spec``, however deeply cascades nest.
+
+    Parameters
+    ----------
+    spec : FilterSpec
+        A validated spec.
+    where : str
+        Dotted name of ``spec`` in its document, e.g. ``"filters.if"``.
+
+    Yields
+    ------
+    (str, FilterSpec)
+        The dotted name of each stage (``"filters.if.stages.1.stages.0"``) and its spec.
+    """
+    if isinstance(spec, Cascade):
+        for i, stage in enumerate(spec.stages):
+            yield from iter_filter_stages(stage, f"{where}.stages.{i}")
+    else:
+        yield where, spec
 
 
 # --------------------------------------------------------------------------- responses
@@ -586,10 +611,8 @@ def build_filter(spec, *, base_dir: Path | None = None, field_prefix: str = "") 
 
     Raises
     ------
-    pydantic.ValidationError
-        If a dict spec is invalid (see :func:`parse_filter_spec`).
     FilterError
-        If a Touchstone file is missing, unreadable, empty, lacks the requested
+        If a dict spec is invalid (see :func:`parse_filter_spec`), or a Touchstone file is missing, unreadable, empty, lacks the requested
         S-parameter or has non-increasing frequencies.
 
     Examples
@@ -599,7 +622,10 @@ def build_filter(spec, *, base_dir: Path | None = None, field_prefix: str = "") 
     30.11
     """
     if not isinstance(spec, BaseModel):
-        spec = parse_filter_spec(spec)
+        try:
+            spec = _ADAPTER.validate_python(spec)
+        except ValidationError as exc:
+            raise from_validation_error(exc, spec, FilterError, root="filter", prefix=field_prefix) from None
     if isinstance(spec, (PrototypeFilter, BrickWall)):
         return _Mapped(spec, field_prefix)
     if isinstance(spec, TunedCircuit):

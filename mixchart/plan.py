@@ -26,11 +26,12 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError, model_validator
 
-from .errors import MixchartError, PlanError, SweepTooLargeError
+from .errors import MixchartError, PlanError, SweepTooLargeError, one_line
 from .fileio import atomic_write_text
-from .filters import FilterSpec
+from .filters import FilterSpec, iter_filter_stages
 from .levels import MixerSpec
 from .units import FrequencyHz, format_frequency
+from .validation import from_validation_error
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -82,12 +83,12 @@ class RfBand(_Strict):
     @model_validator(mode="after")
     def _check(self) -> RfBand:
         if self.stop_hz < self.start_hz:
-            raise ValueError(
+            raise PlanError(
                 f"stop_hz: {format_frequency(self.stop_hz)} is below start_hz "
                 f"{format_frequency(self.start_hz)}"
             )
         if self.stop_hz > self.start_hz and self.step_hz is None:
-            raise ValueError("step_hz: missing; it is required when stop_hz > start_hz")
+            raise PlanError("step_hz: missing; it is required when stop_hz > start_hz")
         return self
 
     @property
@@ -146,9 +147,9 @@ class LoSetting(_Strict):
     @model_validator(mode="after")
     def _check(self) -> LoSetting:
         if self.mode == "fixed" and self.fixed_hz is None:
-            raise ValueError("fixed_hz: missing; it is required when mode is 'fixed'")
+            raise PlanError("fixed_hz: missing; it is required when mode is 'fixed'")
         if self.mode == "tracking" and self.fixed_hz is not None:
-            raise ValueError("fixed_hz: only used when mode is 'fixed'; remove it or set mode 'fixed'")
+            raise PlanError("fixed_hz: only used when mode is 'fixed'; remove it or set mode 'fixed'")
         return self
 
 
@@ -161,7 +162,7 @@ class IfBand(_Strict):
     @model_validator(mode="after")
     def _check(self) -> IfBand:
         if self.bandwidth_hz >= 2 * self.center_hz:
-            raise ValueError(
+            raise PlanError(
                 f"bandwidth_hz: {format_frequency(self.bandwidth_hz)} puts the lower passband edge "
                 f"at or below 0 Hz (centre {format_frequency(self.center_hz)})"
             )
@@ -279,14 +280,17 @@ class Plan(_Strict):
                 f"is too many; at most {MAX_CHANNELS}"
             )
         if self.lo.mode == "tracking" and self.lo.side == "low" and self.rf.start_hz <= self.if_.center_hz:
-            raise ValueError(
+            raise PlanError(
                 f"lo.side: 'low' puts the LO at or below 0 Hz: rf.start_hz {format_frequency(self.rf.start_hz)} "
                 f"<= if.center_hz {format_frequency(self.if_.center_hz)}"
             )
-        if_filter = self.filters.if_
-        stages = [] if if_filter is None else list(if_filter.stages) if if_filter.kind == "cascade" else [if_filter]
-        if any(getattr(stage, "tracks_channel", False) for stage in stages):
-            raise ValueError("filters.if: an IF filter cannot track the channel (the IF is fixed); set tracks_channel false")
+        if self.filters.if_ is not None:
+            for where, stage in iter_filter_stages(self.filters.if_, "filters.if"):
+                if getattr(stage, "tracks_channel", False):
+                    raise PlanError(
+                        f"{where}.tracks_channel: True is invalid; an IF filter cannot track the channel "
+                        "(the IF is fixed); set it false"
+                    )
         return self
 
     # ------------------------------------------------------------------ sweep
@@ -378,60 +382,6 @@ def _channels_and_lo(plan: Plan) -> tuple[np.ndarray, np.ndarray]:
 # ---------------------------------------------------------------------- JSON
 
 
-def _field_path(loc: tuple[Any, ...], data: Any) -> str:
-    """Dotted field name of a pydantic error location, without discriminated-union tags.
-
-    A tagged union (a filter's ``kind``) adds a level naming the chosen kind
-    (``filters.rf.tuned.q_loaded``); it is not a key of the JSON, so it is dropped
-    (``filters.rf.q_loaded``).
-    """
-    parts: list[str] = []
-    node = data
-    for part in loc:
-        if isinstance(node, dict) and part not in node and node.get("kind") == part:
-            continue  # the union tag
-        parts.append(str(part))
-        if isinstance(node, dict):
-            node = node.get(part)
-        elif isinstance(node, (list, tuple)) and isinstance(part, int) and -len(node) <= part < len(node):
-            node = node[part]
-        else:
-            node = None
-    return ".".join(parts)
-
-
-def _one_line(exc: ValidationError, data: Any = None) -> PlanError:
-    errors = exc.errors(include_url=False)
-    first = errors[0]
-    loc = _field_path(first["loc"], data) or "plan"
-    ctx = first.get("ctx") or {}
-    if isinstance(ctx.get("error"), MixchartError):
-        # A nested model (a filter) names its own field and value: prefix where it sits.
-        more = f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})" if len(errors) > 1 else ""
-        return PlanError((f"{loc}.{ctx['error']}" + more).replace("\n", " "))
-    message = first["msg"]
-    for prefix in ("Value error, ", "Assertion failed, "):
-        if message.startswith(prefix):
-            message = message[len(prefix):]
-    value = first.get("input")
-    shown = repr(value)
-    if isinstance(value, dict):
-        shown = "{...}"
-    if len(shown) > 60:
-        shown = shown[:57] + "..."
-    more = f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})" if len(errors) > 1 else ""
-    if first["type"] == "missing":
-        text = f"{loc}: missing; this field is required"
-    elif first["type"] == "extra_forbidden":
-        text = f"{loc}: unknown key (value {shown}); remove it or check its spelling"
-    elif isinstance(value, dict) and re.match(r"^[a-z_.]+: ", message):
-        # A whole-model check whose message already names the field and value it is about.
-        text = message if loc == "plan" else f"{loc}.{message}"
-    else:
-        text = f"{loc}: {shown} is invalid; {message}"
-    return PlanError((text + more).replace("\n", " "))
-
-
 def plan_from_dict(data: Any) -> Plan:
     """Validate a plain dict (parsed JSON) into a :class:`Plan`.
 
@@ -462,7 +412,7 @@ def plan_from_dict(data: Any) -> Plan:
             ctx = err.get("ctx") or {}
             if isinstance(ctx.get("error"), SweepTooLargeError):
                 raise ctx["error"] from None
-        raise _one_line(exc, data) from None
+        raise from_validation_error(exc, data, PlanError, root="plan") from None
 
 
 def _reject_constant(name: str) -> float:
@@ -473,7 +423,7 @@ def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     out: dict[str, Any] = {}
     for key, value in pairs:
         if key in out:
-            raise PlanError(f"{key}: duplicate key; each key may appear once")
+            raise PlanError(f"{one_line(key)}: duplicate key; each key may appear once")
         out[key] = value
     return out
 
