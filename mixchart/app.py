@@ -517,11 +517,6 @@ class PlannerApp:
         for name in ("out_output_band", "out_input_band", "rf_band"):
             self.chart.sources[name].on_change("data", self._drag_handler(name))
 
-    def _guarded(self, fn: Callable[[], None]) -> None:
-        if self._syncing:
-            return
-        fn()
-
     def _text_handler(self, key: str, path: str) -> Callable[[dict], None]:
         def handler(change: dict) -> None:
             if self._syncing:

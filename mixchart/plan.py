@@ -472,7 +472,8 @@ def load_plan(path: str | os.PathLike[str]) -> Plan:
     ----------
     path : path-like
         A JSON plan file.  Relative paths inside it (filter and level-table
-        files) are resolved against its folder; see :func:`plan_base_dir`.
+        files) are resolved by :func:`~mixchart.analysis.evaluate` against the
+        ``base_dir`` it is given (the CLI and the app pass this file's folder).
 
     Returns
     -------

@@ -90,7 +90,7 @@ def voila_command(notebook: Path, port: int) -> list[str]:
     ]
 
 
-def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0, open_browser: bool = False) -> int:
+def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0) -> int:
     """Serve the planner with Voila until interrupted.
 
     Parameters
@@ -98,9 +98,8 @@ def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0, open_brows
     plan_path : path-like or None
         Plan file to open (None: the built-in example).
     port : int
-        TCP port on 127.0.0.1; 0 picks a free one.
-    open_browser : bool
-        Unused; the address is printed for the user to open.
+        TCP port on 127.0.0.1; 0 picks a free one.  The address is printed
+        for the user to open.
 
     Returns
     -------

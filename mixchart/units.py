@@ -21,7 +21,6 @@ from .errors import UnitError, field_error
 __all__ = [
     "FREQUENCY_UNITS",
     "FrequencyHz",
-    "FrequencyHzOrZero",
     "parse_frequency",
     "format_frequency",
     "engineering_scale",
@@ -219,4 +218,3 @@ def _schema(allow_zero: bool) -> dict:
 #: A pydantic field type: a strictly positive frequency in Hz, accepting text.
 FrequencyHz = Annotated[float, BeforeValidator(_validator(False)), WithJsonSchema(_schema(False))]
 #: As :data:`FrequencyHz` but 0 Hz is allowed.
-FrequencyHzOrZero = Annotated[float, BeforeValidator(_validator(True)), WithJsonSchema(_schema(True))]
