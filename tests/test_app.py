@@ -173,7 +173,13 @@ def test_save_load_reevaluates_to_what_the_screen_shows(app: PlannerApp, tmp_pat
     shown = app.state.evaluation
     assert ev.summary == shown.summary
     np.testing.assert_array_equal(ev.worst_margin_db, shown.worst_margin_db)
-    assert chart_data(ev, app.state.view).sources.keys() == chart_data(shown, app.state.view).sources.keys()
+    # what the chart draws from the reloaded plan is what the screen shows, column by column
+    reloaded, on_screen = chart_data(ev, app.state.view).sources, chart_data(shown, app.state.view).sources
+    assert reloaded.keys() == on_screen.keys()
+    for name in on_screen:
+        assert reloaded[name].keys() == on_screen[name].keys(), name
+        for column in on_screen[name]:
+            np.testing.assert_equal(reloaded[name][column], on_screen[name][column], err_msg=f"{name}.{column}")
 
 
 def test_upload_of_a_bad_file_shows_a_message_and_keeps_the_plan(app: PlannerApp) -> None:
