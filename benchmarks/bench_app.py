@@ -47,9 +47,10 @@ import subprocess
 import sys
 import tempfile
 import time
+from collections.abc import Callable
 from contextlib import contextmanager, nullcontext
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
@@ -76,7 +77,7 @@ def median(xs: list[float]) -> float:
 
 def p90(xs: list[float]) -> float:
     xs = sorted(xs)
-    return xs[min(len(xs) - 1, int(round(0.9 * (len(xs) - 1))))]
+    return xs[min(len(xs) - 1, round(0.9 * (len(xs) - 1)))]
 
 
 # ----------------------------------------------------------------------------- Python side
@@ -107,7 +108,7 @@ def _stock_model_class() -> type:
     from jupyter_bokeh import BokehModel
 
     class StockBokehModel(BokehModel):
-        def batch(self):  # noqa: D401 - same interface as BatchedBokehModel
+        def batch(self):  # same interface as BatchedBokehModel
             return nullcontext()
 
     return StockBokehModel
@@ -228,7 +229,8 @@ def breakdown(n: int) -> list[str]:
         widget, values = CHANGES["plan: signal -30/-25 dBm"](app)
         whole = time_changes(app, counter, widget, values, n)["median_ms"]
         rows = ", ".join(f"{k} {len(next(iter(v.values())))}" for k, v in datas[0].sources.items())
-        lines.append(f"{order:>5} {median(t_ev):>9.1f} {median(t_cd):>10.1f} {median(t_up):>11.1f} {whole:>12.1f}  {rows}")
+        lines.append(f"{order:>5} {median(t_ev):>9.1f} {median(t_cd):>10.1f} {median(t_up):>11.1f} "
+                     f"{whole:>12.1f}  {rows}")
     lines.append("(whole change - the three stages = table HTML, status, widget sync and traitlets.)")
     return lines
 

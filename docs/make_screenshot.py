@@ -39,7 +39,8 @@ def main() -> int:
     try:
         server = start_voila(harness, REPO / "notebooks" / "planner.ipynb", None, tmp)
         with sync_playwright() as pw:
-            browser = pw.chromium.launch(executable_path=str(harness.CHROMIUM), headless=True, args=harness.CHROMIUM_ARGS)
+            browser = pw.chromium.launch(executable_path=str(harness.CHROMIUM), headless=True,
+                                         args=harness.CHROMIUM_ARGS)
             try:
                 page = harness._new_page(browser, 60_000)
                 page.set_viewport_size(VIEWPORT)
