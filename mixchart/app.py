@@ -23,11 +23,11 @@ import base64
 import html
 import math
 import os
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, Iterator
-
+from typing import Any
 
 from .analysis import Evaluation
 from .chart import ChartHandle, ViewOptions, build_chart, chart_data, update_chart
@@ -211,7 +211,7 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     style = {"description_width": "112px"}
 
     def text(key: str, value: float | None) -> Any:
-        field, label = _TEXT_FIELDS[key]
+        _, label = _TEXT_FIELDS[key]
         return w.Text(value=_freq_text(value), description=label, layout=_row(), style=style, continuous_update=False)
 
     errors = {key: w.HTML(value="", layout=w.Layout(width="300px")) for key in _TEXT_FIELDS}
@@ -338,7 +338,7 @@ def _error_html(text: str) -> str:
     return f'<span class="mixchart-error" style="color:#B33000;font-size:12px">{html.escape(text)}</span>' if text else ""
 
 
-def _filter_spec_from_controls(fc: FilterControls, tracking_allowed: bool) -> dict[str, Any] | None | str:
+def _filter_spec_from_controls(fc: FilterControls, tracking_allowed: bool) -> dict[str, Any] | str | None:
     """Build a filter spec dict from its widgets; returns "custom" to mean: use the JSON box."""
     kind = fc.kind.value
     if kind == "none":

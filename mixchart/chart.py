@@ -318,7 +318,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "label": [
             f"({m},{n}) {'wanted' if w else 'image arm' if im and down else 'sum' if s > 0 else 'difference'}"
             for m, n, s, w, im in zip(
-                lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k], image_arm[k]
+                lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k], image_arm[k], strict=True
             )
         ],
         "level": line_level[k].astype(float),
@@ -628,7 +628,7 @@ def _same(old: dict[str, Any] | None, new: dict[str, Any]) -> bool:
                 return False
         elif isinstance(a, list) and isinstance(b, list) and len(a) == len(b):
             if a and isinstance(a[0], np.ndarray):
-                if not all(np.array_equal(x, y) for x, y in zip(a, b)):
+                if not all(np.array_equal(x, y) for x, y in zip(a, b, strict=True)):
                     return False
             elif a != b:
                 return False
@@ -646,4 +646,4 @@ def _close(a: tuple[float, ...] | None, b: tuple[float, ...] | None) -> bool:
     if a is None or b is None:
         return False
     span = max(abs(a[1] - a[0]), abs(a[3] - a[2]), 1e-30)
-    return all(abs(x - y) <= 1e-6 * span for x, y in zip(a, b))
+    return all(abs(x - y) <= 1e-6 * span for x, y in zip(a, b, strict=True))

@@ -10,8 +10,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Sequence
 
 from .errors import MixchartError
 
@@ -57,7 +57,7 @@ def _text_table(frame, top: int) -> str:
     shown = frame.head(top)
     channel = [format_frequency(f, 7) for f in shown["channel_hz"]]
     lo = [format_frequency(f, 7) for f in shown["lo_hz"]]
-    band = [f"{format_frequency(a, 7)}-{format_frequency(b, 7)}" for a, b in zip(shown["f_low_hz"], shown["f_high_hz"])]
+    band = [f"{format_frequency(a, 7)}-{format_frequency(b, 7)}" for a, b in zip(shown["f_low_hz"], shown["f_high_hz"], strict=True)]
     # frequency columns as wide as their longest entry, so long values never run together
     w_ch, w_lo, w_band = (max([len(head), *map(len, col)]) for head, col in
                           (("channel", channel), ("LO", lo), ("spur/input band", band)))

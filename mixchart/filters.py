@@ -21,7 +21,7 @@ import math
 import re
 import warnings
 from pathlib import Path
-from typing import Annotated, Literal, Union
+from typing import Annotated, Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -201,7 +201,7 @@ class Cascade(_Spec):
 
 
 FilterSpec = Annotated[
-    Union[PrototypeFilter, TunedCircuit, BrickWall, MeasuredFilter, Cascade], Field(discriminator="kind")
+    PrototypeFilter | TunedCircuit | BrickWall | MeasuredFilter | Cascade, Field(discriminator="kind")
 ]
 Cascade.model_rebuild()
 _ADAPTER: TypeAdapter = TypeAdapter(FilterSpec)
@@ -456,7 +456,7 @@ def _elliptic_atten(n: int, ripple_db: float, stop_atten_db: float):
         w_sq = w * w
         w_cap = np.minimum(w_sq, 1e300)  # each pair factor is 1 to float precision long before this
         gain = np.ones_like(w_sq)
-        for z_sq, c, e in zip(zeros_sq, pole_c, pole_e):
+        for z_sq, c, e in zip(zeros_sq, pole_c, pole_e, strict=True):
             gain *= np.abs(w_cap - z_sq) / np.hypot(w_cap + c, e)
         for s_sq in real_sq:
             gain /= np.sqrt(w_sq + s_sq)
@@ -553,7 +553,7 @@ def _read_touchstone(path: Path, port_out: int, port_in: int, field: str) -> tup
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # every problem it warns about is checked below
             net = skrf.Network(where)
-    except Exception as exc:  # noqa: BLE001 - any reader failure is a bad file to the user
+    except Exception as exc:
         message = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise field_error(FilterError, field, where, f"not a readable Touchstone file ({message})") from None
     if net.nports < max(port_out, port_in):

@@ -483,7 +483,7 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
         if len(cells) - 1 > len(header):
             raise field_error(LevelTableError, f"{where} (m={m})", f"{len(cells) - 1} cells",
                               f"at most {len(header)}, one per header column")
-        for n, cell in zip(header, cells[1:]):
+        for n, cell in zip(header, cells[1:], strict=False):  # a short row leaves its last cells blank
             if cell:
                 level = _parse_level(cell, f"{where} (m={m}, n={n})", m, n)
                 if m < size and n < size:
@@ -569,7 +569,7 @@ def _drive(value: object, name: str = "rf_drive_dbm", *, scalar: bool = False) -
         drive = np.asarray(value, dtype=float)
     except (TypeError, ValueError):
         raise field_error(LevelTableError, name, value, "a number") from None
-    if (np.isnan(drive).any() or scalar and (drive.ndim or not np.isfinite(drive))):
+    if (np.isnan(drive).any() or (scalar and (drive.ndim or not np.isfinite(drive)))):
         raise field_error(LevelTableError, name, value, "one finite number" if scalar else "finite or -inf dBm")
     return drive
 

@@ -18,7 +18,6 @@ from __future__ import annotations
 
 import json
 import math
-import re
 import os
 from pathlib import Path
 from typing import Any, Literal
@@ -26,7 +25,7 @@ from typing import Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError, model_validator
 
-from .errors import MixchartError, PlanError, SweepTooLargeError, one_line
+from .errors import PlanError, SweepTooLargeError, one_line
 from .fileio import atomic_write_text
 from .filters import FilterSpec, iter_filter_stages
 from .levels import MixerSpec
@@ -102,7 +101,7 @@ class RfBand(_Strict):
                 f"rf.step_hz: {self.step_hz!r} is invalid; it gives more than {MAX_CHANNELS} channels "
                 f"from {format_frequency(self.start_hz)} to {format_frequency(self.stop_hz)}"
             )
-        return int(math.floor(ratio)) + 1
+        return math.floor(ratio) + 1
 
 
 class Signal(_Strict):

@@ -495,7 +495,7 @@ def tuning_plane_loci(
     for edge, f_t in edges:
         # a strip of zero width: its two boundary lines coincide on the line for f_t
         a, b, c, _c, (m, n, s) = _strip_coefficients(direction, family, f_t, f_t)
-        for key, value in zip(("a", "b", "c", "m", "n", "s"), (a, b, c, m, n, s)):
+        for key, value in zip(("a", "b", "c", "m", "n", "s"), (a, b, c, m, n, s), strict=True):
             parts[key].append(value)
         parts["edge"].append(np.full(a.size, edge))
     lines = {k: np.concatenate(v) for k, v in parts.items()}

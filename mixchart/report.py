@@ -16,7 +16,7 @@ from __future__ import annotations
 import html
 import math
 import os
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -197,7 +197,7 @@ def _failing_runs(ev: Evaluation) -> str:
         return f"<p>No failing channels: all {s.n_channels} pass.</p>"
     fail = ev.worst_margin_db < 0
     edges = np.flatnonzero(np.diff(np.concatenate([[0], fail.astype(np.int8), [0]])))
-    runs = list(zip(edges[::2], edges[1::2]))
+    runs = list(zip(edges[::2], edges[1::2], strict=True))
     items = []
     for a, b in runs[:MAX_RUNS]:
         k = a + int(np.argmin(ev.worst_margin_db[a:b]))
@@ -303,7 +303,7 @@ def report_html(plan: Plan, *, base_dir: str | os.PathLike[str] | None = None, e
     body += [f'<section class="cards">{cards}</section>', "<h2>The plan</h2>",
              f'<table class="words">{"<thead><tr><th></th>" + head + "</tr></thead>" if head else ""}'
              f"<tbody>{word_rows}</tbody></table>"]
-    for (role, p, e), div in zip(entries, divs):
+    for (role, p, e), div in zip(entries, divs, strict=True):
         tag = "" if reference is None else f" ({_e(role)}: {_e(p.name)})"
         warns = "".join(f"<li>{_e(w)}</li>" for w in e.warnings) or "<li>none</li>"
         body += [f"<h2>Warnings{tag}</h2><ul class=warn>{warns}</ul>", f"<h2>Chart{tag}</h2>",
@@ -318,7 +318,7 @@ def report_html(plan: Plan, *, base_dir: str | os.PathLike[str] | None = None, e
     for role, p, _ in entries:
         ident = "plan-json" if role == "this plan" else "reference-json"
         body.append(f'<h2>Plan JSON ({_e(role)})</h2><pre id="{ident}">{_e(dumps_plan(p))}</pre>')
-    stamp = datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    stamp = datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC")
     body.append(f"<footer class=meta>Generated {stamp} by mixchart {_e(__version__)}.</footer>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             f"<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"><title>{_e(plan.name)} · mixchart"

@@ -10,9 +10,10 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
@@ -241,5 +242,5 @@ def _snap(f_hz: float) -> float:
     """Round a dragged frequency to 6 significant digits (no float drift in the plan)."""
     if f_hz <= 0 or not math.isfinite(f_hz):
         return f_hz
-    digits = 6 - int(math.floor(math.log10(f_hz))) - 1
+    digits = 6 - math.floor(math.log10(f_hz)) - 1
     return float(round(f_hz, digits))

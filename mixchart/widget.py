@@ -6,8 +6,9 @@ jupyter_bokeh.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from contextlib import contextmanager
-from typing import Any, Iterator
+from typing import Any
 
 import numpy as np
 
@@ -103,20 +104,20 @@ def _same_value(old: Any, new: Any) -> bool:
         try:
             a, b = np.asarray(old), np.asarray(new)
         except ValueError:  # ragged (e.g. patches' xs): compare item by item
-            return len(old) == len(new) and all(_same_value(x, y) for x, y in zip(old, new))
+            return len(old) == len(new) and all(_same_value(x, y) for x, y in zip(old, new, strict=True))
         if a.dtype == object or b.dtype == object:
-            return len(old) == len(new) and all(_same_value(x, y) for x, y in zip(old, new))
+            return len(old) == len(new) and all(_same_value(x, y) for x, y in zip(old, new, strict=True))
         return a.shape == b.shape and bool(np.array_equal(a, b))
     try:
         return bool(old == new)
-    except Exception:  # noqa: BLE001 - exotic values: treat as changed
+    except Exception:
         return False
 
 
 _BATCHED: type | None = None
 
 
-def BatchedBokehModel(model: Any) -> Any:  # noqa: N802 - a class factory used like a class
+def BatchedBokehModel(model: Any) -> Any:
     """Wrap a Bokeh layout as an ipywidget that batches updates (see ``_batched_model_class``)."""
     global _BATCHED
     if _BATCHED is None:

@@ -61,7 +61,7 @@ def response_list(f_lo_hz: float, if_low_hz: float, if_high_hz: float, max_order
     if_centre = (if_low_hz + if_high_hz) / 2.0
     out = []
     for m in range(1, max_order + 1):
-        for n in range(0, max_order + 1 - m):
+        for n in range(max_order + 1 - m):
             h = n * f_lo_hz
             # +1 branch: m·f - h = f_if
             out.append((m, n, 1, (h + if_centre) / m, (h + if_low_hz) / m, (h + if_high_hz) / m))

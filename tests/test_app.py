@@ -15,12 +15,12 @@ import pytest
 pytest.importorskip("ipywidgets")
 pytest.importorskip("jupyter_bokeh")
 
-from bokeh.core.serialization import Serializer  # noqa: E402
+from bokeh.core.serialization import Serializer
 
-from mixchart.analysis import evaluate  # noqa: E402
-from mixchart.app import PlannerApp, PlanState, example_plan  # noqa: E402
-from mixchart.chart import ViewOptions, chart_data  # noqa: E402
-from mixchart.plan import load_plan  # noqa: E402
+from mixchart.analysis import evaluate
+from mixchart.app import PlannerApp, PlanState, example_plan
+from mixchart.chart import ViewOptions, chart_data
+from mixchart.plan import load_plan
 
 
 @pytest.fixture()
@@ -151,7 +151,7 @@ def test_compare_keeps_a_reference(app: PlannerApp) -> None:
     app.state.try_update({"lo.side": "low"})
     assert "Reference" in app.compare.value and "Edited" in app.compare.value
     assert "high-side" in app.compare.value and "low-side" in app.compare.value
-    label, body = app.reference_box.children
+    _, body = app.reference_box.children
     chart, table = body.children
     assert chart is app._reference_widget
     # the reference keeps its own worst-case table, led by its worst row (for the FM example's

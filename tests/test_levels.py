@@ -457,7 +457,7 @@ def test_build_table_builtin_and_relative_csv(tmp_path):
     reference = pd.read_csv(PARTIAL_CSV, comment="#", index_col=0)  # independent parser
     assert from_csv.measured.sum() == reference.notna().to_numpy().sum() and from_csv.rf_ref_dbm == -10.0
     assert any("LO drive 10 dBm" in w for w in from_csv.drive_warnings(-10.0, 10.0))
-    with pytest.raises(LevelTableError, match="x.csv"):
+    with pytest.raises(LevelTableError, match=r"x\.csv"):
         build_table(MixerSpec(table="tables/x.csv"), 5, base_dir=tmp_path / "elsewhere")
     absolute = MixerSpec(table=str(tmp_path / "tables" / "x.csv"))  # an absolute path ignores base_dir
     assert build_table(absolute, 5, base_dir=tmp_path / "elsewhere").measured.any()
@@ -479,7 +479,7 @@ def test_level_table_validates_and_is_read_only():
     good = builtin_table("double_balanced", 3)
     with pytest.raises(LevelTableError, match=r"level_dbc\[1, 1\]"):
         LevelTable(good.level_dbc - 1.0, good.measured, 0.0, 7.0, 3.9, "double_balanced", "x")
-    with pytest.raises(LevelTableError, match="level_dbc.shape"):
+    with pytest.raises(LevelTableError, match=r"level_dbc\.shape"):
         LevelTable(np.zeros((3, 4)), np.zeros((3, 4), bool), 0.0, 7.0, 3.9, "double_balanced", "x")
     bad = good.level_dbc.copy()
     bad[2, 3] = np.nan

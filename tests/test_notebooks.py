@@ -15,7 +15,7 @@ from mixchart.serve import planner_notebook  # noqa: E402
 NOTEBOOKS = Path(__file__).resolve().parents[1] / "notebooks"
 
 
-def _run(path: Path) -> "nbformat.NotebookNode":
+def _run(path: Path) -> nbformat.NotebookNode:
     nb = nbformat.read(path, as_version=4)
     client = nbclient.NotebookClient(
         nb, timeout=180, kernel_name="python3", resources={"metadata": {"path": str(path.parent)}}

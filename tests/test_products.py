@@ -12,6 +12,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+import reference as ref  # tests/reference.py (pytest puts tests/ on sys.path)
 from mixchart.errors import MixchartError
 from mixchart.products import (
     HALF_IF,
@@ -38,8 +39,6 @@ from mixchart.products import (
     response_labels,
     tuning_plane_loci,
 )
-
-import reference as ref  # tests/reference.py (pytest puts tests/ on sys.path)
 
 kHz, MHz = 1e3, 1e6
 
@@ -82,7 +81,7 @@ def test_family_order_limits(max_order):
     rf = response_family(max_order)
     assert (rf.rf_harmonic >= 1).all() and rf.order.max() == max_order
     assert (rf.branch[rf.lo_harmonic == 0] == 1).all()
-    keys = set(zip(pf.rf_harmonic.tolist(), pf.lo_harmonic.tolist(), pf.sign.tolist()))
+    keys = set(zip(pf.rf_harmonic.tolist(), pf.lo_harmonic.tolist(), pf.sign.tolist(), strict=True))
     assert len(keys) == len(pf), "no duplicates"
 
 
@@ -388,18 +387,18 @@ def test_product_and_response_bands_match_brute_force(seed):
         want_p = {(m, n, s): (c, lo, hi) for m, n, s, c, lo, hi in ref.product_list(f_in[i], f_lo[i], bw, order)}
         got_p = {
             (int(m), int(n), int(s)): (pc[i, k], pl[i, k], ph[i, k])
-            for k, (m, n, s) in enumerate(zip(pf.rf_harmonic, pf.lo_harmonic, pf.sign))
+            for k, (m, n, s) in enumerate(zip(pf.rf_harmonic, pf.lo_harmonic, pf.sign, strict=True))
         }
         assert got_p.keys() == want_p.keys()
         for key, values in want_p.items():
             assert got_p[key] == pytest.approx(values, rel=1e-12, abs=1e-6), key
         in_band = {key for key, (_, lo, hi) in want_p.items() if ref.bands_overlap(lo, hi, if_low, if_high)}
-        got_in = {key for k, key in enumerate(zip(pf.rf_harmonic.tolist(), pf.lo_harmonic.tolist(), pf.sign.tolist())) if hit[i, k]}
+        got_in = {key for k, key in enumerate(zip(pf.rf_harmonic.tolist(), pf.lo_harmonic.tolist(), pf.sign.tolist(), strict=True)) if hit[i, k]}
         assert got_in == in_band
         want_r = {(m, n, b): (c, lo, hi) for m, n, b, c, lo, hi in ref.response_list(f_lo[i], if_low, if_high, order)}
         got_r = {
             (int(m), int(n), int(b)): (rc[i, k], rl[i, k], rh[i, k])
-            for k, (m, n, b) in enumerate(zip(rf.rf_harmonic, rf.lo_harmonic, rf.branch))
+            for k, (m, n, b) in enumerate(zip(rf.rf_harmonic, rf.lo_harmonic, rf.branch, strict=True))
         }
         assert got_r.keys() == want_r.keys()
         for key, values in want_r.items():
@@ -420,12 +419,12 @@ def test_scaling_every_frequency_by_a_power_of_two_scales_every_band_exactly(f_i
     pf, rf = product_family(order), response_family(order)
     a = product_bands(np.array([f_in]), np.array([f_lo]), bw, pf)
     b = product_bands(np.array([f_in * k]), np.array([f_lo * k]), bw * k, pf)
-    for x, y in zip(a, b):
+    for x, y in zip(a, b, strict=True):
         assert np.array_equal(x * k, y)
     if_low, if_high = 0.25 * f_in, 0.25 * f_in + bw
     a = response_bands(np.array([f_lo]), if_low, if_high, rf)
     b = response_bands(np.array([f_lo * k]), if_low * k, if_high * k, rf)
-    for x, y in zip(a, b):
+    for x, y in zip(a, b, strict=True):
         assert np.array_equal(x * k, y)
 
 
@@ -435,7 +434,7 @@ def test_scaling_by_any_factor_scales_bands(f_in, f_lo, bw, order, k):
     pf = product_family(order)
     a = product_bands(np.array([f_in]), np.array([f_lo]), bw, pf)
     b = product_bands(np.array([f_in * k]), np.array([f_lo * k]), bw * k, pf)
-    for x, y in zip(a, b):
+    for x, y in zip(a, b, strict=True):
         np.testing.assert_allclose(x * k, y, rtol=1e-9, atol=1e-9 * k * max(f_in, f_lo))
 
 

@@ -9,11 +9,10 @@ from pathlib import Path
 
 import pytest
 
-from mixchart import cli
+from mixchart import cli, report
 from mixchart.analysis import evaluate
 from mixchart.errors import MixchartError
 from mixchart.plan import dumps_plan, load_plan, loads_plan
-from mixchart import report
 
 CAUTION = "emission limits are set by local rules and licensed practice"
 PRE_JSON = re.compile(r'<pre id="plan-json">(.*?)</pre>', re.S)

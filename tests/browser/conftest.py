@@ -182,7 +182,7 @@ def browser_page_factory(browser):
     for page in pages:
         try:
             page.context.close()
-        except Exception:  # noqa: BLE001 - closing at teardown must not mask results
+        except Exception:
             pass
 
 
@@ -369,7 +369,7 @@ def voila_server(tmp_path_factory):
             "--Voila.ip=127.0.0.1",
             "--show_tracebacks=True",
         ]
-        log = open(log_path, "wb")  # noqa: SIM115 - handed to the child
+        log = open(log_path, "wb")
         try:
             proc = subprocess.Popen(
                 cmd,
@@ -435,7 +435,7 @@ def pytest_runtest_makereport(item, call):
     for i, page in enumerate(pages):
         try:
             page.screenshot(path=str(folder / f"{item.name}-failure{i or ''}.png"), full_page=True)
-        except Exception as exc:  # noqa: BLE001 - a diagnostic must not hide the real failure
+        except Exception as exc:
             report.sections.append(("failure screenshot", f"could not take it: {exc}"))
     for server in _RUNNING:
         tail = "\n".join(server.log_text().splitlines()[-40:])

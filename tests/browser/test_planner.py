@@ -34,9 +34,9 @@ import time
 from pathlib import Path
 from types import SimpleNamespace
 
+import helpers as bh
 import pytest
 
-import helpers as bh
 from mixchart.analysis import evaluate
 from mixchart.chart import CLOSE_DB
 from mixchart.plan import load_plan, loads_plan
@@ -206,7 +206,9 @@ def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
         bh.press_slider_key(page, ".mixchart-requirement", "ArrowRight")
         expected = [m - k for m in _margins(rows0)]
         rows = _wait_until(
-            lambda: (r := _table_rows(page)) and all(abs(a - b) < 0.11 for a, b in zip(_margins(r), expected)) and r,
+            lambda expected=expected: (r := _table_rows(page))
+            and all(abs(a - b) < 0.11 for a, b in zip(_margins(r), expected, strict=True))
+            and r,
             f"every margin {k} dB lower",
         )
     assert float(bh.slider_value(page, ".mixchart-requirement")) == req0 + 3
@@ -222,7 +224,7 @@ def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
     def coloured_for(req_db: float, strips: dict) -> bool:
         return all(
             cat == _category(-level - req_db)
-            for level, cat in zip(strips["level"], strips["category"])
+            for level, cat in zip(strips["level"], strips["category"], strict=True)
             if cat != "wanted"
         )
 
@@ -241,7 +243,8 @@ def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
     for k in (2, 1, 0):
         bh.press_slider_key(page, ".mixchart-requirement", "ArrowLeft")
         expected = [m - k for m in _margins(rows0)]
-        _wait_until(lambda: all(abs(a - b) < 0.11 for a, b in zip(_margins(_table_rows(page)), expected)),
+        _wait_until(lambda expected=expected: all(
+                        abs(a - b) < 0.11 for a, b in zip(_margins(_table_rows(page)), expected, strict=True)),
                     f"every margin {k} dB below the original")
     _wait_until(lambda: _table_rows(page) == rows0, "the original table")
     _wait_until(
@@ -272,7 +275,8 @@ def test_channel_slider_moves_the_output_plane(app):
         bh.press_slider_key(page, ".mixchart-channel", key)
         ch_want = ch0 + sign * k * step
         lo, ch = _wait_until(
-            lambda: (t := _title_channel(page)) and abs(t[1] - ch_want) < 1.0 and t, f"channel {ch_want} Hz in the title"
+            lambda ch_want=ch_want: (t := _title_channel(page)) and abs(t[1] - ch_want) < 1.0 and t,
+            f"channel {ch_want} Hz in the title",
         )
     # Tracking LO on a grid that divides the channel step: it moves as the channel does.
     assert lo - lo0 == pytest.approx(ch - ch0, abs=1.0)
@@ -399,13 +403,13 @@ def test_low_side_injection_moves_the_plan_line(app):
     assert side.locator("button.mod-active").inner_text().strip() == "high side"
     before = bh.source_data(page, "tuning_plan")
     # derived by hand: high-side tracking LO = f_RF + f_IF, on the LO grid
-    assert all(abs(y * MHZ - (x * MHZ + if_c)) <= lo_step / 2 + 1 for x, y in zip(before["x"], before["y"]))
+    assert all(abs(y * MHZ - (x * MHZ + if_c)) <= lo_step / 2 + 1 for x, y in zip(before["x"], before["y"], strict=True))
 
     side.locator("button", has_text="low side").click()
     after = _source_changed(page, "tuning_plan", before)
     assert after["x"] == before["x"]
     # low-side tracking LO = f_RF - f_IF, on the LO grid
-    assert all(abs(y * MHZ - (x * MHZ - if_c)) <= lo_step / 2 + 1 for x, y in zip(after["x"], after["y"]))
+    assert all(abs(y * MHZ - (x * MHZ - if_c)) <= lo_step / 2 + 1 for x, y in zip(after["x"], after["y"], strict=True))
     _wait_until(lambda: "low-side" in _status(page), "low-side in the status")
 
     side.locator("button", has_text="high side").click()

@@ -19,9 +19,8 @@ import math
 import time
 from types import SimpleNamespace
 
-import pytest
-
 import helpers as bh
+import pytest
 
 pytestmark = pytest.mark.browser
 
