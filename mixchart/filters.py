@@ -17,6 +17,7 @@ a measured filter is built.
 
 from __future__ import annotations
 
+import io
 import math
 import re
 import warnings
@@ -28,7 +29,8 @@ from numpy.typing import ArrayLike
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError, model_validator
 
 from .errors import FilterError, field_error
-from .units import FrequencyHz, format_frequency
+from .fileio import read_regular_file
+from .units import FrequencyHz, SpanHz, format_frequency
 from .validation import from_validation_error
 
 __all__ = ["PrototypeFilter", "TunedCircuit", "BrickWall", "MeasuredFilter", "Cascade", "FilterSpec",
@@ -38,6 +40,16 @@ Response = Literal["lowpass", "highpass", "bandpass", "bandstop"]
 _DB_PER_NEPER_SQ = 10.0 / math.log(10.0)  # 10*log10(x) == _DB_PER_NEPER_SQ * ln(x)
 _FINITE = {"allow_inf_nan": False}
 _CHUNK = 8192  # points per block in Filter.atten_db (cache-sized blocks run several times faster)
+# Physical ranges of the dB and Q fields (common practice, no source): passband ripple of a real
+# Chebyshev or elliptic design lies well inside 0.001-10 dB; no filter is specified beyond 300 dB
+# of stopband loss; a loaded Q below 0.5 is no longer a tuned circuit and one above 1e6 is a
+# crystal's unloaded Q at best.  Touchstone files name at most a few dozen ports.
+MIN_RIPPLE_DB, MAX_RIPPLE_DB = 0.001, 10.0
+MAX_STOP_ATTEN_DB = 300.0
+MIN_Q, MAX_Q = 0.5, 1e6
+MAX_PORT = 99
+#: Longest file path accepted in a spec, characters (PATH_MAX on Linux is 4096).
+MAX_PATH_CHARS = 4096
 
 
 class _Spec(BaseModel):
@@ -82,9 +94,9 @@ class PrototypeFilter(_Spec):
         Band-pass/band-stop centre and width between the same edges, in Hz.
         ``f_center_hz`` may be omitted when ``tracks_channel``.
     ripple_db : float, optional
-        Passband ripple in dB (> 0) of a Chebyshev or elliptic filter.
+        Passband ripple in dB (0.001 to 10) of a Chebyshev or elliptic filter.
     stop_atten_db : float, optional
-        Minimum stopband loss in dB (> ``ripple_db``) of an elliptic filter.
+        Minimum stopband loss in dB (> ``ripple_db``, <= 300) of an elliptic filter.
     transform : {"geometric", "arithmetic"}
         Band transform: ``Omega = |f/f0 - f0/f| f0/BW`` (standard, ``f0`` the
         geometric centre) or the narrow-band ``Omega = 2|f - f0|/BW``.
@@ -101,9 +113,9 @@ class PrototypeFilter(_Spec):
     order: int = Field(ge=1, le=20)
     f_edge_hz: FrequencyHz | None = None
     f_center_hz: FrequencyHz | None = None
-    bandwidth_hz: FrequencyHz | None = None
-    ripple_db: float | None = Field(default=None, gt=0, **_FINITE)
-    stop_atten_db: float | None = Field(default=None, gt=0, **_FINITE)
+    bandwidth_hz: SpanHz | None = None
+    ripple_db: float | None = Field(default=None, ge=MIN_RIPPLE_DB, le=MAX_RIPPLE_DB, **_FINITE)
+    stop_atten_db: float | None = Field(default=None, gt=0, le=MAX_STOP_ATTEN_DB, **_FINITE)
     transform: Literal["geometric", "arithmetic"] = "geometric"
     tracks_channel: bool = False
 
@@ -130,7 +142,7 @@ class TunedCircuit(_Spec):
     f_center_hz : float, optional
         Resonant frequency in Hz; may be omitted when ``tracks_channel``.
     q_loaded : float
-        Loaded Q (> 0); the half-power bandwidth of one stage is ``f0/Q``.
+        Loaded Q (0.5 to 1e6); the half-power bandwidth of one stage is ``f0/Q``.
     stages : int
         Number of identical cascaded circuits, 1 to 20 (their dB add).
     tracks_channel : bool
@@ -139,7 +151,7 @@ class TunedCircuit(_Spec):
 
     kind: Literal["tuned"]
     f_center_hz: FrequencyHz | None = None
-    q_loaded: float = Field(gt=0, **_FINITE)
+    q_loaded: float = Field(ge=MIN_Q, le=MAX_Q, **_FINITE)
     stages: int = Field(default=1, ge=1, le=20)
     tracks_channel: bool = False
 
@@ -161,8 +173,8 @@ class BrickWall(_Spec):
     response: Response
     f_edge_hz: FrequencyHz | None = None
     f_center_hz: FrequencyHz | None = None
-    bandwidth_hz: FrequencyHz | None = None
-    stop_atten_db: float = Field(default=200.0, gt=0, **_FINITE)
+    bandwidth_hz: SpanHz | None = None
+    stop_atten_db: float = Field(default=200.0, gt=0, le=MAX_STOP_ATTEN_DB, **_FINITE)
     tracks_channel: bool = False
 
     @model_validator(mode="after")
@@ -187,9 +199,9 @@ class MeasuredFilter(_Spec):
     """
 
     kind: Literal["touchstone"]
-    path: str = Field(min_length=1)
-    port_out: int = Field(default=2, ge=1)
-    port_in: int = Field(default=1, ge=1)
+    path: str = Field(min_length=1, max_length=MAX_PATH_CHARS)
+    port_out: int = Field(default=2, ge=1, le=MAX_PORT)
+    port_in: int = Field(default=1, ge=1, le=MAX_PORT)
     outside: Literal["hold", "error"] = "hold"
 
 
@@ -510,7 +522,11 @@ class _Measured(Filter):
         return [(lo, hi)]
 
 
-_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
+# Linear: each character can be taken by one part only (the old mantissa \d+\.?\d* was quadratic).
+_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+_VERSION2 = re.compile(r"^[ \t]*\[version\]", re.IGNORECASE | re.MULTILINE)  # [ \t], not \s: linear
+#: Largest Touchstone file read, bytes (a 2-port file of 100,000 points is about 10 MB).
+MAX_TOUCHSTONE_BYTES = 20_000_000
 
 
 def _raw_frequencies(text: str, nports: int) -> list[float] | str:
@@ -519,15 +535,15 @@ def _raw_frequencies(text: str, nports: int) -> list[float] | str:
     scikit-rf takes a decreasing frequency in a 2-port version 1 file as the
     start of noise data and silently drops what follows, so order is checked here.
     """
-    version2 = re.search(r"^\s*\[version\]", text, re.IGNORECASE | re.MULTILINE) is not None
+    version2 = _VERSION2.search(text) is not None
     in_data, lines = not version2, []
-    for raw in text.splitlines():
+    for lineno, raw in enumerate(text.splitlines(), start=1):
         line = raw.split("!", 1)[0].strip()
         if line.startswith("["):  # version 2 keyword: data only under [Network Data]
             in_data = version2 and line.lower().startswith("[network data]")
         elif line and not line.startswith("#") and in_data:
-            if not all(_NUMBER.match(word) for word in line.split()):
-                return f"line {raw.strip()!r} is not numeric data"
+            if not all(len(word) <= 64 and _NUMBER.fullmatch(word) for word in line.split()):
+                return f"line {lineno} is not numeric data"  # its text is not repeated: it may be any file
             lines.append(line.split())
     if nports == 2 and not version2 and all(len(w) in (9, 5) for w in lines):  # records, then noise data
         n_s = next((i for i, w in enumerate(lines) if len(w) == 5), len(lines))
@@ -543,19 +559,24 @@ def _raw_frequencies(text: str, nports: int) -> list[float] | str:
 def _read_touchstone(path: Path, port_out: int, port_in: int, field: str) -> tuple[np.ndarray, np.ndarray]:
     """Frequencies in Hz and loss ``-20 log10|S[port_out, port_in]|`` in dB from a Touchstone file."""
     where = str(path)
+    # A regular file only (never a FIFO or a device), at most MAX_TOUCHSTONE_BYTES; scikit-rf
+    # then parses these bytes from memory and never opens the path itself.
+    raw = read_regular_file(path, MAX_TOUCHSTONE_BYTES, error=FilterError, field=field)
     try:
-        text = path.read_text(encoding="utf-8", errors="replace")
-    except OSError as exc:
-        raise field_error(FilterError, field, where, f"cannot be read ({exc.strerror or exc})") from None
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        text = raw.decode("iso-8859-1")  # as scikit-rf falls back
     import skrf
 
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # every problem it warns about is checked below
-            net = skrf.Network(where)
-    except Exception as exc:
-        message = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise field_error(FilterError, field, where, f"not a readable Touchstone file ({message})") from None
+            source = io.StringIO(text)
+            source.name = path.name  # scikit-rf reads the port count from the extension (.s2p)
+            net = skrf.Network(source)
+    except Exception as exc:  # any reader failure is a bad file to the user
+        # the reader's own words can quote the file; name only what failed
+        raise field_error(FilterError, field, where, f"not a readable Touchstone file ({type(exc).__name__})") from None
     if net.nports < max(port_out, port_in):
         allowed = f"the file has {net.nports} port(s): no S{port_out}{port_in} (port_out={port_out}, port_in={port_in})"
         raise field_error(FilterError, field, where, allowed)

@@ -27,6 +27,7 @@ from numpy.typing import ArrayLike
 from pydantic import BaseModel, ConfigDict, Field, field_validator
 
 from .errors import LevelTableError, field_error
+from .fileio import read_regular_file
 
 __all__ = [
     "Topology", "TOPOLOGIES", "FLOOR_DBC", "MAX_HARMONIC", "RF_EXTRAPOLATION_LIMIT_DB",
@@ -62,24 +63,27 @@ class MixerSpec(BaseModel):
     Defaults are common practice, no source: a "+7 dBm LO" diode double-balanced mixer, its
     table stated at 0 dBm RF drive, 30 dB of real balance (20-40 dB is typical), 20 dB drop per
     extra RF harmonic order at the reference drive, 20 dB LO-to-output isolation before balance.
+    Field ranges are physical bounds, common practice, no source: drives -200 to +60 dBm (as the
+    plan's signal levels), balance and isolation 0 to 300 dB, RF harmonic step 0 to 100 dB per
+    order, conversion loss -100 to +100 dB; a table path at most 4096 characters (PATH_MAX).
     """
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
 
     topology: Topology = Field("double_balanced", description="Sets which products balance suppresses.")
-    table: Literal["builtin"] | str = Field("builtin", description="'builtin' (theory) or a path to a "
+    table: Literal["builtin"] | str = Field("builtin", max_length=4096, description="'builtin' (theory) or a path to a "
                                             "measured CSV table, relative to the plan file's folder.")
-    rf_ref_dbm: float = Field(0.0, allow_inf_nan=False, description="RF drive (signal input) at which "
+    rf_ref_dbm: float = Field(0.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="RF drive (signal input) at which "
                               "the built-in table is stated, dBm. A CSV table states its own.")
-    lo_drive_dbm: float = Field(7.0, allow_inf_nan=False, description="LO drive at the LO port, dBm: the "
+    lo_drive_dbm: float = Field(7.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="LO drive at the LO port, dBm: the "
                                 "built-in table's reference; compared with a CSV table's lo_ref_dbm.")
-    balance_db: float = Field(30.0, ge=0.0, allow_inf_nan=False, description="How far real balance "
+    balance_db: float = Field(30.0, ge=0.0, le=300.0, allow_inf_nan=False, description="How far real balance "
                               "suppresses products that ideal balance cancels, dB.")
-    conversion_loss_db: float | None = Field(None, allow_inf_nan=False, description="Conversion loss, dB "
+    conversion_loss_db: float | None = Field(None, ge=-100.0, le=100.0, allow_inf_nan=False, description="Conversion loss, dB "
                                              "(negative = gain); null: ideal switching value for the topology.")
-    rf_harmonic_step_db: float = Field(20.0, ge=0.0, allow_inf_nan=False, description="Built-in model: "
+    rf_harmonic_step_db: float = Field(20.0, ge=0.0, le=100.0, allow_inf_nan=False, description="Built-in model: "
                                        "drop per extra RF harmonic order at the reference drive, dB.")
-    unbalanced_lo_isolation_db: float = Field(20.0, ge=0.0, allow_inf_nan=False, description="Built-in "
+    unbalanced_lo_isolation_db: float = Field(20.0, ge=0.0, le=300.0, allow_inf_nan=False, description="Built-in "
                                               "model: LO-port-to-output isolation before balance, dB.")
 
     @field_validator("table")
@@ -384,9 +388,13 @@ def _cancelled(topology: str, m: np.ndarray, n: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------- CSV tables
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d{1,3})?")
+# Linear patterns (each character can be taken by one part only; the old mantissa \d+\.?\d* and
+# the setting's (.*?)\s* were quadratic on long near-misses).  Matched with fullmatch.
+_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d{1,3})?")
 _INDEX = re.compile(r"[+-]?\d{1,6}")
-_SETTING = re.compile(r"#\s*([A-Za-z_]\w*)\s*=\s*(.*?)\s*")
+_SETTING = re.compile(r"#[ \t]*([A-Za-z_]\w*)[ \t]*=(.*)")  # the value is stripped after the match
+#: Longest cell or setting value read, characters; longer ones are refused before any pattern.
+_MAX_CELL_CHARS = 200
 _SETTINGS = ("rf_ref_dbm", "lo_ref_dbm", "description")
 _CORNER = "m\\n"
 _MAX_CSV_BYTES = 1_000_000
@@ -433,13 +441,13 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
     """
     path = Path(path)
     name = path.name
-    try:  # the full path is the useful part, so it is not shortened as field_error would
-        if path.stat().st_size > _MAX_CSV_BYTES:
-            raise LevelTableError(f"table: {str(path)!r} is invalid; a CSV file under {_MAX_CSV_BYTES} bytes")
-        text = path.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = getattr(exc, "strerror", None) or type(exc).__name__
-        raise LevelTableError(f"table: {str(path)!r} is invalid ({reason}); a readable UTF-8 CSV file") from None
+    # a regular file only (never a FIFO or a device), at most _MAX_CSV_BYTES
+    raw = read_regular_file(path, _MAX_CSV_BYTES, error=LevelTableError, field="table")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise LevelTableError(f"table: {str(path)!r} is invalid (not UTF-8 at byte {exc.start}); "
+                              "a readable UTF-8 CSV file") from None
 
     settings: dict[str, str] = {}
     header: list[int] | None = None
@@ -458,10 +466,13 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
             found = _SETTING.fullmatch(line.strip())
             if found is None:
                 continue  # a free-text note
-            key, value = found.groups()
+            key, value = found.group(1), found.group(2).strip()
             if key not in _SETTINGS or key in settings:
                 raise field_error(LevelTableError, f"{where} setting", key,
                                   f"each of {', '.join(_SETTINGS)} once")
+            if len(value) > _MAX_CELL_CHARS:
+                raise field_error(LevelTableError, f"{where} setting {key}", value,
+                                  f"at most {_MAX_CELL_CHARS} characters")
             settings[key] = value
             continue
         try:
@@ -472,8 +483,10 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
             cells.pop()  # spreadsheets pad rows with empty trailing cells
         if header is None:
             if cells[0].lower() != _CORNER or len(cells) < 2:
-                raise field_error(LevelTableError, f"{where} header", line.strip(),
-                                  f"{_CORNER} then the LO harmonics n, e.g. {_CORNER},0,1,2")
+                # Nothing of the line is repeated: until its header is found the file may be any
+                # file at all (e.g. a system file named by a hostile plan), not a table.
+                raise LevelTableError(f"{where} header: this line is invalid; a header row {_CORNER} then "
+                                      f"the LO harmonics n, e.g. {_CORNER},0,1,2 (is this a level table?)")
             header = []
             for col, cell in enumerate(cells[1:], start=2):
                 header.append(_parse_index(cell, f"{where} header cell {col} (LO harmonic n)", header))
@@ -583,7 +596,7 @@ def _parse_index(cell: str, where: str, seen: Collection[int]) -> int:
 
 
 def _parse_number(cell: str, where: str, allowed: str) -> float:
-    if not _NUMBER.fullmatch(cell) or not math.isfinite(float(cell)):
+    if len(cell) > _MAX_CELL_CHARS or not _NUMBER.fullmatch(cell) or not math.isfinite(float(cell)):
         raise field_error(LevelTableError, where, cell, allowed)
     return float(cell)
 

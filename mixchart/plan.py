@@ -26,10 +26,10 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError, model_validator
 
 from .errors import PlanError, SweepTooLargeError, one_line
-from .fileio import atomic_write_text
+from .fileio import atomic_write_text, read_regular_file
 from .filters import FilterSpec, iter_filter_stages
 from .levels import MixerSpec
-from .units import FrequencyHz, format_frequency
+from .units import FrequencyHz, SpanHz, format_frequency
 from .validation import from_validation_error
 
 __all__ = [
@@ -75,7 +75,7 @@ class RfBand(_Strict):
 
     start_hz: FrequencyHz = Field(description="First channel centre, Hz.")
     stop_hz: FrequencyHz = Field(description="Last channel centre, Hz (>= start_hz).")
-    step_hz: FrequencyHz | None = Field(
+    step_hz: SpanHz | None = Field(
         default=None, description="Channel raster, Hz. Required when stop_hz > start_hz."
     )
 
@@ -107,7 +107,7 @@ class RfBand(_Strict):
 class Signal(_Strict):
     """The wanted signal."""
 
-    bandwidth_hz: FrequencyHz = Field(description="Occupied bandwidth of the wanted signal, Hz.")
+    bandwidth_hz: SpanHz = Field(description="Occupied bandwidth of the wanted signal, Hz.")
     level_dbm: float = Field(
         default=-30.0,
         ge=-200.0,
@@ -139,7 +139,7 @@ class LoSetting(_Strict):
         default="high", description="Tracking injection side: LO above ('high') or below ('low') the RF."
     )
     fixed_hz: FrequencyHz | None = Field(default=None, description="LO frequency when mode is 'fixed', Hz.")
-    step_hz: FrequencyHz | None = Field(
+    step_hz: SpanHz | None = Field(
         default=None, description="LO synthesiser step, Hz: the LO can only sit on multiples of it."
     )
 
@@ -156,7 +156,7 @@ class IfBand(_Strict):
     """The IF passband: where the wanted output lands (down) or the input comes from (up)."""
 
     center_hz: FrequencyHz = Field(description="IF centre, Hz.")
-    bandwidth_hz: FrequencyHz = Field(description="IF passband width, Hz.")
+    bandwidth_hz: SpanHz = Field(description="IF passband width, Hz.")
 
     @model_validator(mode="after")
     def _check(self) -> IfBand:
@@ -488,10 +488,10 @@ def load_plan(path: str | os.PathLike[str]) -> Plan:
         size = path.stat().st_size
         if size > MAX_PLAN_BYTES:
             raise PlanError(f"plan file: {str(path)!r} is {size} bytes; at most {MAX_PLAN_BYTES}")
-        raw = path.read_bytes()
     except OSError as exc:
         raise PlanError(f"plan file: {str(path)!r} cannot be read ({exc.strerror or exc})") from None
-    return loads_plan(raw)
+    # a regular file only (never a FIFO or a device), read with the same cap
+    return loads_plan(read_regular_file(path, MAX_PLAN_BYTES, error=PlanError, field="plan file"))
 
 
 def dumps_plan(plan: Plan) -> str:

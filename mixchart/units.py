@@ -47,10 +47,30 @@ def _millihertz_error(field: str, value: object) -> UnitError:
     return field_error(UnitError, field, value, "'mHz' is millihertz in SI; write 'MHz' for megahertz")
 
 
-_TEXT = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z]*)\s*$")
+#: Longest frequency text read, characters; longer text is refused before any pattern runs.
+MAX_FREQUENCY_TEXT = 64
+#: Physical range of a frequency (a centre, an edge, a band limit, a fixed LO), Hz.
+#: Common practice, no source: nothing below 1 Hz or above 1 THz is planned with a mixer chart.
+MIN_FREQUENCY_HZ = 1.0
+MAX_FREQUENCY_HZ = 1e12
+#: Smallest bandwidth or step (raster, synthesiser grid), Hz.  Common practice, no source: a
+#: 1 mHz grid is finer than any synthesiser step or signal bandwidth in use.
+MIN_SPAN_HZ = 1e-3
+
+# The mantissa is ``digits [. digits]`` or ``. digits``: each digit can be taken by one part
+# only, so a failed match costs linear time (the old ``\d+\.?\d*`` split a digit run every
+# way and was quadratic: "1" * 16000 + "!" took 14 s).
+_TEXT = re.compile(r"\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)(?:\s*([A-Za-z]+))?\s*")
 
 
-def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool = False) -> float:
+def parse_frequency(
+    value: object,
+    field: str = "frequency",
+    *,
+    allow_zero: bool = False,
+    minimum_hz: float | None = None,
+    maximum_hz: float | None = None,
+) -> float:
     """Parse a frequency given as a number of hertz or as text with a unit.
 
     Parameters
@@ -67,6 +87,9 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
         Name of the field being parsed, repeated in any error message.
     allow_zero : bool
         Accept 0 Hz (e.g. for a lower filter edge); negative is never accepted.
+    minimum_hz, maximum_hz : float, optional
+        Physical range of the field, Hz (0 Hz stays allowed with ``allow_zero``).
+        Text longer than :data:`MAX_FREQUENCY_TEXT` characters is always refused.
 
     Returns
     -------
@@ -78,7 +101,8 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
     ------
     UnitError
         If the value is not a number or a recognised ``number unit`` text, is
-        not finite, is negative, or is zero when zero is not allowed, or if
+        longer than :data:`MAX_FREQUENCY_TEXT` characters, is not finite, is
+        negative, is outside ``minimum_hz`` to ``maximum_hz``, or is zero when zero is not allowed, or if
         the unit is exactly ``"mHz"`` (millihertz).
 
     Examples
@@ -96,10 +120,12 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
         except OverflowError:  # an int beyond float range, e.g. a 400-digit JSON number
             raise field_error(UnitError, field, value, "must be a finite frequency") from None
     elif isinstance(value, str):
-        match = _TEXT.match(value)
+        if len(value) > MAX_FREQUENCY_TEXT:
+            raise field_error(UnitError, field, value, f"frequency text must be at most {MAX_FREQUENCY_TEXT} characters")
+        match = _TEXT.fullmatch(value)
         if not match:
             raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")
-        number, unit = match.groups()
+        number, unit = match.groups(default="")
         if unit == _MILLIHERTZ:
             raise _millihertz_error(field, value)
         unit_key = unit.lower() if unit else "hz"
@@ -120,6 +146,10 @@ def parse_frequency(value: object, field: str = "frequency", *, allow_zero: bool
     if hz < 0 or (hz == 0 and not allow_zero):
         limit = "must be >= 0 Hz" if allow_zero else "must be > 0 Hz"
         raise field_error(UnitError, field, value, limit)
+    if hz != 0 and minimum_hz is not None and hz < minimum_hz:
+        raise field_error(UnitError, field, value, f"must be >= {format_frequency(minimum_hz)}")
+    if maximum_hz is not None and hz > maximum_hz:
+        raise field_error(UnitError, field, value, f"must be <= {format_frequency(maximum_hz)}")
     return hz
 
 
@@ -190,13 +220,13 @@ def format_frequency(f_hz: float, digits: int = 6, unit: str | None = None) -> s
 
 #: JSON Schema pattern for frequency text: the units :func:`parse_frequency` accepts (any case,
 #: but not exactly "mHz", millihertz).
-FREQUENCY_TEXT_PATTERN = r"^\s*[+]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?\s*([kKMgGtT]?[hH][zZ]|m(h[zZ]|HZ))?\s*$"
+FREQUENCY_TEXT_PATTERN = r"^\s*[+]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?\s*([kKMgGtT]?[hH][zZ]|m(h[zZ]|HZ))?\s*$"
 
 
-def _validator(allow_zero: bool):
+def _validator(minimum_hz: float):
     def validate(value: object) -> float:
         try:
-            return parse_frequency(value, "value", allow_zero=allow_zero)
+            return parse_frequency(value, "value", minimum_hz=minimum_hz, maximum_hz=MAX_FREQUENCY_HZ)
         except UnitError as exc:
             # pydantic adds the field path and the input; keep only what is allowed.
             raise ValueError(str(exc).split("; ", 1)[-1]) from None
@@ -204,17 +234,21 @@ def _validator(allow_zero: bool):
     return validate
 
 
-def _schema(allow_zero: bool) -> dict:
-    bound = {"minimum": 0} if allow_zero else {"exclusiveMinimum": 0}
+def _schema(minimum_hz: float) -> dict:
     return {
         "anyOf": [
-            {"type": "number", **bound},
-            {"type": "string", "pattern": FREQUENCY_TEXT_PATTERN},
+            {"type": "number", "minimum": minimum_hz, "maximum": MAX_FREQUENCY_HZ},
+            {"type": "string", "pattern": FREQUENCY_TEXT_PATTERN, "maxLength": MAX_FREQUENCY_TEXT},
         ],
-        "description": "Frequency in Hz, or text with a unit such as '10.7 MHz'.",
+        "description": (
+            f"Frequency in Hz ({format_frequency(minimum_hz)} to {format_frequency(MAX_FREQUENCY_HZ)}), "
+            "or text with a unit such as '10.7 MHz'."
+        ),
     }
 
 
-#: A pydantic field type: a strictly positive frequency in Hz, accepting text.
-FrequencyHz = Annotated[float, BeforeValidator(_validator(False)), WithJsonSchema(_schema(False))]
-#: As :data:`FrequencyHz` but 0 Hz is allowed.
+#: A pydantic field type: a frequency in Hz from :data:`MIN_FREQUENCY_HZ` to
+#: :data:`MAX_FREQUENCY_HZ`, accepting text.
+FrequencyHz = Annotated[float, BeforeValidator(_validator(MIN_FREQUENCY_HZ)), WithJsonSchema(_schema(MIN_FREQUENCY_HZ))]
+#: A bandwidth or a step in Hz, from :data:`MIN_SPAN_HZ` to :data:`MAX_FREQUENCY_HZ`, accepting text.
+SpanHz = Annotated[float, BeforeValidator(_validator(MIN_SPAN_HZ)), WithJsonSchema(_schema(MIN_SPAN_HZ))]

@@ -382,7 +382,8 @@ def _csv(body: str) -> str:
     ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,1,1\n1,-2,0,-3\n", ["header cell 4 (LO harmonic n)", "'1'"]),
     ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,one\n", ["header cell 3", "'one'"]),
     ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm\\n,0,-2\n", ["header cell 3", "'-2'"]),
-    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm,0,1\n1,-3,0\n", ["line 3 header", "'m,0,1'"]),
+    # the line itself is not repeated: a file that is not a table may be anything (issue 7)
+    ("# rf_ref_dbm = -10\n# lo_ref_dbm = 7\nm,0,1\n1,-3,0\n", ["line 3 header", "is this a level table?"]),
     ("# lo_ref_dbm = 7\nm\\n,0,1\n1,-3,0\n", ["setting rf_ref_dbm", "None"]),
     ("# rf_ref_dbm = -10\nm\\n,0,1\n1,-3,0\n", ["setting lo_ref_dbm"]),
     ("# rf_ref_dbm = minus ten\n# lo_ref_dbm = 7\nm\\n,0,1\n1,-3,0\n", ["setting rf_ref_dbm", "'minus ten'"]),

@@ -303,7 +303,7 @@ BAD_FIELDS = [
     ("rf.colour", "red", "rf.colour: unknown key (value 'red'); remove it or check its spelling"),
     ("if_", {"center_hz": 1e6}, "if_: unknown key (value {...}); remove it or check its spelling"),
     ("filters.rf", {"kind": "tuned", "q_loaded": -1, "tracks_channel": True},
-     "filters.rf.q_loaded: -1 is invalid; must be > 0"),
+     "filters.rf.q_loaded: -1 is invalid; must be >= 0.5"),
     ("filters.if", {"kind": "chebyshev1", "response": "bandpass", "order": 3, "f_center_hz": "10.7 MHz",
                     "bandwidth_hz": "200 kHz"},
      "filters.if.ripple_db: None is invalid; a chebyshev1 filter needs ripple_db > 0 dB"),
@@ -398,7 +398,8 @@ def test_low_side_lo_below_zero_is_refused():
     [
         ({"start_hz": "1 Hz", "stop_hz": "1 GHz", "step_hz": "1 Hz"}, "rf: 1000000000 channels (1 Hz to 1 GHz in 1 Hz steps) is too many"),
         ({"start_hz": "1 Hz", "stop_hz": "1 THz", "step_hz": "1 Hz"}, "channels (1 Hz to 1 THz in 1 Hz steps) is too many"),
-        ({"start_hz": 1e6, "stop_hz": 2e6, "step_hz": 1e-310}, "rf.step_hz: 1e-310 is invalid; it gives more than"),
+        # the smallest step allowed over the widest range: 1e15 channels (a 1e-310 step is out of range)
+        ({"start_hz": "1 Hz", "stop_hz": "1 THz", "step_hz": 1e-3}, "channels (1 Hz to 1 THz in 0.001 Hz steps) is too many"),
     ],
 )
 def test_huge_sweep_is_refused_before_any_allocation(rf, needle):

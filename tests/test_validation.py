@@ -32,7 +32,7 @@ def _fm() -> dict:
         ({"response": "lowpass"}, "filters.rf.kind: missing"),
         (7, "filters.rf: 7 is invalid; must be a JSON object"),
         ({"kind": "cascade", "stages": [{"kind": "tuned", "f_center_hz": 1e6, "q_loaded": -1}]},
-         "filters.rf.stages.0.q_loaded: -1 is invalid; must be > 0"),
+         "filters.rf.stages.0.q_loaded: -1 is invalid; must be >= 0.5"),
     ],
 )
 def test_filter_builders_raise_the_family(spec, expected):
