@@ -22,17 +22,15 @@ import email.parser
 import os
 import re
 import shutil
-import signal
 import site
-import socket
 import subprocess
 import sys
-import time
-import urllib.request
 import zipfile
 from pathlib import Path
 
 import pytest
+
+from serving import free_port, serve_fetch_and_stop  # tests/serving.py
 
 pytestmark = pytest.mark.slow
 
@@ -146,51 +144,12 @@ def test_installed_snapshot_writes_a_report(built):
     assert page.lstrip().lower().startswith("<!doctype html") and "Broadcast FM tuner" in page
 
 
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return int(sock.getsockname()[1])
-
-
-def _port_open(port: int) -> bool:
-    with socket.socket() as sock:
-        sock.settimeout(0.3)
-        return sock.connect_ex(("127.0.0.1", port)) == 0
-
-
 def test_installed_serve_answers_on_localhost_and_stops(built):
     pytest.importorskip("voila")
     _, _, venv, work = built
-    port = _free_port()
-    proc = subprocess.Popen(
-        [str(venv / "bin" / "mixchart"), "serve", "--port", str(port)], cwd=work, env=_clean_env(venv),
-        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, start_new_session=True,
+    port = free_port()
+    _, page, status = serve_fetch_and_stop(
+        [str(venv / "bin" / "mixchart"), "serve", "--port", str(port)], port, cwd=work, env=_clean_env(venv)
     )
-    try:
-        lines = []
-        deadline = time.monotonic() + 90
-        while time.monotonic() < deadline:
-            line = proc.stdout.readline()
-            if not line:
-                break
-            lines.append(line)
-            if "mixchart planner: http://127.0.0.1:" in line:
-                break
-        assert f"http://127.0.0.1:{port}/" in "".join(lines), "".join(lines)
-        with urllib.request.urlopen(f"http://127.0.0.1:{port}/", timeout=60) as response:
-            page = response.read().decode("utf-8", "replace")
-        assert response.status == 200 and "voila" in page.lower()
-    finally:
-        proc.send_signal(signal.SIGTERM)
-        try:
-            proc.wait(timeout=30)
-        finally:
-            if proc.poll() is None:
-                os.killpg(proc.pid, signal.SIGKILL)
-                proc.wait(timeout=10)
-            proc.stdout.close()
-    assert proc.returncode == 0
-    deadline = time.monotonic() + 15
-    while _port_open(port) and time.monotonic() < deadline:
-        time.sleep(0.2)
-    assert not _port_open(port), "Voila must stop with mixchart serve"
+    assert "voila" in page.lower()
+    assert status == 0
