@@ -56,8 +56,12 @@ SCHEMA_VERSION = 1
 #: Highest analysable order m + n.  Spur charts in practice stop at 15 to 21;
 #: beyond ~25 the level model means nothing (common practice, no source).
 MAX_ORDER = 25
-#: Most channels in one sweep.  Larger sweeps are refused before any allocation.
-MAX_CHANNELS = 2_000_000
+#: Most channels in one sweep.  Larger sweeps are refused before any allocation.  The limit
+#: keeps every accepted request under 500 MB of extra memory: the result keeps one worst row
+#: per channel (about 500 bytes each at the peak), so the worst accepted sweep (this many
+#: channels at MAX_ORDER, every row failing) peaks near 300 MB; benchmarks/bench_engine.py
+#: measures it.  500,000 channels is a 1 GHz band on a 2 kHz raster.
+MAX_CHANNELS = 500_000
 #: Largest plan file read, in bytes.
 MAX_PLAN_BYTES = 5_000_000
 
@@ -187,7 +191,8 @@ class Filters(_Strict):
     )
     if_: FilterSpec | None = Field(default=None, alias="if", description="IF filter.")
     lo: FilterSpec | None = Field(
-        default=None, description="LO filter: not applied to levels; a warning says when the LO sits on its skirt (lost LO drive)."
+        default=None,
+        description="LO filter: not applied to levels; a warning says when the LO sits on its skirt (lost LO drive).",
     )
 
 
