@@ -633,8 +633,8 @@ def build_filter(spec, *, base_dir: Path | None = None, field_prefix: str = "") 
     Raises
     ------
     FilterError
-        If a dict spec is invalid (see :func:`parse_filter_spec`), or a Touchstone file is missing, unreadable, empty, lacks the requested
-        S-parameter or has non-increasing frequencies.
+        If a dict spec is invalid (see :func:`parse_filter_spec`), or a Touchstone file is missing,
+        unreadable, empty, lacks the requested S-parameter or has non-increasing frequencies.
 
     Examples
     --------

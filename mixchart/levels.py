@@ -73,14 +73,15 @@ class MixerSpec(BaseModel):
     topology: Topology = Field("double_balanced", description="Sets which products balance suppresses.")
     table: Literal["builtin"] | str = Field("builtin", max_length=4096, description="'builtin' (theory) or a path to a "
                                             "measured CSV table, relative to the plan file's folder.")
-    rf_ref_dbm: float = Field(0.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="RF drive (signal input) at which "
-                              "the built-in table is stated, dBm. A CSV table states its own.")
-    lo_drive_dbm: float = Field(7.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="LO drive at the LO port, dBm: the "
-                                "built-in table's reference; compared with a CSV table's lo_ref_dbm.")
+    rf_ref_dbm: float = Field(0.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="RF drive (signal input) "
+                              "at which the built-in table is stated, dBm. A CSV table states its own.")
+    lo_drive_dbm: float = Field(7.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="LO drive at the LO port, "
+                                "dBm: the built-in table's reference; compared with a CSV table's lo_ref_dbm.")
     balance_db: float = Field(30.0, ge=0.0, le=300.0, allow_inf_nan=False, description="How far real balance "
                               "suppresses products that ideal balance cancels, dB.")
-    conversion_loss_db: float | None = Field(None, ge=-100.0, le=100.0, allow_inf_nan=False, description="Conversion loss, dB "
-                                             "(negative = gain); null: ideal switching value for the topology.")
+    conversion_loss_db: float | None = Field(None, ge=-100.0, le=100.0, allow_inf_nan=False, description="Conversion "
+                                             "loss, dB (negative = gain); null: ideal switching value for the "
+                                             "topology.")
     rf_harmonic_step_db: float = Field(20.0, ge=0.0, le=100.0, allow_inf_nan=False, description="Built-in model: "
                                        "drop per extra RF harmonic order at the reference drive, dB.")
     unbalanced_lo_isolation_db: float = Field(20.0, ge=0.0, le=300.0, allow_inf_nan=False, description="Built-in "

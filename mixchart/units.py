@@ -121,7 +121,8 @@ def parse_frequency(
             raise field_error(UnitError, field, value, "must be a finite frequency") from None
     elif isinstance(value, str):
         if len(value) > MAX_FREQUENCY_TEXT:
-            raise field_error(UnitError, field, value, f"frequency text must be at most {MAX_FREQUENCY_TEXT} characters")
+            allowed = f"frequency text must be at most {MAX_FREQUENCY_TEXT} characters"
+            raise field_error(UnitError, field, value, allowed)
         match = _TEXT.fullmatch(value)
         if not match:
             raise field_error(UnitError, field, value, "give a frequency in Hz or text like '10.7 MHz'")

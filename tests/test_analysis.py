@@ -148,7 +148,8 @@ def test_drive_scaling_is_m_minus_one_db_per_db(direction):
     data = receiver(max_order=5, filters={"if": {"kind": "brickwall", "response": "bandpass", "f_center_hz": "10.7 MHz",
                                                  "bandwidth_hz": "300 kHz", "stop_atten_db": 60}})
     if direction == "up":
-        data = receiver(direction="up", max_order=5, rf={"start_hz": "200 MHz", "stop_hz": "210 MHz", "step_hz": "1 MHz"},
+        data = receiver(direction="up", max_order=5,
+                        rf={"start_hz": "200 MHz", "stop_hz": "210 MHz", "step_hz": "1 MHz"},
                         filters={"rf": {"kind": "brickwall", "response": "bandpass", "f_center_hz": "205 MHz",
                                         "bandwidth_hz": "20 MHz", "stop_atten_db": 60}})
     low = evaluate(plan_from_dict(data)).channel_frame(0)
@@ -156,7 +157,8 @@ def test_drive_scaling_is_m_minus_one_db_per_db(direction):
     high = evaluate(plan_from_dict(data)).channel_frame(0)
     key = ["kind", "rf_harmonic", "lo_harmonic", "sign"]
     joined = low.merge(high, on=key, suffixes=("_lo", "_hi"))
-    finite = np.isfinite(joined["level_dbc_lo"]) & (joined["level_dbc_lo"] > FLOOR_DBC) & (joined["level_dbc_hi"] > FLOOR_DBC)
+    finite = (np.isfinite(joined["level_dbc_lo"]) & (joined["level_dbc_lo"] > FLOOR_DBC)
+              & (joined["level_dbc_hi"] > FLOOR_DBC))
     assert finite.sum() >= 10
     step = (joined["level_dbc_hi"] - joined["level_dbc_lo"])[finite]
     np.testing.assert_allclose(step, 10.0 * (joined["rf_harmonic"][finite] - 1), atol=1e-9)
@@ -242,7 +244,9 @@ def test_spur_free_fraction_by_hand():
     assert summary.n_channels == 11 and summary.n_failing_channels == 5 and summary.n_failing_rows == 5
     assert summary.worst_margin_db == pytest.approx(-9.0)
     assert summary.worst_label == "image (1,1)" and summary.worst_channel_hz == 100 * MHz
-    assert summary.line().startswith("FAIL: worst margin -9.0 dB (image (1,1) at 100 MHz); spur-free 54.5% of 11 channels")
+    assert summary.line().startswith(
+        "FAIL: worst margin -9.0 dB (image (1,1) at 100 MHz); spur-free 54.5% of 11 channels"
+    )
     assert (evaluation.hits["label"] == "image").all() and len(evaluation.hits) == 5
     np.testing.assert_allclose(evaluation.hits["channel_hz"].sort_values(), [100e6, 101e6, 102e6, 103e6, 104e6])
     # On the passing channels the worst is IF feedthrough (1,0): built-in table rule 1 gives
@@ -301,7 +305,8 @@ def test_sum_conversion_receiver_labels_the_channel_as_wanted():
     assert wanted["f_center_hz"].tolist() == pytest.approx([7 * MHz])
     assert image["f_center_hz"].tolist() == pytest.approx([13 * MHz])
     wanted_product = frame[(frame["label"] == "wanted") & (frame["kind"] == "product")]
-    assert wanted_product["f_center_hz"].tolist() == pytest.approx([10 * MHz]) and wanted_product["sign"].tolist() == [1]
+    assert wanted_product["f_center_hz"].tolist() == pytest.approx([10 * MHz])
+    assert wanted_product["sign"].tolist() == [1]
     assert "image" in evaluation.summary.worst_label, "with no preselector the 13 MHz image is the worst (0 dBc)"
 
 
@@ -538,11 +543,13 @@ def test_evaluate_levels_and_margins_match_the_plain_python_reference(name):
         assert_same_db(float(evaluation.worst_margin_db[i]), channel["worst_margin_db"], f"channel {i} worst margin")
         kind, label, m, n, sign = channel["worst"][:5]
         row = worst_rows.iloc[i]
-        assert (row["kind"], row["label"], row["rf_harmonic"], row["lo_harmonic"], row["sign"]) == (kind, label, m, n, sign), i
+        got_row = (row["kind"], row["label"], row["rf_harmonic"], row["lo_harmonic"], row["sign"])
+        assert got_row == (kind, label, m, n, sign), i
     # worst case of each product/response across the sweep
     frame = evaluation.to_frame()
     got = {_row_key(*k): (margin, label) for *k, margin, label in
-           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"], frame["label"], strict=True)}
+           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"],
+               frame["label"], strict=True)}
     want = expected["worst_by_product"]
     assert got.keys() == want.keys()
     for key, (margin, _channel, label) in want.items():
@@ -550,7 +557,8 @@ def test_evaluate_levels_and_margins_match_the_plain_python_reference(name):
         assert got[key][1] == label, key
     # every row (levels, margins, labels) of the first, a middle and the last channel
     for i in sorted({0, len(channels) // 2, len(channels) - 1}):
-        rows_got = {_row_key(r.kind, r.rf_harmonic, r.lo_harmonic, r.sign): r for r in evaluation.channel_frame(i).itertuples()}
+        rows_got = {_row_key(r.kind, r.rf_harmonic, r.lo_harmonic, r.sign): r
+                    for r in evaluation.channel_frame(i).itertuples()}
         assert len(rows_got) == len(channels[i]["rows"])
         for kind, label, m, n, sign, centre, low, high, level, margin in channels[i]["rows"]:
             r = rows_got[(kind, m, n, sign)]
@@ -576,7 +584,8 @@ def test_example_plans_match_the_plain_python_reference(name):
         assert labels.iloc[i] == channel["worst"][1], i
     frame = evaluation.to_frame()
     got = {_row_key(*k): margin for *k, margin in
-           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"], strict=True)}
+           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"],
+               strict=True)}
     assert got.keys() == expected["worst_by_product"].keys()
     for key, (margin, _channel, _label) in expected["worst_by_product"].items():
         assert_same_db(got[key], margin, str(key))
@@ -593,7 +602,8 @@ def test_evaluate_worst_margins_match_the_reference_on_random_plans(seed):
         assert labels.iloc[i] == channel["worst"][1]
     frame = evaluation.to_frame()
     got = {_row_key(*k): margin for *k, margin in
-           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"], strict=True)}
+           zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"], frame["margin_db"],
+               strict=True)}
     assert got.keys() == expected["worst_by_product"].keys()
     for key, (margin, _channel, _label) in expected["worst_by_product"].items():
         assert_same_db(got[key], margin, str(key))
@@ -716,7 +726,8 @@ def test_scaling_by_any_factor_scales_products(data, k):
     fb = fb.set_index(["kind", "rf_harmonic", "lo_harmonic", "sign"]).loc[
         fa.set_index(["kind", "rf_harmonic", "lo_harmonic", "sign"]).index].reset_index()
     scale = max(data["rf"]["stop_hz"], data["if"]["center_hz"]) * k
-    np.testing.assert_allclose(fa[FREQ_COLUMNS].to_numpy() * k, fb[FREQ_COLUMNS].to_numpy(), rtol=1e-9, atol=1e-9 * scale)
+    np.testing.assert_allclose(fa[FREQ_COLUMNS].to_numpy() * k, fb[FREQ_COLUMNS].to_numpy(),
+                               rtol=1e-9, atol=1e-9 * scale)
 
 
 @SETTINGS

@@ -83,7 +83,9 @@ def test_a_4_mb_frequency_field_in_a_plan_is_refused():
     assert one_line_error(info).startswith("rf.start_hz: '111")
 
 
-@pytest.mark.parametrize(("text", "hz"), [("1.", 1.0), ("1.5e3 kHz", 1.5e6), (".5 GHz", 5e8), ("7 hz", 7.0), ("+3", 3.0)])
+@pytest.mark.parametrize(
+    ("text", "hz"), [("1.", 1.0), ("1.5e3 kHz", 1.5e6), (".5 GHz", 5e8), ("7 hz", 7.0), ("+3", 3.0)]
+)
 def test_the_linear_pattern_reads_what_the_old_one_read(text, hz):
     assert parse_frequency(text) == hz  # derived by hand from the SI prefixes
 

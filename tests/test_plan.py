@@ -289,8 +289,10 @@ BAD_FIELDS = [
     ("rf.start_hz", 0, "rf.start_hz: 0 is invalid; must be > 0 Hz"),
     ("rf.step_hz", -100_000.0, "rf.step_hz: -100000.0 is invalid; must be > 0 Hz"),
     ("rf.stop_hz", "-5 MHz", "rf.stop_hz: '-5 MHz' is invalid; must be > 0 Hz"),
-    ("signal.bandwidth_hz", "NaN", "signal.bandwidth_hz: 'NaN' is invalid; give a frequency in Hz or text like '10.7 MHz'"),
-    ("signal.bandwidth_hz", "inf Hz", "signal.bandwidth_hz: 'inf Hz' is invalid; give a frequency in Hz or text like '10.7 MHz'"),
+    ("signal.bandwidth_hz", "NaN",
+     "signal.bandwidth_hz: 'NaN' is invalid; give a frequency in Hz or text like '10.7 MHz'"),
+    ("signal.bandwidth_hz", "inf Hz",
+     "signal.bandwidth_hz: 'inf Hz' is invalid; give a frequency in Hz or text like '10.7 MHz'"),
     ("if.center_hz", 10**400, None),  # checked below: a 400-digit integer (regression: was OverflowError)
     ("rf.stop_hz", "80 MHz", "rf.stop_hz: 80 MHz is below start_hz 88 MHz"),
     ("max_order", MAX_ORDER + 1, f"max_order: {MAX_ORDER + 1} is invalid; must be <= {MAX_ORDER}"),
@@ -338,12 +340,16 @@ def test_bad_field_is_one_line_naming_field_and_value(path, value, expected):
         ('{"name": "a", "name": "b"}', "name: duplicate key; each key may appear once", "duplicate keys"),
         ('{"rf": {"start_hz": NaN}}', "plan: NaN is invalid; JSON numbers must be finite", "NaN token"),
         ('{"rf": {"start_hz": Infinity}}', "plan: Infinity is invalid; JSON numbers must be finite", "Infinity token"),
-        ('{"rf": {"start_hz": -Infinity}}', "plan: -Infinity is invalid; JSON numbers must be finite", "-Infinity token"),
+        ('{"rf": {"start_hz": -Infinity}}', "plan: -Infinity is invalid; JSON numbers must be finite",
+         "-Infinity token"),
         # hand-counted: the "}" after the trailing comma is character 25 of the line
-        ('{"rf": {"start_hz": 1e6,}}', "plan file: malformed JSON at line 1 column 25: Expecting property name enclosed in double quotes", "trailing comma"),
+        ('{"rf": {"start_hz": 1e6,}}',
+         "plan file: malformed JSON at line 1 column 25: Expecting property name enclosed in double quotes",
+         "trailing comma"),
         ("", "plan file: malformed JSON at line 1 column 1: Expecting value", "empty file"),
         ("[1, 2]", "plan: list is invalid; the top level must be a JSON object", "not an object"),
-        ('{"rf": ' + "1" * 5000 + "}", "plan file: unreadable JSON number (Exceeds the limit (4300 digits) for integer string conversion)",
+        ('{"rf": ' + "1" * 5000 + "}",
+         "plan file: unreadable JSON number (Exceeds the limit (4300 digits) for integer string conversion)",
          "integer beyond Python's digit limit (regression: was a bare ValueError)"),
         ("[" * 100_000 + "]" * 100_000, "plan file: JSON nested too deeply", "nesting bomb"),
     ],
@@ -396,10 +402,13 @@ def test_low_side_lo_below_zero_is_refused():
 @pytest.mark.parametrize(
     ("rf", "needle"),
     [
-        ({"start_hz": "1 Hz", "stop_hz": "1 GHz", "step_hz": "1 Hz"}, "rf: 1000000000 channels (1 Hz to 1 GHz in 1 Hz steps) is too many"),
-        ({"start_hz": "1 Hz", "stop_hz": "1 THz", "step_hz": "1 Hz"}, "channels (1 Hz to 1 THz in 1 Hz steps) is too many"),
+        ({"start_hz": "1 Hz", "stop_hz": "1 GHz", "step_hz": "1 Hz"},
+         "rf: 1000000000 channels (1 Hz to 1 GHz in 1 Hz steps) is too many"),
+        ({"start_hz": "1 Hz", "stop_hz": "1 THz", "step_hz": "1 Hz"},
+         "channels (1 Hz to 1 THz in 1 Hz steps) is too many"),
         # the smallest step allowed over the widest range: 1e15 channels (a 1e-310 step is out of range)
-        ({"start_hz": "1 Hz", "stop_hz": "1 THz", "step_hz": 1e-3}, "channels (1 Hz to 1 THz in 0.001 Hz steps) is too many"),
+        ({"start_hz": "1 Hz", "stop_hz": "1 THz", "step_hz": 1e-3},
+         "channels (1 Hz to 1 THz in 0.001 Hz steps) is too many"),
     ],
 )
 def test_huge_sweep_is_refused_before_any_allocation(rf, needle):
@@ -436,7 +445,9 @@ def test_if_inside_rf_band_is_legal_but_flagged():
     plan = plan_from_dict(plan_dict(rf={"start_hz": "5 MHz", "stop_hz": "15 MHz", "step_hz": "1 MHz"}, max_order=3))
     warnings = evaluate(plan).warnings
     flagged = [w for w in warnings if "overlaps the RF band" in w]
-    assert flagged == ["IF passband 10.585 MHz-10.815 MHz overlaps the RF band 4.9 MHz-15.1 MHz: signals there feed straight through"]
+    assert flagged == [
+        "IF passband 10.585 MHz-10.815 MHz overlaps the RF band 4.9 MHz-15.1 MHz: signals there feed straight through"
+    ]
     # derived by hand: IF 10.7 -/+ 0.115 MHz; RF 5 - 0.1 to 15 + 0.1 MHz
 
 
