@@ -34,9 +34,10 @@ outside it do not reach the output.
 
 i.e. preselector loss ``A`` at the unwanted input lowers the (m, n) output by
 ``m·A``.  ``A_rf(f_in)`` is taken at the point of the responding input band
-nearest the channel (where a preselector centred on the channel passes most).  A receiver without a described preselector rejects nothing by
-filtering.  The response *rejection* is how much stronger than the wanted an
-unwanted input must be to give the same output.
+nearest the channel (where a preselector centred on the channel passes most).
+A receiver without a described preselector rejects nothing by filtering.  The
+response *rejection* is how much stronger than the wanted an unwanted input
+must be to give the same output.
 
 The margin is ``-level - min_rejection_db``: positive passes.
 """
@@ -352,9 +353,12 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
     channels = plan.channels_hz()
     lo = plan.lo_hz()
     table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
-    rf_filter = None if plan.filters.rf is None else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf.")
-    if_filter = None if plan.filters.if_ is None else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if.")
-    lo_filter = None if plan.filters.lo is None else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo.")
+    rf_filter = (None if plan.filters.rf is None
+                 else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf."))
+    if_filter = (None if plan.filters.if_ is None
+                 else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if."))
+    lo_filter = (None if plan.filters.lo is None
+                 else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo."))
     if plan.direction == "down":
         f_in = channels
         diff = np.abs(channels - lo)
@@ -372,8 +376,8 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
     output_filter = if_filter if plan.direction == "down" else rf_filter
     target = _least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
     channels, lo, f_in, f_out, wanted_sign = (_read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
-    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high, target,
-                    lo_filter=lo_filter)
+    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high,
+                    target, lo_filter=lo_filter)
 
 
 def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None) -> np.ndarray:
@@ -569,7 +573,8 @@ class _ResponseBands:
         if self._last is None or self._last[0] is not rows or self._last[1] is not cols:
             fam = self.family
             bands = response_bands_at(
-                self.lo_hz.take(rows), fam.rf_harmonic.take(cols), fam.lo_harmonic.take(cols), fam.branch.take(cols), *self.if_hz
+                self.lo_hz.take(rows), fam.rf_harmonic.take(cols), fam.lo_harmonic.take(cols), fam.branch.take(cols),
+                *self.if_hz,
             )
             self._last = (rows, cols, bands)
         return self._last[2]
@@ -758,7 +763,8 @@ def _frame_from(data: dict[str, np.ndarray]) -> pd.DataFrame:
     """
     rf_harmonic = data["rf_harmonic"].astype(np.int64, copy=False)
     lo_harmonic = data["lo_harmonic"].astype(np.int64, copy=False)
-    floats = ("table_dbc", "rf_atten_db", "if_atten_db", "level_dbc", "rejection_db", "margin_db", "extra_rf_db", "extra_if_db")
+    floats = ("table_dbc", "rf_atten_db", "if_atten_db", "level_dbc", "rejection_db", "margin_db", "extra_rf_db",
+              "extra_if_db")
     columns = {
         "kind": _KIND_TEXT[data["kind"]],
         "label": _LABEL_TEXT[data["label"]],
@@ -945,8 +951,9 @@ def _warnings(ctx: _Context) -> list[str]:
     rf_high = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
     if plan.if_.f_low_hz <= rf_high and plan.if_.f_high_hz >= rf_low:
         out.append(
-            f"IF passband {format_frequency(plan.if_.f_low_hz)}-{format_frequency(plan.if_.f_high_hz)} overlaps the RF band "
-            f"{format_frequency(rf_low)}-{format_frequency(rf_high)}: signals there feed straight through"
+            f"IF passband {format_frequency(plan.if_.f_low_hz)}-{format_frequency(plan.if_.f_high_hz)} "
+            f"overlaps the RF band {format_frequency(rf_low)}-{format_frequency(rf_high)}: "
+            "signals there feed straight through"
         )
     if plan.direction == "down":
         err = ctx.f_out_hz - plan.if_.center_hz

@@ -243,7 +243,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         style=style, continuous_update=False, readout_format=".0f",
     )
     c["topology"] = w.Dropdown(
-        options=[("double-balanced", "double_balanced"), ("single-balanced", "single_balanced"), ("single-ended", "single_ended")],
+        options=[("double-balanced", "double_balanced"), ("single-balanced", "single_balanced"),
+                 ("single-ended", "single_ended")],
         value=plan.mixer.topology, description="topology", layout=_row(), style=style,
     )
     c["balance"] = w.FloatSlider(
@@ -286,7 +287,9 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style)
     c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
     c["upload"] = w.FileUpload(accept=".json", multiple=False, description="Open plan…", layout=w.Layout(width="146px"))
-    c["load_path"] = w.Text(value="", description="load file", layout=_row(), style=style, placeholder="path on the server")
+    c["load_path"] = w.Text(
+        value="", description="load file", layout=_row(), style=style, placeholder="path on the server"
+    )
     c["load"] = w.Button(description="Load", layout=w.Layout(width="146px"))
     c["snapshot"] = w.Button(description="HTML snapshot", layout=w.Layout(width="146px"))
     c["file_msg"] = w.HTML(value="", layout=w.Layout(width="300px"))
@@ -335,7 +338,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
 
 
 def _error_html(text: str) -> str:
-    return f'<span class="mixchart-error" style="color:#B33000;font-size:12px">{html.escape(text)}</span>' if text else ""
+    return (f'<span class="mixchart-error" style="color:#B33000;font-size:12px">{html.escape(text)}</span>'
+            if text else "")
 
 
 def _filter_spec_from_controls(fc: FilterControls, tracking_allowed: bool) -> dict[str, Any] | str | None:
@@ -365,7 +369,9 @@ def _filter_spec_from_controls(fc: FilterControls, tracking_allowed: bool) -> di
     return spec
 
 
-def _table_html(ev: Evaluation, rows: int = 12, caption: str = "Worst case of each product across the tuning range") -> str:
+def _table_html(
+    ev: Evaluation, rows: int = 12, caption: str = "Worst case of each product across the tuning range"
+) -> str:
     from .chart import CATEGORIES, CLOSE_DB
 
     frame = ev.to_frame().head(rows)
@@ -382,7 +388,8 @@ def _table_html(ev: Evaluation, rows: int = 12, caption: str = "Worst case of ea
             f"<tr><td>{html.escape(r.kind)}: {html.escape(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic})</td>"
             f"<td>{html.escape(format_frequency(r.channel_hz, 7))}</td>"
             f"<td>{html.escape(format_frequency(r.f_center_hz, 7))}</td><td>{r.level_dbc:.1f}</td>"
-            f'<td style="color:{colour};font-weight:bold">{r.margin_db:+.1f}</td><td>{extra_rf}</td><td>{extra_if}</td></tr>'
+            f'<td style="color:{colour};font-weight:bold">{r.margin_db:+.1f}</td>'
+            f"<td>{extra_rf}</td><td>{extra_if}</td></tr>"
         )
     return (
         "<style>.mixchart-table td,.mixchart-table th{padding:2px 10px;text-align:left}"
@@ -397,10 +404,12 @@ def _summary_html(label: str, ev: Evaluation) -> str:
     s = ev.summary
     colour = "#B33000" if s.worst_margin_db < 0 else "#006B4F"
     plan = ev.plan
-    side = plan.lo.side + "-side" if plan.lo.mode == "tracking" else f"fixed LO {format_frequency(plan.lo.fixed_hz or 0)}"
+    side = (plan.lo.side + "-side" if plan.lo.mode == "tracking"
+            else f"fixed LO {format_frequency(plan.lo.fixed_hz or 0)}")
     return (
         f"<div class='mixchart-summary'><b>{html.escape(label)}</b> — {html.escape(plan.name)}: "
-        f"{html.escape(plan.direction)}-conversion, {html.escape(side)}, IF {html.escape(format_frequency(plan.if_.center_hz))}<br>"
+        f"{html.escape(plan.direction)}-conversion, {html.escape(side)}, "
+        f"IF {html.escape(format_frequency(plan.if_.center_hz))}<br>"
         f"<span style='color:{colour};font-weight:bold'>{html.escape(s.line())}</span></div>"
     )
 
@@ -810,7 +819,9 @@ def _show_filter(fc: FilterControls, spec: Any) -> None:
     data = spec.model_dump(mode="json", exclude_none=True)
     fc.spec_json.value = json.dumps(data)
     kind = data.get("kind")
-    simple = kind == "tuned" or (kind in ("butterworth", "chebyshev1", "elliptic", "brickwall") and data.get("response") == "bandpass")
+    simple = kind == "tuned" or (
+        kind in ("butterworth", "chebyshev1", "elliptic", "brickwall") and data.get("response") == "bandpass"
+    )
     if not simple:
         fc.kind.value = "custom"
         return

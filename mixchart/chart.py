@@ -145,7 +145,9 @@ def _windows(ev: Evaluation, lo_now: float) -> tuple[tuple[float, ...], tuple[fl
     return tuning, (ox0, ox1, oy0, oy1)
 
 
-def _skirt(filt, f_lo: float, f_hi: float, centre: float | None, band: tuple[float, float], req_db: float, scale: float):
+def _skirt(
+    filt, f_lo: float, f_hi: float, centre: float | None, band: tuple[float, float], req_db: float, scale: float
+):
     """Rows of a filter tint between ``f_lo`` and ``f_hi`` (Hz), fine near the passband."""
     b_lo, b_hi = band
     width = max(b_hi - b_lo, 1e-9 * max(abs(f_hi), 1.0))
@@ -342,7 +344,9 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "y": py / o_scale,
         **_point_columns(prod),
         **_style(p_cat),
-        "size": np.array([14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat], dtype=float),
+        "size": np.array(
+            [14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat], dtype=float
+        ),
     }
     if_band = (plan.if_.f_low_hz, plan.if_.f_high_hz)
     if down:
@@ -362,7 +366,9 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     )
     out_skirt = _skirt(out_filter, out_win[2], out_win[3], ch, out_pass, req, o_scale)
     sources["out_input_skirt"] = in_skirt
-    sources["out_output_skirt"] = {"y0": out_skirt["x0"], "y1": out_skirt["x1"], "alpha": out_skirt["alpha"], "atten_db": out_skirt["atten_db"]}
+    sources["out_output_skirt"] = {
+        "y0": out_skirt["x0"], "y1": out_skirt["x1"], "alpha": out_skirt["alpha"], "atten_db": out_skirt["atten_db"]
+    }
 
     in_name, out_name = ("RF input", "IF output") if down else ("IF input", "RF output")
     meta = {
@@ -511,7 +517,10 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     tuning.xaxis.axis_label = meta["tuning_x_label"]
     tuning.yaxis.axis_label = meta["tuning_y_label"]
     # shading first, then strips, the plan, marks and points on top
-    tuning.vstrip(x0="x0", x1="x1", source=src["tuning_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0, name="tuning_skirt")
+    tuning.vstrip(
+        x0="x0", x1="x1", source=src["tuning_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
+        name="tuning_skirt",
+    )
     band_t = tuning.vstrip(
         x0="x0", x1="x1", source=src["rf_band"], fill_color=_TINT_IN, fill_alpha=0.10,
         line_color=_TINT_IN, line_width=2, line_dash="dashed", name="rf_band_tuning",
@@ -535,7 +544,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     )
     tuning.add_tools(
         HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("level in IF", "@level{0.0} dBc")]),
-        HoverTool(renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]),
+        HoverTool(
+            renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]
+        ),
         HoverTool(renderers=[pts_t], tooltips=_HOVER_POINTS),
     )
     edit_t = BoxEditTool(renderers=[band_t], dimensions="width", num_objects=1, description="Drag the RF band")
@@ -544,8 +555,14 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     output = make("output_plane", meta["output_title"], ow)
     output.xaxis.axis_label = meta["output_x_label"]
     output.yaxis.axis_label = meta["output_y_label"]
-    output.vstrip(x0="x0", x1="x1", source=src["out_input_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0, name="input_skirt")
-    output.hstrip(y0="y0", y1="y1", source=src["out_output_skirt"], fill_color=_TINT_OUT, fill_alpha="alpha", line_alpha=0, name="output_skirt")
+    output.vstrip(
+        x0="x0", x1="x1", source=src["out_input_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
+        name="input_skirt",
+    )
+    output.hstrip(
+        y0="y0", y1="y1", source=src["out_output_skirt"], fill_color=_TINT_OUT, fill_alpha="alpha", line_alpha=0,
+        name="output_skirt",
+    )
     out_band = output.hstrip(
         y0="y0", y1="y1", source=src["out_output_band"], fill_color=_TINT_OUT, fill_alpha=0.12,
         line_color=_TINT_OUT, line_width=2, line_dash="dashed", name="output_band",
@@ -564,10 +581,14 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     )
     output.add_tools(
         HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
-        HoverTool(renderers=[segs], tooltips=[("product", "@label"), ("level in band", "@level{0.0} dBc")], line_policy="nearest"),
+        HoverTool(
+            renderers=[segs], tooltips=[("product", "@label"), ("level in band", "@level{0.0} dBc")],
+            line_policy="nearest",
+        ),
     )
     edit = BoxEditTool(
-        renderers=[out_band, in_band], dimensions="both", num_objects=1, description="Drag the passband or the input band"
+        renderers=[out_band, in_band], dimensions="both", num_objects=1,
+        description="Drag the passband or the input band",
     )
     output.add_tools(edit)
     output.toolbar.active_drag = edit
@@ -575,7 +596,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
 
     legend = Div(text=legend_html(), name="chart_legend", styles={"font-size": "13px"})
     layout = column(legend, row(tuning, output), name="mixchart_chart")
-    handle = ChartHandle(layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t)
+    handle = ChartHandle(
+        layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t
+    )
     handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
     handle.last = dict(data.sources)
     return handle

@@ -57,7 +57,8 @@ def _text_table(frame, top: int) -> str:
     shown = frame.head(top)
     channel = [format_frequency(f, 7) for f in shown["channel_hz"]]
     lo = [format_frequency(f, 7) for f in shown["lo_hz"]]
-    band = [f"{format_frequency(a, 7)}-{format_frequency(b, 7)}" for a, b in zip(shown["f_low_hz"], shown["f_high_hz"], strict=True)]
+    band = [f"{format_frequency(a, 7)}-{format_frequency(b, 7)}"
+            for a, b in zip(shown["f_low_hz"], shown["f_high_hz"], strict=True)]
     # frequency columns as wide as their longest entry, so long values never run together
     w_ch, w_lo, w_band = (max([len(head), *map(len, col)]) for head, col in
                           (("channel", channel), ("LO", lo), ("spur/input band", band)))
@@ -160,13 +161,16 @@ def build_parser() -> argparse.ArgumentParser:
 
     def plan_args(p: argparse.ArgumentParser) -> None:
         p.add_argument("plan", nargs="?", help="plan JSON file (default: a built-in example)")
-        p.add_argument("--example", default=DEFAULT_EXAMPLE, choices=sorted(EXAMPLES), help="built-in example when no plan is given")
+        p.add_argument("--example", default=DEFAULT_EXAMPLE, choices=sorted(EXAMPLES),
+                       help="built-in example when no plan is given")
 
     p = sub.add_parser("sweep", help="evaluate a plan across its tuning range and print the results")
     plan_args(p)
     p.add_argument("--format", choices=["text", "json", "csv"], default="text")
-    p.add_argument("--rows", choices=["worst", "hits"], default="worst", help="worst case per product (default) or every failing row")
-    p.add_argument("--channel", help="show every product/response of the channel nearest this frequency, e.g. '98.1 MHz'")
+    p.add_argument("--rows", choices=["worst", "hits"], default="worst",
+                   help="worst case per product (default) or every failing row")
+    p.add_argument("--channel",
+                   help="show every product/response of the channel nearest this frequency, e.g. '98.1 MHz'")
     p.add_argument("--top", type=int, default=25, help="rows in the text table (default 25)")
     p.add_argument("--fail-on-spur", action="store_true", help="exit 1 when any margin is negative")
     p.set_defaults(func=_cmd_sweep)

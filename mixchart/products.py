@@ -314,7 +314,9 @@ def response_bands_at(
     return center, low, high
 
 
-def overlaps(low_a: np.ndarray, high_a: np.ndarray, low_b: np.ndarray | float, high_b: np.ndarray | float) -> np.ndarray:
+def overlaps(
+    low_a: np.ndarray, high_a: np.ndarray, low_b: np.ndarray | float, high_b: np.ndarray | float
+) -> np.ndarray:
     """True where band ``[low_a, high_a]`` overlaps band ``[low_b, high_b]``.
 
     Touching edges count as an overlap: a product whose edge sits exactly on the
@@ -695,8 +697,12 @@ def tuning_plane_strips(
     pts_y = [np.broadcast_to(cy[:, None], (4, a.size))]
     with np.errstate(divide="ignore", invalid="ignore"):
         for c in (c_lo, c_hi):
-            pts_x.append(np.stack([np.full_like(a, x_min), np.full_like(a, x_max), (c - b * y_min) / a, (c - b * y_max) / a]))
-            pts_y.append(np.stack([(c - a * x_min) / b, (c - a * x_max) / b, np.full_like(a, y_min), np.full_like(a, y_max)]))
+            pts_x.append(
+                np.stack([np.full_like(a, x_min), np.full_like(a, x_max), (c - b * y_min) / a, (c - b * y_max) / a])
+            )
+            pts_y.append(
+                np.stack([(c - a * x_min) / b, (c - a * x_max) / b, np.full_like(a, y_min), np.full_like(a, y_max)])
+            )
     px = np.concatenate(pts_x)
     py = np.concatenate(pts_y)
     with np.errstate(invalid="ignore"):

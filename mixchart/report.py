@@ -54,7 +54,8 @@ table { border-collapse: collapse; margin: .4rem 0; font-size: .9rem; }
 th, td { padding: .3rem .6rem; border-bottom: 1px solid var(--rule); text-align: left; vertical-align: top; }
 th { background: #222; color: #fff; font-weight: 600; } tbody tr:nth-child(even) { background: var(--zebra); }
 table.words th { background: none; color: var(--ink); white-space: nowrap; }
-table.words tbody th { border-right: 2px solid var(--ink); } table.words thead th { border-bottom: 2px solid var(--ink); }
+table.words tbody th { border-right: 2px solid var(--ink); } \
+table.words thead th { border-bottom: 2px solid var(--ink); }
 tr.differs td { font-weight: 700; } tr.differs th::after { content: " ≠"; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.cat { border-left: 10px solid var(--cat); background: color-mix(in srgb, var(--cat) 22%, white); font-weight: 600; }
@@ -121,7 +122,8 @@ def _filter_words(spec: Any) -> str:
         elif key == "stages":
             parts.append(f"{value} stages")
         else:
-            parts.append(f"{names.get(key, key.replace('_', ' '))} {f'{value:g}' if isinstance(value, float) else value}")
+            parts.append(f"{names.get(key, key.replace('_', ' '))} "
+                         f"{f'{value:g}' if isinstance(value, float) else value}")
     return ", ".join(parts)
 
 
@@ -149,7 +151,8 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
         filters += f" LO (not applied to levels): {_filter_words(plan.filters.lo)}."
     req = plan.requirement.min_rejection_db
     return [
-        ("Direction", "down-conversion (receiver: RF in, IF out)" if down else "up-conversion (transmitter: IF in, RF out)"),
+        ("Direction",
+         "down-conversion (receiver: RF in, IF out)" if down else "up-conversion (transmitter: IF in, RF out)"),
         ("RF band", band),
         ("LO", lo_text),
         ("IF", f"centre {format_frequency(if_.center_hz)}, bandwidth {format_frequency(if_.bandwidth_hz)}"),
@@ -202,12 +205,17 @@ def _failing_runs(ev: Evaluation) -> str:
     for a, b in runs[:MAX_RUNS]:
         k = a + int(np.argmin(ev.worst_margin_db[a:b]))
         row = ev.worst_row.iloc[k]
-        span = format_frequency(ev.channels_hz[a]) + ("" if b - a == 1 else f" to {format_frequency(ev.channels_hz[b - 1])}")
-        items.append(f"<li>{_e(span)} ({b - a} channel{'s' if b - a != 1 else ''}): worst {_db(ev.worst_margin_db[k], sign=True)}, "
-                     f"{_e(row['label'])} ({row['rf_harmonic']},{row['lo_harmonic']}) at {_e(format_frequency(ev.channels_hz[k]))}</li>")
+        span = format_frequency(ev.channels_hz[a]) + (
+            "" if b - a == 1 else f" to {format_frequency(ev.channels_hz[b - 1])}"
+        )
+        items.append(f"<li>{_e(span)} ({b - a} channel{'s' if b - a != 1 else ''}): "
+                     f"worst {_db(ev.worst_margin_db[k], sign=True)}, "
+                     f"{_e(row['label'])} ({row['rf_harmonic']},{row['lo_harmonic']}) "
+                     f"at {_e(format_frequency(ev.channels_hz[k]))}</li>")
     rest = f"<li>… and {len(runs) - MAX_RUNS} more runs</li>" if len(runs) > MAX_RUNS else ""
     return (f"<p>{s.n_failing_channels} of {s.n_channels} channels fail "
-            f"({s.n_failing_rows} failing channel/product pairs), in {len(runs)} run{'s' if len(runs) != 1 else ''}:</p>"
+            f"({s.n_failing_rows} failing channel/product pairs), "
+            f"in {len(runs)} run{'s' if len(runs) != 1 else ''}:</p>"
             f"<ul>{''.join(items)}{rest}</ul>")
 
 

@@ -99,7 +99,9 @@ def plan_channels(start_hz: float, stop_hz: float, step_hz: float | None) -> lis
     return out
 
 
-def plan_lo(channel_hz: float, mode: str, side: str, if_hz: float, fixed_hz: float | None, step_hz: float | None) -> float:
+def plan_lo(
+    channel_hz: float, mode: str, side: str, if_hz: float, fixed_hz: float | None, step_hz: float | None
+) -> float:
     """LO for one channel: fixed, or the channel plus (high side) or minus (low side) the IF, on its grid."""
     if mode == "fixed":
         lo = fixed_hz
@@ -321,7 +323,9 @@ class FilterLoss:
         if kind == "butterworth":
             return butterworth_loss_db(_omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order)
         if kind == "chebyshev1":
-            return chebyshev1_loss_db(_omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order, spec.ripple_db)
+            return chebyshev1_loss_db(
+                _omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order, spec.ripple_db
+            )
         # elliptic, touchstone: the library's own response, one scalar at a time
         from mixchart.filters import build_filter
 

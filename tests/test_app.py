@@ -224,10 +224,12 @@ def test_one_refresh_is_one_patch_message(app: PlannerApp) -> None:
 def test_filter_form_shows_only_the_fields_of_its_kind(app: PlannerApp) -> None:
     fc = app.controls.rf_filter
     assert fc.kind.value == "tuned"  # the example's preselector
-    shown = {f for f in ("order", "centre", "bandwidth", "q", "ripple", "stop") if getattr(fc, f).layout.display != "none"}
+    shown = {f for f in ("order", "centre", "bandwidth", "q", "ripple", "stop")
+             if getattr(fc, f).layout.display != "none"}
     assert shown == {"order", "centre", "q"} and fc.order.description == "stages"
     fc.kind.value = "elliptic"
-    shown = {f for f in ("order", "centre", "bandwidth", "q", "ripple", "stop") if getattr(fc, f).layout.display != "none"}
+    shown = {f for f in ("order", "centre", "bandwidth", "q", "ripple", "stop")
+             if getattr(fc, f).layout.display != "none"}
     assert shown == {"order", "centre", "bandwidth", "ripple", "stop"} and fc.order.description == "order"
     assert fc.kind.layout.display != "none"  # hiding a field never hides the kind selector
 

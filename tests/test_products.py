@@ -393,7 +393,13 @@ def test_product_and_response_bands_match_brute_force(seed):
         for key, values in want_p.items():
             assert got_p[key] == pytest.approx(values, rel=1e-12, abs=1e-6), key
         in_band = {key for key, (_, lo, hi) in want_p.items() if ref.bands_overlap(lo, hi, if_low, if_high)}
-        got_in = {key for k, key in enumerate(zip(pf.rf_harmonic.tolist(), pf.lo_harmonic.tolist(), pf.sign.tolist(), strict=True)) if hit[i, k]}
+        got_in = {
+            key
+            for k, key in enumerate(
+                zip(pf.rf_harmonic.tolist(), pf.lo_harmonic.tolist(), pf.sign.tolist(), strict=True)
+            )
+            if hit[i, k]
+        }
         assert got_in == in_band
         want_r = {(m, n, b): (c, lo, hi) for m, n, b, c, lo, hi in ref.response_list(f_lo[i], if_low, if_high, order)}
         got_r = {

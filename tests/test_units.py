@@ -76,7 +76,8 @@ def test_parse_frequency_text_is_exact(text, expected_hz, source):
         (None, "give a frequency in Hz", "None"),
         ([1e6], "give a frequency in Hz", "a list"),
         (10**400, "must be a finite frequency", "an int beyond float range (regression: was OverflowError)"),
-        ("1e999999999 MHz", "must be a finite frequency", "exponent beyond Decimal range (regression: was decimal.Overflow)"),
+        ("1e999999999 MHz", "must be a finite frequency",
+         "exponent beyond Decimal range (regression: was decimal.Overflow)"),
         ("1e-999999999 MHz", "must be > 0 Hz", "underflows to 0 Hz"),
     ],
 )

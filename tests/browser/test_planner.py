@@ -403,7 +403,8 @@ def test_low_side_injection_moves_the_plan_line(app):
     assert side.locator("button.mod-active").inner_text().strip() == "high side"
     before = bh.source_data(page, "tuning_plan")
     # derived by hand: high-side tracking LO = f_RF + f_IF, on the LO grid
-    assert all(abs(y * MHZ - (x * MHZ + if_c)) <= lo_step / 2 + 1 for x, y in zip(before["x"], before["y"], strict=True))
+    assert all(abs(y * MHZ - (x * MHZ + if_c)) <= lo_step / 2 + 1
+               for x, y in zip(before["x"], before["y"], strict=True))
 
     side.locator("button", has_text="low side").click()
     after = _source_changed(page, "tuning_plan", before)
@@ -432,7 +433,9 @@ def test_clicking_the_tuning_plane_picks_the_nearest_channel(app):
         "the clicked channel",
     )
     assert after["channel"][0] == format_frequency(after["x"][0] * MHZ)
-    assert f"channel {format_frequency(after['x'][0] * MHZ)}" in page.locator(".mixchart-channel-text").first.inner_text()
+    assert f"channel {format_frequency(after['x'][0] * MHZ)}" in (
+        page.locator(".mixchart-channel-text").first.inner_text()
+    )
     _assert_clean(page)
 
 
