@@ -10,7 +10,15 @@ do, and are imported only when asked for.
 """
 
 from .analysis import Evaluation, Summary, evaluate
-from .errors import FilterError, LevelTableError, MixchartError, PlanError, SweepTooLargeError, UnitError
+from .errors import (
+    AnalysisError,
+    FilterError,
+    LevelTableError,
+    MixchartError,
+    PlanError,
+    SweepTooLargeError,
+    UnitError,
+)
 from .plan import Plan, load_plan, loads_plan, plan_json_schema, save_plan
 from .units import format_frequency, parse_frequency
 
@@ -33,4 +41,5 @@ __all__ = [
     "FilterError",
     "LevelTableError",
     "SweepTooLargeError",
+    "AnalysisError",
 ]

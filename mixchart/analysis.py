@@ -52,6 +52,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .errors import AnalysisError, one_line
 from .filters import Filter, build_filter
 from .levels import LevelTable, build_table
 from .plan import Plan
@@ -380,20 +381,35 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
                     target, lo_filter=lo_filter)
 
 
-def _rel_atten(filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None) -> np.ndarray:
+def _rel_atten(
+    filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None, field: str
+) -> np.ndarray:
     """Filter loss at ``f_hz`` less its loss at ``f_ref_hz`` (the wanted), dB."""
     if filt is None:
         return np.zeros(np.broadcast_shapes(np.shape(f_hz), np.shape(f_ref_hz)))
     c = None
     if filt.tracks_channel:
         c = centre
-    a = _capped(filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz))))
-    a_ref = _capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))))
+    a = _capped(filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz))), field, f_hz)
+    a_ref = _capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))), field,
+                    f_ref_hz)
     return a - a_ref
 
 
-def _capped(atten_db: np.ndarray) -> np.ndarray:
-    """Filter loss limited to :data:`MAX_FILTER_LOSS_DB` (an exact zero of a response is not infinite here)."""
+def _capped(atten_db: np.ndarray, field: str, f_hz: np.ndarray) -> np.ndarray:
+    """Filter loss limited to :data:`MAX_FILTER_LOSS_DB` (an exact zero of a response is not infinite here).
+
+    A NaN loss is an :class:`~mixchart.errors.AnalysisError` naming the filter (``field``) and the
+    first frequency of ``f_hz`` where it happened: it never reaches a margin.
+    """
+    atten_db = np.asarray(atten_db, dtype=float)
+    bad = np.isnan(atten_db)
+    if bad.any():
+        f_bad = float(np.broadcast_to(f_hz, atten_db.shape)[bad].flat[0])
+        raise AnalysisError(
+            f"{field}: the filter's loss at {format_frequency(f_bad)} is not a number (NaN); "
+            "check its description there (a NaN is never reported as a margin)"
+        )
     return np.minimum(atten_db, MAX_FILTER_LOSS_DB)
 
 
@@ -622,12 +638,14 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     if down:
         input_filter, output_filter, out_filter_centre = ctx.rf_filter, ctx.if_filter, None
         in_filter_centre = ch
+        in_field, out_field = "filters.rf", "filters.if"
     else:
         input_filter, output_filter, out_filter_centre = ctx.if_filter, ctx.rf_filter, ch
         in_filter_centre = None
+        in_field, out_field = "filters.if", "filters.rf"
     if input_filter is not None:
         c = None if not input_filter.tracks_channel else in_filter_centre
-        drive = (sig_dbm - _capped(input_filter.atten_db(f_in, c)))[:, None]
+        drive = (sig_dbm - _capped(input_filter.atten_db(f_in, c), in_field, f_in))[:, None]
     else:
         drive = np.full((1, 1), sig_dbm)  # the same for every channel: levels work out once per column
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
@@ -644,7 +662,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         c = None if out_filter_centre is None else out_filter_centre[:, None]
         target = c if (c is not None and output_filter.tracks_channel) else ctx.out_filter_target_hz
         nearest = np.clip(target, p_low, p_high)
-        out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c)
+        out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c, out_field)
         p_level = level - out_atten
     p_margin = margin[:, :k_p]
     np.subtract(-req, p_level, out=p_margin)  # margin = -level - requirement, in one pass
@@ -694,8 +712,10 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         # The unwanted input's loss at the band point nearest the channel (conservative).
         probe = np.clip(ch[:, None], r_low, r_high)
         c = ch[:, None] if ctx.rf_filter.tracks_channel else None
-        a_in = _capped(ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape)))
-        a_w = _capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None))[:, None]
+        a_in = _capped(ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape)),
+                       "filters.rf", probe)
+        a_w = _capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None), "filters.rf",
+                      ch)[:, None]
         mixer_drive = u_dbm - a_in
     else:
         # no preselector: every channel alike, so the levels work out once per column
@@ -847,6 +867,8 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         rows = slice(start, min(start + step, n_ch))
         block = _evaluate_block(ctx, rows)
         margin = block.margin_db
+        if np.isnan(margin).any():  # a NaN is an error, never a margin (nor a PASS)
+            raise _nan_error(block, start)
         n_rows, n_cols = margin.shape
         all_cols = np.arange(n_cols)
         idx = np.argmin(margin, axis=1)
@@ -944,6 +966,20 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
     )
 
 
+def _nan_error(block: _Block, start: int) -> AnalysisError:
+    """The error for the first NaN margin of a block: which product, which channel, which term."""
+    row, col = (int(i) for i in np.argwhere(np.isnan(block.margin_db))[0])
+    r = {k: v[0] for k, v in block.take(np.array([row]), np.array([col])).items()}
+    terms = (("table_dbc", "mixer"), ("rf_atten_db", "filters.rf"), ("if_atten_db", "filters.if"))
+    field = next((name for key, name in terms if np.isnan(r[key])), "plan")
+    what = "response" if r["kind"] == 1 else "product"
+    return AnalysisError(one_line(
+        f"{field}: the {what} ({int(r['rf_harmonic'])},{int(r['lo_harmonic'])}) at channel "
+        f"{format_frequency(float(r['channel_hz']))} (channel index {start + row}) has no number (NaN) for its "
+        "level; check the field's values there (a NaN is never reported as a margin)"
+    ))
+
+
 def _warnings(ctx: _Context) -> list[str]:
     plan = ctx.plan
     out: list[str] = []
@@ -985,7 +1021,7 @@ def _warnings(ctx: _Context) -> list[str]:
     for name, filt, f_hz, what, advice in must_pass:
         if filt is None or filt.tracks_channel:
             continue  # a tracking filter follows the wanted signal by construction
-        loss = _capped(filt.atten_db(f_hz)) - _passband_loss_db(filt)
+        loss = _capped(filt.atten_db(f_hz), name, f_hz) - _passband_loss_db(filt)
         k = int(np.argmax(loss))
         if loss[k] > WANTED_LOSS_WARN_DB:
             out.append(
@@ -997,8 +1033,6 @@ def _warnings(ctx: _Context) -> list[str]:
     note = ctx.table.fallback_note(plan.max_order)
     if note:
         out.append(note)
-    if int(plan.max_order) > ctx.table.max_harmonic:
-        out.append(f"the level table stops at harmonic {ctx.table.max_harmonic}; higher products use its floor")
     return out
 
 

@@ -112,7 +112,7 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
             "Levels are estimates from the mixer model; emission limits are set by local rules and "
             "licensed practice - check against them.\n"
         )
-    if args.fail_on_spur and result.summary.worst_margin_db < 0:
+    if args.fail_on_spur and not result.summary.worst_margin_db >= 0:  # a NaN never passes
         return 1
     return 0
 

@@ -15,6 +15,7 @@ __all__ = [
     "FilterError",
     "LevelTableError",
     "SweepTooLargeError",
+    "AnalysisError",
     "field_error",
     "one_line",
 ]
@@ -42,6 +43,10 @@ class LevelTableError(MixchartError):
 
 class SweepTooLargeError(MixchartError):
     """A requested sweep would need an unreasonable amount of work or memory."""
+
+
+class AnalysisError(MixchartError):
+    """A valid plan gave a value that is not a number (NaN): never reported as a margin."""
 
 
 def one_line(text: str) -> str:

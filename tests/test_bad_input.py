@@ -7,16 +7,19 @@ hangs are caught by a generous ``pytest.mark.timeout`` (pytest-timeout) or a sub
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import os
 import re
 import stat
 
+import numpy as np
 import pytest
 
 from mixchart.analysis import evaluate
-from mixchart.errors import FilterError, LevelTableError, MixchartError, PlanError, UnitError
+from mixchart.cli import example_path
+from mixchart.errors import AnalysisError, FilterError, LevelTableError, MixchartError, PlanError, UnitError
 from mixchart.fileio import read_regular_file
 from mixchart.filters import build_filter
 from mixchart.levels import builtin_table, read_table_csv
@@ -285,3 +288,75 @@ def test_csv_setting_pattern_is_linear():
     for _ in range(20):
         assert _SETTING.fullmatch(line).group(2).strip().startswith("a")
         assert _NUMBER.fullmatch("1" * 20_000 + "!") is None
+
+
+# ---------------------------------------------------------------------- NaN is never a margin
+
+
+def _nan_above(filt, f_hz: float):
+    """Make ``filt`` give NaN loss above ``f_hz`` (a stand-in for any term that loses its number)."""
+    real = filt.atten_db
+
+    def atten_db(f, *args, **kwargs):
+        out = np.asarray(real(f, *args, **kwargs), dtype=float)
+        return np.where(np.asarray(f) > f_hz, np.nan, out)
+
+    object.__setattr__(filt, "atten_db", atten_db)
+
+
+def test_a_nan_margin_is_an_error_naming_the_term_never_a_pass(monkeypatch):
+    import mixchart.analysis as analysis
+
+    plan = load_plan(example_path("fm_receiver"))
+    build = analysis.build_filter
+
+    def nan_filter(spec, **kwargs):
+        filt = build(spec, **kwargs)
+        if kwargs.get("field_prefix") == "filters.rf.":
+            _nan_above(filt, 150e6)  # the FM preselector has no number above 150 MHz
+        return filt
+
+    monkeypatch.setattr(analysis, "build_filter", nan_filter)
+    with pytest.raises(AnalysisError) as info:
+        evaluate(plan)
+    message = one_line_error(info)
+    assert message.startswith("filters.rf: the filter's loss at ") and "is not a number (NaN)" in message
+    f_bad = parse_frequency(message.split(" at ", 1)[1].split(" is not", 1)[0])
+    assert f_bad > 150e6  # where the NaN was put
+
+
+def test_a_nan_level_is_caught_as_a_margin_too(monkeypatch):
+    # the last guard: any NaN in a block's margins, whatever term produced it
+    import mixchart.analysis as analysis
+
+    real = analysis._evaluate_block
+
+    def poisoned(ctx, rows):
+        block = real(ctx, rows)
+        block.margin_db[0, 3] = np.nan
+        return block
+
+    monkeypatch.setattr(analysis, "_evaluate_block", poisoned)
+    with pytest.raises(AnalysisError) as info:
+        evaluate(load_plan(example_path("fm_receiver")))
+    message = one_line_error(info)
+    assert "at channel 88 MHz (channel index 0) has no number (NaN)" in message
+
+
+def test_fail_on_spur_never_exits_0_on_a_nan_worst_margin(monkeypatch, capsys):
+    # If a NaN ever reached the summary, "--fail-on-spur" must not read it as a pass
+    # (NaN < 0 is False: the old test exited 0).
+    import mixchart.analysis as analysis
+    import mixchart.cli as cli
+
+    real = analysis.evaluate
+
+    def nan_summary(plan, **kwargs):
+        result = real(plan, **kwargs)
+        object.__setattr__(result, "summary", dataclasses.replace(result.summary, worst_margin_db=math.nan))
+        return result
+
+    monkeypatch.setattr(analysis, "evaluate", nan_summary)
+    status = cli.main(["sweep", "--example", "fm_receiver", "--fail-on-spur"])
+    assert "FAIL: worst margin" in capsys.readouterr().out  # NaN >= 0 is False: never PASS
+    assert status == 1
