@@ -39,7 +39,10 @@ A receiver without a described preselector rejects nothing by filtering.  The
 response *rejection* is how much stronger than the wanted an unwanted input
 must be to give the same output.
 
-The margin is ``-level - min_rejection_db``: positive passes.
+The response rejection is input-referred: the (m,n) response output grows m dB per dB of the
+interferer, so the rejection is ``(P_u - P_w) - level/m`` (small-signal regime), and a
+response's margin is ``rejection - min_rejection_db``.  A product's margin is
+``-level - min_rejection_db``.  Positive passes.
 """
 
 from __future__ import annotations
@@ -105,9 +108,9 @@ FRAME_COLUMNS: dict[str, str] = {
     "rf_atten_db": "RF filter loss applied (response: m·A(f_in) - A(f_wanted); up: output filter), dB",
     "if_atten_db": "IF filter loss applied relative to the wanted output, dB",
     "level_dbc": "output level relative to the wanted output, dBc",
-    "rejection_db": "response: how much stronger than the wanted an unwanted input must be; "
-    "product: -level_dbc",
-    "margin_db": "-level_dbc - min_rejection_db; >= 0 passes",
+    "rejection_db": "response: how much stronger than the wanted an unwanted input must be for an equal "
+    "output, (P_u - P_w) - level_dbc/m (input-referred); product: -level_dbc",
+    "margin_db": "rejection_db - min_rejection_db; >= 0 passes",
     "passes": "margin_db >= 0",
     "extra_rf_db": "extra RF-filter rejection at the spur that would make it pass, dB (NaN: none needed or no help)",
     "extra_if_db": "extra IF/output-filter rejection that would make it pass, dB (NaN: none needed or no help)",
@@ -563,8 +566,12 @@ def _extra_out(margin: np.ndarray, in_band: np.ndarray) -> np.ndarray:
 
 
 def _extra_rf(margin: np.ndarray, a_in: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """Extra preselector rejection a failing response needs: its shortfall / m, dB."""
-    return np.where((margin < 0) & np.isfinite(a_in) & (m > 0), -margin / m, np.nan)
+    """Extra preselector rejection a failing response needs, dB: its input-referred shortfall.
+
+    X dB more loss at the unwanted input lowers the (m,n) output by m·X, so the input-referred
+    rejection (level/m) rises by exactly X.
+    """
+    return np.where((margin < 0) & np.isfinite(a_in) & (m > 0), -margin, np.nan)
 
 
 class _ResponseBands:
@@ -729,7 +736,12 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     r_level += a_w
     r_level += u_dbm - sig_dbm
     r_margin = margin[:, k_p:]
-    np.subtract(-req, r_level, out=r_margin)  # margin = -level - requirement
+    # Receiver spurious-response rejection is an input ratio: the (m,n) response output grows m dB
+    # per dB of interferer, so the interferer level giving an output equal to the wanted one is
+    # P_u - level/m, and the rejection is (P_u - P_w) - level/m (small-signal regime).  The margin
+    # is that rejection less the requirement; for m = 1 it equals the output ratio.
+    np.divide(r_level, rfam.rf_harmonic[None, :], out=r_margin)
+    np.subtract(u_dbm - sig_dbm - req, r_margin, out=r_margin)
     r_level = np.broadcast_to(r_level, shape)
     a_in = np.broadcast_to(a_in, shape)
     # The wanted input is on the (1,1) branch +1, (f_LO + f_IF), only for a difference
@@ -753,7 +765,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         "rf_atten_db": _Derived(lambda a, w, mm: mm * a - w, a_in, np.broadcast_to(a_w, shape), m),
         "if_atten_db": zero,
         "level_dbc": r_level,
-        "rejection_db": _Derived(lambda level: -level + (u_dbm - sig_dbm), r_level),
+        "rejection_db": _Derived(lambda level, mm: (u_dbm - sig_dbm) - level / mm, r_level, m),
         "margin_db": r_margin,
         "extra_rf_db": _Derived(_extra_rf, r_margin, a_in, m),
         "extra_if_db": nan,

@@ -203,7 +203,11 @@ class Requirement(_Strict):
         default=60.0,
         ge=0.0,
         le=300.0,
-        description="Every spur must be at least this far below the wanted output, dB (i.e. <= -x dBc).",
+        description=(
+            "dB. Every product of the wanted signal must be at least this far below the wanted output "
+            "(<= -x dBc); every receiver response must need an interferer at least this much stronger "
+            "than the wanted signal for an equal output (input-referred rejection)."
+        ),
     )
 
 

@@ -405,8 +405,13 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
       the channel, the same choice as for products (the point nearest where the filter
       passes most, for a filter centred on the channel).  "A receiver without a
       described preselector rejects nothing by filtering": ``A_rf = 0``.
-    * ``margin = -level - min_rejection_db`` (analysis); the wanted product and the
-      wanted response have no margin (``+inf``) and never count as a worst case.
+    * Product: ``margin = -level - min_rejection_db``.  Response: the trade's spurious-response
+      rejection is the input ratio at which the response output equals the wanted output; the
+      (m,n) output grows m dB per dB of interferer, so ``rejection = (P_u - P_w) - level/m``
+      and ``margin = rejection - min_rejection_db`` (published definition of receiver
+      spurious-response rejection, e.g. the equal-output method of receiver measurements; the
+      m dB/dB slope from the small-signal power series).  The wanted product and the wanted
+      response have no margin (``+inf``) and never count as a worst case.
     * Worst case of a channel: the smallest margin over its products and responses;
       ties go to the first in family order (products before responses, then order,
       ``m``, sign: mixchart.products.product_family / response_family docstrings).
@@ -488,7 +493,12 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         def record(kind, label, m, n, sign, centre, low, high, level, index=index, rows=rows):
             """Keep a row; track the channel's worst and each (kind, m, n, sign)'s worst over the sweep."""
             nonlocal worst_key, worst
-            margin = inf if label == "wanted" else -level - req
+            if label == "wanted":
+                margin = inf
+            elif kind == "product":
+                margin = -level - req
+            else:  # input-referred rejection (P_u - P_w) - level/m, less the requirement
+                margin = (p_u - p_w) - level / m - req
             rows.append((kind, label, m, n, sign, centre, low, high, level, margin))
             if margin < inf:
                 key = (margin, 0 if kind == "product" else 1, m + n, m, sign)

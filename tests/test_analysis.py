@@ -129,9 +129,10 @@ def test_preselector_loss_a_lowers_an_m_n_response_by_m_times_a():
     assert outside.sum() >= 40
     drop = responses["level_dbc_bare"] - responses["level_dbc_filt"]
     np.testing.assert_allclose(drop[outside], 40.0 * responses["rf_harmonic"][outside], atol=1e-9)
-    # the extra RF rejection a failing response needs is its shortfall / m (same rule)
+    # the extra RF rejection a failing response needs is its input-referred shortfall: X dB more
+    # loss lowers the output m·X dB, so the rejection (P_u - P_w) - level/m rises by X
     fail = b[(b["kind"] == "response") & (b["margin_db"] < 0)]
-    np.testing.assert_allclose(fail["extra_rf_db"], -fail["margin_db"] / fail["rf_harmonic"], atol=1e-12)
+    np.testing.assert_allclose(fail["extra_rf_db"], -fail["margin_db"], atol=1e-12)
     # the wanted input sits in the passband, so products (driven by the wanted signal) do not move
     products = joined[joined["kind"] == "product"]
     finite = np.isfinite(products["level_dbc_bare"])
@@ -208,8 +209,9 @@ def test_without_an_if_filter_out_of_band_products_do_not_reach_the_output():
     assert len(out) > 0 and (out["level_dbc"] == -np.inf).all() and (out["margin_db"] == np.inf).all()
 
 
-def test_margin_is_minus_level_minus_requirement():
-    # Definition (issue text and analysis docstring): margin = -level - requirement; passes iff >= 0.
+def test_margin_is_rejection_minus_requirement():
+    # Definitions (analysis docstring): a product's margin is -level - requirement; a response's
+    # is its input-referred rejection (P_u - P_w) - level/m less the requirement; passes iff >= 0.
     data = receiver(filters={"rf": {"kind": "tuned", "q_loaded": 30, "stages": 2, "tracks_channel": True},
                              "if": {"kind": "butterworth", "response": "bandpass", "order": 3,
                                     "f_center_hz": "10.7 MHz", "bandwidth_hz": "250 kHz"}},
@@ -219,11 +221,13 @@ def test_margin_is_minus_level_minus_requirement():
     frame = evaluation.channel_frame(7)
     spurs = frame[frame["label"] != "wanted"]
     finite = np.isfinite(spurs["level_dbc"])
-    np.testing.assert_allclose(spurs["margin_db"][finite], -spurs["level_dbc"][finite] - req, atol=1e-9)
+    m = spurs["rf_harmonic"].where(spurs["kind"] == "response", 1)  # products: the output ratio itself
+    np.testing.assert_allclose(spurs["margin_db"][finite], -spurs["level_dbc"][finite] / m[finite] - req, atol=1e-9)
     assert (frame["passes"] == (frame["margin_db"] >= 0)).all()
     assert (frame.loc[frame["label"] == "wanted", "margin_db"] == np.inf).all()
-    # rejection of a product is -level; of a response, -level + (interferer - wanted) = -level here
-    np.testing.assert_allclose(spurs["rejection_db"][finite], -spurs["level_dbc"][finite], atol=1e-9)
+    # rejection of a product is -level; of a response (P_u - P_w) - level/m, with P_u = P_w here
+    np.testing.assert_allclose(spurs["rejection_db"][finite], -spurs["level_dbc"][finite] / m[finite], atol=1e-9)
+    assert (spurs.loc[finite, "rf_harmonic"] > 1).any() and (spurs.loc[finite, "kind"] == "response").any()
 
 
 def test_spur_free_fraction_by_hand():
@@ -249,11 +253,13 @@ def test_spur_free_fraction_by_hand():
     )
     assert (evaluation.hits["label"] == "image").all() and len(evaluation.hits) == 5
     np.testing.assert_allclose(evaluation.hits["channel_hz"].sort_values(), [100e6, 101e6, 102e6, 103e6, 104e6])
-    # On the passing channels the worst is IF feedthrough (1,0): built-in table rule 1 gives
-    # 20 log10(pi/4) = -2.10 dB for n = 0, rule 4 takes 30 dB of balance off (n even):
-    # -32.10 dBc, margin 32.10 - 9 = 23.10 dB (derived by hand from mixchart.levels' stated rules).
-    np.testing.assert_allclose(evaluation.worst_margin_db[5:], 20 * math.log10(4 / math.pi) + 30 - 9, atol=1e-9)
-    assert (evaluation.channels_frame()["label"].iloc[5:] == "IF feedthrough").all()
+    # On the passing channels the worst is the (3,1) response: built-in table rule 2 gives
+    # -(3 - 1)·20 = -40 dBc and rule 1 0 dB for n = 1 (m, n odd: not balanced out); its
+    # input-referred rejection is 40/3 = 13.33 dB, margin 13.33 - 9 = 4.33 dB (derived by hand
+    # from mixchart.levels' stated rules and the equal-output definition of rejection).
+    np.testing.assert_allclose(evaluation.worst_margin_db[5:], 40 / 3 - 9, atol=1e-9)
+    worst = evaluation.channels_frame().iloc[5:]
+    assert (worst["label"] == "spur").all() and (worst["rf_harmonic"] == 3).all() and (worst["lo_harmonic"] == 1).all()
 
 
 @pytest.mark.parametrize(
@@ -505,7 +511,7 @@ LEVEL_PLANS = {
         "requirement": {"min_rejection_db": 50},
     },
     # no filters at all: ideal brick wall over the IF, no preselection (low-side LO)
-    "down, no filters": receiver(lo={"mode": "tracking", "side": "low"}),
+    "down, no filters": receiver(lo={"mode": "tracking", "side": "low"}, requirement={"min_rejection_db": 20}),
     # no filters, transmitter: ideal brick wall over the tuning range widened by half the signal;
     # an octave tuning range, so LO leakage and low-order spurs of other channels fall inside it
     "up, no filters": receiver(direction="up", rf={"start_hz": "100 MHz", "stop_hz": "200 MHz", "step_hz": "5 MHz"},
@@ -811,3 +817,33 @@ def test_lo_filter_file_is_checked(tmp_path):
     plan = plan_from_dict(receiver(filters={"lo": {"kind": "touchstone", "path": "nowhere.s2p"}}))
     with pytest.raises(ValueError, match=r"^filters\.lo\.path: '.*nowhere\.s2p' is invalid; cannot be read"):
         evaluate(plan, base_dir=tmp_path)
+
+
+def test_response_rejection_is_the_input_ratio_solved_for_equal_output():
+    # Outside reference: the trade's definition of receiver spurious-response rejection (the
+    # interferer-to-wanted input ratio at which the response output equals the wanted output),
+    # solved numerically with scipy.optimize.brentq on the interferer level, against the
+    # closed form (P_u - P_w) - level/m the engine reports.  FM example, first channel.
+    from scipy.optimize import brentq
+
+    data = json.loads(example_path("fm_receiver").read_text(encoding="utf-8"))
+    p_w = data["signal"]["level_dbm"]
+
+    def row_at(p_u: float, m: int, n: int) -> pd.Series:
+        data["signal"]["interferer_level_dbm"] = p_u
+        frame = evaluate(plan_from_dict(data)).channel_frame(0)
+        rows = frame[(frame["kind"] == "response") & (frame["rf_harmonic"] == m) & (frame["lo_harmonic"] == n)]
+        return rows.sort_values("margin_db").iloc[0]
+
+    for m, n in ((2, 2), (3, 3), (1, 1)):
+        nominal = row_at(p_w, m, n)
+        p_equal = brentq(lambda p, m=m, n=n: row_at(p, m, n)["level_dbc"], p_w - 50, 60.0, xtol=1e-9)
+        assert nominal["rejection_db"] == pytest.approx(p_equal - p_w, abs=1e-6), (m, n)
+        req = data["requirement"]["min_rejection_db"]
+        assert nominal["margin_db"] == pytest.approx(p_equal - p_w - req, abs=1e-6), (m, n)
+    # the half-IF of the FM example, worst over the band: an input-referred margin of about
+    # -6 dB (a FAIL), where the output ratio used before read +57.7 dB
+    del data["signal"]["interferer_level_dbm"]
+    worst = evaluate(plan_from_dict(data)).worst_by_product
+    half_if = worst[worst["label"] == "half-IF"]["margin_db"].min()
+    assert half_if == pytest.approx(-6.15, abs=0.05)
