@@ -21,10 +21,10 @@ filter's loss) and ``A_out`` the output filter (IF filter of a receiver, RF
 filter of a transmitter) at the product band's least-loss point: the point of
 the band nearest the filter's own passband centre (the channel, for a filter
 that tracks it; 0 Hz for a low-pass, the top of the band for a high-pass).
-Filter losses are counted up to :data:`MAX_FILTER_LOSS_DB`.  An output filter that is not described is taken as an ideal
-brick wall over the output passband (the IF passband of a receiver; the RF
-tuning range, widened by half the signal bandwidth, of a transmitter): products
-outside it do not reach the output.
+Filter losses are counted up to :data:`MAX_FILTER_LOSS_DB`.  A transmitter emits every
+product: with no output filter described, its loss is 0 dB everywhere and the
+summary warns.  A receiver with no IF filter described counts only what lands in
+the IF passband (an ideal brick wall there), and the summary says so.
 
 *Receiver spurious responses*: an unwanted input at ``f_in`` at level ``P_u``
 (the plan's interferer level) reaches the IF through (m, n) at::
@@ -658,9 +658,15 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_p = np.broadcast_to(table_p, shape)
     level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive)  # (1 or Cb, K)
-    if output_filter is None:
-        # No output filter: an ideal brick wall over the output passband, loss 0 dB or infinite,
-        # so the level is the table level in band and -inf outside (level - 0 and level - inf).
+    if output_filter is None and not down:
+        # A transmitter emits every product: with no output filter described, the loss is 0 dB
+        # everywhere (never an ideal brick wall), and the summary warns about the assumption.
+        out_atten = np.broadcast_to(0.0, shape)
+        p_level = np.broadcast_to(level, shape)
+    elif output_filter is None:
+        # Receiver with no IF filter described: only what lands in the IF passband reaches the
+        # output, so the passband is taken as an ideal brick wall (loss 0 dB in band, infinite
+        # outside: level - 0 and level - inf); the summary says so.
         out_atten = _Derived(_brick_wall_db, in_band)
         p_level = np.where(in_band, level, -np.inf)
     else:
@@ -1040,6 +1046,12 @@ def _warnings(ctx: _Context) -> list[str]:
                 f"{name}: {what} at {format_frequency(f_hz[k])} is {loss[k]:.1f} dB down the filter's "
                 f"skirt (channel {format_frequency(ctx.channels_hz[k])}); {advice}"
             )
+    if plan.direction == "up" and ctx.rf_filter is None:
+        out.append("filters.rf: no output filter described; every product is taken at 0 dB of filter loss "
+                   "wherever it lands (add the real output filter for real margins)")
+    elif plan.direction == "down" and ctx.if_filter is None:
+        out.append("filters.if: no IF filter described; the IF passband is taken as an ideal brick wall "
+                   "(products outside it are not counted)")
     drive = plan.signal.level_dbm
     out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))
     note = ctx.table.fallback_note(plan.max_order)

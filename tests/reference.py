@@ -510,8 +510,10 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         # ---- products of the wanted signal
         for m, n, sign, centre, low, high in row["products"]:
             label = product_label(plan.direction, m, n, sign, wanted_sign)
-            if output_filter is None:
-                a_rel = 0.0 if (m, n, sign) in in_band else inf
+            if output_filter is None and not down:
+                a_rel = 0.0  # a transmitter emits every product: no output filter, no loss anywhere
+            elif output_filter is None:
+                a_rel = 0.0 if (m, n, sign) in in_band else inf  # the IF passband as a brick wall
             else:
                 point = min(max(ch if output_filter.tracks_channel else out_target, low), high)
                 a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted

@@ -65,26 +65,38 @@ def test_a_filter_that_nulls_the_wanted_signal_gives_finite_margins_and_a_warnin
     assert "filters.if: the wanted signal at 10.7 MHz is" in " ".join(ev.warnings)
 
 
-def test_a_transmitter_whose_spurs_all_miss_the_output_says_so() -> None:
-    # No output filter: an ideal brick wall over the RF band, 999.5-1000.5 MHz.  One 1 MHz wide
-    # channel at 1000 MHz from a 350 MHz IF, low-side LO 650 MHz.  Derived by hand, order <= 5:
-    # m·350 ± n·650 gives 50, 250, 300, 400, 600, 650, 700, 750, 950, 1050, 1300, 1350, 1400,
-    # 1600, 1650, 1700, 1750, 1950, 2000, 2050 MHz ... and 1000 MHz only for the wanted (1,1) sum,
-    # so nothing else reaches the output.  (At a 400 MHz IF the (2,3) would: |800 - 1800| = 1000.)
+def test_a_transmitter_without_an_output_filter_emits_every_product() -> None:
+    # A transmitter emits every product.  With no output filter described the loss is 0 dB
+    # everywhere (never an ideal brick wall) and the summary warns.  One 1 MHz wide channel at
+    # 1000 MHz from a 350 MHz IF, low-side LO 650 MHz.  Derived by hand: the unwanted sideband
+    # (1,1) difference at |350 - 650| = 300 MHz is at 0 dBc in the built-in double-balanced
+    # table (m = 1, n = 1: the same level as the wanted), so its margin is -0 - 60 = -60 dB.
+    # (The old brick-wall default called this plan "nothing reaches the output", PASS +inf.)
     from mixchart.plan import plan_from_dict
 
-    plan = plan_from_dict({
+    data = {
         "direction": "up",
         "rf": {"start_hz": "1000 MHz", "stop_hz": "1000 MHz"},
         "signal": {"bandwidth_hz": "1 MHz"},
         "lo": {"mode": "tracking", "side": "low"},
         "if": {"center_hz": "350 MHz", "bandwidth_hz": "2 MHz"},
         "max_order": 5,
-    })
-    summary = evaluate(plan).summary
-    assert summary.worst_margin_db == float("inf")
-    assert summary.worst_label == "nothing reaches the output"
-    assert summary.spur_free_fraction == 1.0
+        "requirement": {"min_rejection_db": 60},
+    }
+    result = evaluate(plan_from_dict(data))
+    assert result.summary.worst_margin_db == -60.0
+    assert result.summary.worst_label == "unwanted sideband (1,1)"
+    assert result.worst_row.iloc[0]["f_center_hz"] == 300e6
+    assert any(w.startswith("filters.rf: no output filter described") for w in result.warnings)
+    # with a real output filter (a 20 MHz wide brick wall with 80 dB of stopband loss) the
+    # sideband is 80 dB down: margin 80 - 60 = +20 dB, and the warning is gone
+    data["filters"] = {"rf": {"kind": "brickwall", "response": "bandpass", "f_center_hz": "1000 MHz",
+                              "bandwidth_hz": "20 MHz", "stop_atten_db": 80}}
+    filtered = evaluate(plan_from_dict(data))
+    sideband = filtered.worst_by_product
+    sideband = sideband[sideband["label"] == "unwanted sideband"]
+    assert sideband["margin_db"].iloc[0] == pytest.approx(20.0)
+    assert not any(w.startswith("filters.rf: no output filter") for w in filtered.warnings)
 
 
 def test_failing_channels_are_listed() -> None:
