@@ -8,15 +8,16 @@ numbers, never copied from the code's output.
 
 from __future__ import annotations
 
+import copy
 import math
 
 import numpy as np
 import pytest
 
 from mixchart.analysis import evaluate
-from mixchart.chart import CLOSE_DB, ChartData, ViewOptions, chart_data
+from mixchart.chart import CATEGORIES, CLOSE_DB, ChartData, ViewOptions, chart_data
 from mixchart.cli import example_path
-from mixchart.plan import load_plan
+from mixchart.plan import load_plan, plan_from_dict
 from mixchart.products import tuning_plane_strips
 
 MHz = 1e6
@@ -170,3 +171,374 @@ def test_hiding_orders_and_clear_products_removes_them(fm):
                                           strict=True))
     busy = chart_data(ev, ViewOptions(channel_hz=98e6, show_clear=False))
     assert "clear" not in set(busy.sources["tuning_strips"]["category"])
+
+
+# ---------------------------------------------------------------------- invented plans, end to end
+#
+# A down-converter: RF 10-20 MHz in 1 MHz steps, 100 kHz signal, high-side tracking LO,
+# IF 5 MHz with a 200 kHz passband (4.9-5.1 MHz).  So f_LO = f_RF + 5 MHz: 15-25 MHz, and
+# the middle channel 15 MHz has f_LO = 20 MHz.  An up-converter with the same numbers: the
+# 5 MHz IF goes in, RF 10-20 MHz comes out, f_LO = f_RF + 5 MHz (high side).
+
+IF_C, IF_B = 5 * MHz, 0.2 * MHz
+
+
+def converter(direction: str = "down", **changes) -> dict:
+    """The invented plan above (``direction`` "down" or "up"); ``changes`` replace top-level keys."""
+    data = {
+        "name": f"test {direction}-converter",
+        "direction": direction,
+        "rf": {"start_hz": "10 MHz", "stop_hz": "20 MHz", "step_hz": "1 MHz"},
+        "signal": {"bandwidth_hz": "100 kHz", "level_dbm": -30},
+        "lo": {"mode": "tracking", "side": "high"},
+        "if": {"center_hz": "5 MHz", "bandwidth_hz": "200 kHz"},
+        "max_order": 5,
+        "mixer": {"rf_ref_dbm": -30},
+        "requirement": {"min_rejection_db": 60},
+    }
+    data.update(copy.deepcopy(changes))
+    return data
+
+
+def _cut(xs: np.ndarray, ys: np.ndarray, y: float) -> tuple[float, float] | None:
+    """Where the horizontal line at ``y`` crosses a convex polygon: (x_min, x_max), or None."""
+    hits = []
+    for k in range(len(xs)):
+        x0, y0, x1, y1 = xs[k], ys[k], xs[(k + 1) % len(xs)], ys[(k + 1) % len(xs)]
+        if min(y0, y1) <= y <= max(y0, y1):
+            if y0 == y1:
+                hits += [x0, x1]
+            else:
+                hits.append(x0 + (y - y0) * (x1 - x0) / (y1 - y0))
+    return (min(hits), max(hits)) if hits else None
+
+
+def _cuts_at(data: ChartData, y_mhz: float) -> dict[tuple[int, int], list[tuple[float, float, str, str]]]:
+    """Every shown strip's cut at LO = ``y_mhz``: (m, n) -> [(x_min, x_max, label, category)]."""
+    s = data.sources["tuning_strips"]
+    out: dict[tuple[int, int], list] = {}
+    for xs, ys, m, n, label, cat in zip(s["xs"], s["ys"], s["m"], s["n"], s["label"], s["category"], strict=True):
+        cut = _cut(np.asarray(xs), np.asarray(ys), y_mhz)
+        if cut is not None and cut[1] - cut[0] > 1e-9:
+            out.setdefault((int(m), int(n)), []).append((*cut, label, cat))
+    return out
+
+
+@pytest.fixture(scope="module")
+def down() -> tuple:
+    ev = evaluate(plan_from_dict(converter("down")))
+    return ev, chart_data(ev, ViewOptions(channel_hz=15 * MHz))
+
+
+@pytest.fixture(scope="module")
+def up() -> tuple:
+    ev = evaluate(plan_from_dict(converter("up", max_order=3)))
+    return ev, chart_data(ev, ViewOptions(channel_hz=15 * MHz))
+
+
+def test_down_plan_line_and_current_channel(down):
+    _, data = down
+    # derived by hand: 11 channels 10, 11, ..., 20 MHz; f_LO = f_RF + 5 MHz (high side)
+    line = data.sources["tuning_plan"]
+    np.testing.assert_allclose(line["x"], np.arange(10, 21))
+    np.testing.assert_allclose(line["y"], np.arange(10, 21) + 5.0)
+    meta = data.meta
+    assert meta["channel_index"] == 5 and meta["channel_hz"] == 15 * MHz and meta["lo_hz"] == 20 * MHz
+    assert data.sources["tuning_now"]["x"] == [15.0] and data.sources["tuning_now"]["y"] == [20.0]
+    # RF band: 10 - 0.05 to 20 + 0.05 MHz (half the 100 kHz signal each side); IF 4.9-5.1 MHz
+    assert (data.sources["rf_band"]["x0"][0], data.sources["rf_band"]["x1"][0]) == pytest.approx((9.95, 20.05))
+    band = data.sources["out_output_band"]
+    assert (band["y0"][0], band["y1"][0]) == pytest.approx((4.9, 5.1))
+    # the tuning window holds the RF band, the LO range 15-25 MHz and the image side up to
+    # f_LO,max + f_IF = 30 MHz (chart.py's _windows: "the RF band and its image side, the LO range")
+    x0, x1, y0, y1 = meta["tuning_window"]
+    assert x0 <= 9.95 and x1 >= 30.0 and y0 <= 15.0 and y1 >= 25.0
+    assert meta["tuning_x_label"] == "RF input (MHz)" and meta["output_y_label"] == "IF output (MHz)"
+
+
+def test_down_strips_cut_along_the_current_lo(down):
+    _, data = down
+    cuts = _cuts_at(data, 20.0)  # the current channel's LO, 20 MHz
+    # Derived by hand, f_LO = 20 MHz, IF 4.9-5.1 MHz: an input at x responds through (m, n) when
+    # |m·x ± n·20| is in [4.9, 5.1], i.e. x = |n·20 ± [4.9, 5.1]| / m, a band B/m = 0.2/m wide.
+    wanted = [c for c in cuts[(1, 1)] if c[3] == "wanted"]
+    image = [c for c in cuts[(1, 1)] if c[3] != "wanted"]
+    # wanted: 20 - x in [4.9, 5.1] -> x in [14.9, 15.1], around the 15 MHz channel
+    assert len(wanted) == 1 and wanted[0][:2] == pytest.approx((14.9, 15.1)) and wanted[0][2] == "wanted (1,1)"
+    # image (1,1) across the LO: x - 20 in [4.9, 5.1] -> [24.9, 25.1] = f_RF + 2·f_IF = 25 MHz
+    assert len(image) == 1 and image[0][:2] == pytest.approx((24.9, 25.1)) and image[0][2] == "image (1,1)"
+    # (2,2): |2x - 40| in [4.9, 5.1] -> x in [17.45, 17.55] (half-IF, f_LO - f_IF/2 = 17.5 MHz) and
+    # [22.45, 22.55]; each 0.1 MHz = B/2 wide
+    assert sorted(c[:2] for c in cuts[(2, 2)]) == [pytest.approx((17.45, 17.55)), pytest.approx((22.45, 22.55))]
+    # (2,1): |2x - 20| in [4.9, 5.1] -> [12.45, 12.55] (the other branch, [7.45, 7.55], is left of
+    # the window, which starts below the RF band at 9.95 but above 7.55: see the window check)
+    assert data.meta["tuning_window"][0] > 7.55
+    assert [c[:2] for c in cuts[(2, 1)]] == [pytest.approx((12.45, 12.55))]
+    # (3,2): |3x - 40| in [4.9, 5.1] -> [34.9/3, 35.1/3] and [44.9/3, 45.1/3], each 0.2/3 wide
+    assert sorted(c[:2] for c in cuts[(3, 2)]) == [
+        pytest.approx((34.9 / 3, 35.1 / 3)), pytest.approx((44.9 / 3, 45.1 / 3))
+    ]
+    # (2,3): |2x - 60| in [4.9, 5.1] -> [27.45, 27.55] (and [32.45, 32.55] if the window reaches it)
+    twothree = sorted(c[:2] for c in cuts[(2, 3)])
+    assert twothree[0] == pytest.approx((27.45, 27.55))
+    # every cut is B/m wide (published relation: an IF passband B maps to B/m at the input)
+    for (m, _n), found in cuts.items():
+        for x_lo, x_hi, _label, _cat in found:
+            if data.meta["tuning_window"][0] < x_lo and x_hi < data.meta["tuning_window"][1]:  # not clipped
+                assert x_hi - x_lo == pytest.approx(0.2 / m, rel=1e-9), (m, _n)
+
+
+def test_the_wanted_strip_holds_every_channel_of_the_plan(down):
+    ev, data = down
+    s = data.sources["tuning_strips"]
+    k = s["category"].index("wanted")
+    assert s["category"].count("wanted") == 1 and (s["m"][k], s["n"][k]) == (1, 1)
+    # the wanted strip is |x - y| in [4.9, 5.1] with y above x: at every channel's LO (x + 5)
+    # it covers [x - 0.1, x + 0.1] (derived by hand), so each plan point is inside it
+    for x, y in zip(ev.channels_hz / MHz, ev.lo_hz / MHz, strict=True):
+        x_lo, x_hi = _cut(np.asarray(s["xs"][k]), np.asarray(s["ys"][k]), y)
+        assert (x_lo, x_hi) == pytest.approx((x - 0.1, x + 0.1))
+    assert s["color"][k] == CATEGORIES["wanted"][1]
+
+
+def test_strip_category_colour_and_style_follow_the_requirement(down):
+    ev, data = down
+    s = data.sources["tuning_strips"]
+    req = ev.plan.requirement.min_rejection_db
+    widths, alphas = {}, {}
+    for label, level, cat, colour, width, alpha in zip(s["label"], s["level"], s["category"], s["color"],
+                                                         s["width"], s["alpha"], strict=True):
+        assert colour == CATEGORIES[cat][1]  # the legend's colour for the category
+        widths.setdefault(cat, set()).add(float(width))
+        alphas.setdefault(cat, set()).add(float(alpha))
+        if cat == "wanted":
+            continue
+        # product rule (analysis docstring): margin = -level - requirement; < 0 violates,
+        # < CLOSE_DB close, else clear
+        margin = -level - req
+        assert cat == ("violates" if margin < 0 else "close" if margin < CLOSE_DB else "clear"), label
+    # the image is the (1,1) conversion itself, 0 dBc by definition of dBc, with no preselector:
+    # margin -60 dB, violates
+    k = s["label"].index("image (1,1)")
+    assert s["level"][k] == pytest.approx(0.0) and s["category"][k] == "violates"
+    # one style per category (a violation is drawn no thinner than a clear product)
+    assert all(len(v) == 1 for v in widths.values()) and all(len(v) == 1 for v in alphas.values())
+    if "violates" in widths and "clear" in widths:
+        assert min(widths["violates"]) > max(widths["clear"])
+
+
+def test_down_points_along_the_lo_are_the_hand_enumerated_responses(down):
+    _, data = down
+    pts = data.sources["tuning_points"]
+    x0, x1 = data.meta["tuning_window"][:2]
+    # Derived by hand: the responses of order <= 5 with f_LO = 20 MHz sit at |n·20 ± 5| / m
+    # (centre of IF), m >= 1; the wanted (1,1) at 15 MHz is left out (it is not a spur):
+    #   (1,0) 5          (1,1) 25 image     (1,2) 35, 45      (1,3) 55, 65     (1,4) 75, 85
+    #   (2,0) 2.5        (2,1) 7.5, 12.5    (2,2) 17.5 half-IF, 22.5           (2,3) 27.5, 32.5
+    #   (3,0) 5/3        (3,1) 5, 25/3      (3,2) 35/3, 15                     (4,0) 1.25
+    #   (4,1) 3.75, 6.25 (5,0) 1
+    hand = {(1, 0): [5], (1, 1): [25], (1, 2): [35, 45], (1, 3): [55, 65], (1, 4): [75, 85], (2, 0): [2.5],
+            (2, 1): [7.5, 12.5], (2, 2): [17.5, 22.5], (2, 3): [27.5, 32.5], (3, 0): [5 / 3], (3, 1): [5, 25 / 3],
+            (3, 2): [35 / 3, 15], (4, 0): [1.25], (4, 1): [3.75, 6.25], (5, 0): [1]}
+    expected = sorted((m, n, f) for (m, n), fs in hand.items() for f in fs if x0 <= f <= x1)
+    found = sorted((int(m), int(n), float(x)) for m, n, x in zip(pts["m"], pts["n"], pts["x"], strict=True))
+    assert [e[:2] for e in expected] == [f[:2] for f in found]
+    np.testing.assert_allclose([f[2] for f in found], [e[2] for e in expected], rtol=1e-12)
+    np.testing.assert_array_equal(pts["y"], 20.0)  # all on the current LO line
+    labels = {(int(m), int(n), round(float(x), 6)): lb for m, n, x, lb in
+              zip(pts["m"], pts["n"], pts["x"], pts["label"], strict=True)}
+    assert labels[(1, 1, 25.0)] == "image"  # f_RF + 2·f_IF
+    assert labels[(2, 2, 17.5)] == "half-IF"  # f_LO - f_IF/2, between the channel and the LO
+    assert labels[(2, 2, 22.5)] == "spur"  # the (2,2) on the far side of the LO is not the half-IF
+    # each point lies inside a shown strip of its own (m, n) (the two functions agree)
+    cuts = _cuts_at(data, 20.0)
+    for m, n, x in zip(pts["m"], pts["n"], pts["x"], strict=True):
+        assert any(lo - 1e-9 <= x <= hi + 1e-9 for lo, hi, *_ in cuts[(int(m), int(n))]), (m, n, x)
+    # point colours follow their own margin (the response rule is the engine's; only the mapping is checked)
+    for margin, cat, colour in zip(pts["margin"], pts["category"], pts["color"], strict=True):
+        assert cat == ("violates" if margin < 0 else "close" if margin < CLOSE_DB else "clear")
+        assert colour == CATEGORIES[cat][1]
+
+
+def test_down_output_plane_wanted_arm_and_image_arm(down):
+    _, data = down
+    lines = data.sources["out_lines"]
+    # Derived by hand: at f_LO = 20 MHz the (1,1) difference is the V y = |x - 20|; the arm
+    # x < 20 (y = 20 - x) holds the wanted input 15 MHz -> 5 MHz; the arm x > 20 (y = x - 20)
+    # holds the image 25 MHz -> 5 MHz.
+    arms = {}
+    for x0, y0, x1, y1, m, n, label, cat in zip(lines["x0"], lines["y0"], lines["x1"], lines["y1"], lines["m"],
+                                                 lines["n"], lines["label"], lines["category"], strict=True):
+        # every line lies on y = |m·x ± n·20| at both ends
+        for x, y in ((x0, y0), (x1, y1)):
+            assert min(abs(y - abs(m * x - n * 20)), abs(y - (m * x + n * 20))) <= 1e-9 * 40, (m, n, x, y)
+        if (m, n) == (1, 1):
+            arms[label] = (min(x0, x1), max(x0, x1), cat, (x0, y0, x1, y1))
+    lo, hi, cat, seg = arms["(1,1) wanted"]
+    assert cat == "wanted" and lo <= 15 <= hi and hi <= 20 + 1e-9
+    x0, y0, x1, y1 = seg
+    assert y0 + (15 - x0) * (y1 - y0) / (x1 - x0) == pytest.approx(5.0)  # through (15 MHz, 5 MHz)
+    lo, hi, cat, _ = arms["(1,1) image arm"]
+    assert lo >= 20 - 1e-9 and lo <= 25 <= hi and cat == "violates"
+    # the wanted point of the output plane: input 15 MHz at the 5 MHz IF, margin NaN (documented in
+    # chart._point_columns: the wanted row has no margin)
+    pts = data.sources["out_points"]
+    w = [i for i, lb in enumerate(pts["label"]) if lb == "wanted"]
+    assert w and all((pts["x"][i], pts["y"][i]) == pytest.approx((15.0, 5.0)) for i in w)
+    assert all(math.isnan(pts["margin"][i]) for i in w)
+
+
+def test_normalised_output_plane_is_divided_by_the_lo(down):
+    ev, _ = down
+    data = chart_data(ev, ViewOptions(channel_hz=15 * MHz, normalised=True))
+    assert data.meta["out_scale"] == 20 * MHz and data.meta["out_unit"] == "× LO"
+    # derived by hand: the wanted arm y = 1 - x passes through (15/20, 5/20) = (0.75, 0.25)
+    lines = data.sources["out_lines"]
+    k = lines["label"].index("(1,1) wanted")
+    x0, y0, x1, y1 = lines["x0"][k], lines["y0"][k], lines["x1"][k], lines["y1"][k]
+    assert y0 + (0.75 - x0) * (y1 - y0) / (x1 - x0) == pytest.approx(0.25)
+    band = data.sources["out_output_band"]
+    assert (band["y0"][0], band["y1"][0]) == pytest.approx((4.9 / 20, 5.1 / 20))
+    assert data.meta["output_x_label"] == "RF input / LO"
+
+
+def test_up_strips_along_the_current_lo(up):
+    _, data = up
+    assert data.meta["lo_hz"] == 20 * MHz and data.meta["tuning_x_label"] == "RF output (MHz)"
+    cuts = _cuts_at(data, 20.0)
+    # Derived by hand, up-conversion: the IF band 4.9-5.1 MHz through (m, n) with f_LO = 20 MHz
+    # lands on x = |m·[4.9, 5.1] ± n·20|, a band m·B = 0.2·m wide at the output.
+    wanted = [c for c in cuts[(1, 1)] if c[3] == "wanted"]
+    other = [c for c in cuts[(1, 1)] if c[3] != "wanted"]
+    # wanted: 20 - IF -> [14.9, 15.1] around the 15 MHz channel (high-side LO takes the difference)
+    assert len(wanted) == 1 and wanted[0][:2] == pytest.approx((14.9, 15.1)) and wanted[0][2] == "wanted (1,1)"
+    # unwanted sideband: 20 + IF -> [24.9, 25.1] = f_RF + 2·f_IF
+    assert len(other) == 1 and other[0][:2] == pytest.approx((24.9, 25.1)) and other[0][2] == "(1,1) sum"
+    # (2,1): |2·IF ± 20| -> 20 - [9.8, 10.2] = [9.8, 10.2] and 20 + [9.8, 10.2] = [29.8, 30.2], 0.4 = 2B wide
+    assert sorted(c[:2] for c in cuts[(2, 1)]) == [pytest.approx((9.8, 10.2)), pytest.approx((29.8, 30.2))]
+    # (2,0) and (3,0): the IF harmonics 2·IF = [9.8, 10.2] and 3·IF = [14.7, 15.3], for every LO
+    assert [c[:2] for c in cuts[(2, 0)]] == [pytest.approx((9.8, 10.2))]
+    assert [c[:2] for c in cuts[(3, 0)]] == [pytest.approx((14.7, 15.3))]
+
+
+def test_up_points_output_plane_and_rf_tint(up):
+    _, data = up
+    pts = data.sources["tuning_points"]
+    # Derived by hand, order <= 3, IF 5 MHz, f_LO 20 MHz, output products |m·5 ± n·20| in the window
+    # (the wanted 15 MHz left out): (0,1) 20 LO leakage, (1,1) 25 unwanted sideband, (2,1) 10 and 30,
+    # (2,0) 10, (3,0) 15; (1,0) 5, (0,2) 40, (1,2) 35 and 45, (0,3) 60 are outside the window.
+    x0, x1 = data.meta["tuning_window"][:2]
+    hand = [(0, 1, 20), (1, 1, 25), (2, 1, 10), (2, 1, 30), (2, 0, 10), (3, 0, 15),
+            (1, 0, 5), (0, 2, 40), (1, 2, 35), (1, 2, 45), (0, 3, 60)]
+    expected = sorted((m, n, float(f)) for m, n, f in hand if x0 <= f <= x1)
+    found = sorted((int(m), int(n), float(x)) for m, n, x in zip(pts["m"], pts["n"], pts["x"], strict=True))
+    assert found == [pytest.approx(e) for e in expected]
+    labels = dict(zip(zip(pts["m"], pts["n"], strict=True), pts["label"], strict=True))
+    assert labels[(1, 1)] == "unwanted sideband" and labels[(0, 1)] == "LO leakage"
+    # output plane: the IF input 5 MHz against the RF output; the wanted arm y = 20 - x holds (5, 15)
+    lines = data.sources["out_lines"]
+    k = lines["label"].index("(1,1) wanted")
+    lx0, ly0, lx1, ly1 = lines["x0"][k], lines["y0"][k], lines["x1"][k], lines["y1"][k]
+    assert ly0 + (5 - lx0) * (ly1 - ly0) / (lx1 - lx0) == pytest.approx(15.0)
+    assert data.meta["output_x_label"] == "IF input (MHz)" and data.meta["output_y_label"] == "RF output (MHz)"
+    # no RF filter described: a transmitter's output filter is then an ideal brick wall over the RF
+    # range widened by half the signal (analysis docstring), 9.95-20.05 MHz: tinted at full strength
+    # (chart docstring: strongest in the passband), nothing outside
+    for name, a, b in (("tuning_skirt", "x0", "x1"), ("out_output_skirt", "y0", "y1")):
+        sk = data.sources[name]
+        assert np.min(sk[a]) == pytest.approx(9.95) and np.max(sk[b]) == pytest.approx(20.05)
+        np.testing.assert_allclose(sk["alpha"], 0.30)
+        np.testing.assert_array_equal(sk["atten_db"], 0.0)
+        np.testing.assert_allclose(sk[a][1:], sk[b][:-1])  # contiguous rows
+    assert len(data.sources["out_input_skirt"]["x0"]) == 0  # no IF filter described: no input tint
+
+
+def test_an_unfiltered_receiver_has_no_rf_tint_and_a_brick_wall_if_tint(down):
+    _, data = down
+    # analysis docstring: a receiver without a described preselector rejects nothing by filtering
+    assert len(data.sources["tuning_skirt"]["x0"]) == 0
+    # the undescribed IF filter is an ideal brick wall over the IF passband 4.9-5.1 MHz
+    sk = data.sources["out_output_skirt"]
+    assert np.min(sk["y0"]) == pytest.approx(4.9) and np.max(sk["y1"]) == pytest.approx(5.1)
+    np.testing.assert_allclose(sk["alpha"], 0.30)
+
+
+def test_a_brick_wall_if_filter_weaker_than_the_requirement_tints_its_stopband():
+    # IF brick wall 4.9-5.1 MHz with 40 dB stopband against a 60 dB requirement: the tint is
+    # 0.30 in the passband and 0.30·(1 - 40/60) = 0.10 in the stopband (chart docstring: the
+    # tint fades to nothing where the filter alone meets the requirement; _skirt's linear rule)
+    plan = converter(filters={"if": {"kind": "brickwall", "response": "bandpass", "f_center_hz": "5 MHz",
+                                     "bandwidth_hz": "200 kHz", "stop_atten_db": 40}})
+    data = chart_data(evaluate(plan_from_dict(plan)), ViewOptions(channel_hz=15 * MHz))
+    sk = data.sources["out_output_skirt"]
+    mid = 0.5 * (np.asarray(sk["y0"]) + np.asarray(sk["y1"]))
+    inside = (mid > 4.9) & (mid < 5.1)
+    np.testing.assert_allclose(sk["alpha"][inside], 0.30)
+    np.testing.assert_allclose(sk["alpha"][~inside], 0.10)
+    np.testing.assert_allclose(sk["atten_db"][~inside], 40.0)
+    o = data.meta["output_window"]
+    assert np.min(sk["y0"]) == pytest.approx(o[2]) and np.max(sk["y1"]) == pytest.approx(o[3])  # whole axis
+
+
+def test_skirt_helper_directly():
+    from mixchart.chart import _skirt
+    from mixchart.filters import build_filter
+
+    # no filter: 0 dB inside the band, infinite outside -> rows exactly over the band, in scaled units
+    rows = _skirt(None, 0.0, 20 * MHz, None, (4.9 * MHz, 5.1 * MHz), 60.0, MHz)
+    assert np.min(rows["x0"]) == pytest.approx(4.9) and np.max(rows["x1"]) == pytest.approx(5.1)
+    np.testing.assert_allclose(rows["alpha"], 0.30)
+    assert (np.asarray(rows["x1"]) > np.asarray(rows["x0"])).all()
+    # a filter that alone meets the requirement (40 dB stopband, 30 dB required) is not tinted outside
+    filt = build_filter({"kind": "brickwall", "response": "bandpass", "f_center_hz": 5e6, "bandwidth_hz": 2e5,
+                         "stop_atten_db": 40})
+    rows = _skirt(filt, 0.0, 20 * MHz, None, filt.passband_hz(), 30.0, MHz)
+    assert np.min(rows["x0"]) == pytest.approx(4.9) and np.max(rows["x1"]) == pytest.approx(5.1)
+    # the same filter against 60 dB: 0.30·(1 - 40/60) = 0.10 outside, from 0 to 20 MHz
+    rows = _skirt(filt, 0.0, 20 * MHz, None, filt.passband_hz(), 60.0, MHz)
+    assert np.min(rows["x0"]) == pytest.approx(0.0) and np.max(rows["x1"]) == pytest.approx(20.0)
+    assert set(np.round(rows["alpha"], 12)) == {0.1, 0.3}
+
+
+@pytest.mark.parametrize("which", ["down", "up"])
+def test_every_column_has_one_length_and_finite_numbers(which, down, up):
+    _, data = down if which == "down" else up
+    for name, columns in data.sources.items():
+        lengths = {len(v) for v in columns.values()}
+        assert len(lengths) == 1, (name, {k: len(v) for k, v in columns.items()})
+        for key, values in columns.items():
+            if key in ("xs", "ys"):
+                assert all(np.isfinite(np.asarray(v)).all() and len(v) >= 3 for v in values), (name, key)
+                continue
+            arr = np.asarray(values)
+            if arr.dtype.kind not in "fiu":
+                continue
+            if key == "margin" and "label" in columns:
+                # chart._point_columns: the wanted row has no margin, shown as NaN; nothing else is NaN
+                nan = np.isnan(arr)
+                assert all(lb == "wanted" for lb in np.asarray(columns["label"])[nan]), name
+                assert np.isfinite(arr[~nan]).all(), name
+            else:
+                assert np.isfinite(arr).all(), (name, key)
+    for key in ("tuning_window", "output_window"):
+        assert len(data.meta[key]) == 4 and all(math.isfinite(v) for v in data.meta[key])
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "chart.py bug: the output plane picks the wanted (1,1) sign as sum when f_IF > f_LO, which is "
+    "wrong for a low-side receiver whose LO is below the IF (f_RF > 2·f_LO); the engine says difference"))
+def test_low_side_receiver_with_the_lo_below_the_if_marks_the_difference_arm_wanted():
+    # RF 100-110 MHz, IF 70 MHz, low-side LO = f_RF - 70 MHz: 30-40 MHz.  Channel 105 MHz, f_LO 35 MHz.
+    # Derived by hand: the wanted output is 105 - 35 = 70 MHz, the difference arm y = x - 35; the sum
+    # y = x + 35 gives 140 MHz at 105 MHz, not the IF.
+    plan = plan_from_dict({"direction": "down", "rf": {"start_hz": "100 MHz", "stop_hz": "110 MHz", "step_hz": "1 MHz"},
+                           "signal": {"bandwidth_hz": "100 kHz"}, "lo": {"mode": "tracking", "side": "low"},
+                           "if": {"center_hz": "70 MHz", "bandwidth_hz": "200 kHz"}, "max_order": 3})
+    ev = evaluate(plan)
+    assert ev.lo_hz[5] == 35 * MHz and ev.f_wanted_out_hz[5] == 70 * MHz  # the engine agrees
+    lines = chart_data(ev, ViewOptions(channel_hz=105 * MHz)).sources["out_lines"]
+    wanted = [k for k, lb in enumerate(lines["label"]) if lb == "(1,1) wanted"]
+    assert len(wanted) == 1
+    k = wanted[0]
+    x0, y0, x1, y1 = lines["x0"][k], lines["y0"][k], lines["x1"][k], lines["y1"][k]
+    assert y0 + (105 - x0) * (y1 - y0) / (x1 - x0) == pytest.approx(70.0)
