@@ -373,8 +373,14 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
         out_low, out_high = plan.if_.f_low_hz, plan.if_.f_high_hz
     else:
         f_out = channels
-        wanted_sign = np.where(channels > lo, 1, -1)
-        f_in = np.abs(channels - lo)
+        # The IF input that gives the channel through (1,1): IF + LO (sum, channel above the LO),
+        # IF - LO (difference, LO below the IF) or LO - IF (difference, LO above the IF); the one
+        # nearest the IF centre is the wanted conversion (a fixed LO below a high IF gives IF - LO).
+        candidates = np.stack([channels - lo, channels + lo, lo - channels])
+        candidates = np.where(candidates > 0, candidates, np.inf)
+        pick = np.argmin(np.abs(candidates - plan.if_.center_hz), axis=0)
+        wanted_sign = np.where(pick == 0, 1, -1)
+        f_in = np.take_along_axis(candidates, pick[None, :], axis=0)[0]
         half = plan.signal.bandwidth_hz / 2
         out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
     output_filter = if_filter if plan.direction == "down" else rf_filter

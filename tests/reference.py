@@ -121,8 +121,9 @@ def wanted_conversion(direction: str, channel_hz: float, lo_hz: float, if_low_hz
     output that lands in the IF passband: the sum ``f + f_LO`` if it alone does, else the
     difference ``|f - f_LO|`` (the usual superheterodyne conversion, also taken when a
     grid or fixed LO leaves neither centre in the passband).  A transmitter (``"up"``)
-    wants the channel out: the IF input is ``|f - f_LO|`` and the wanted is the sum when
-    the channel is above the LO (``f = f_LO + f_IF``), the difference when below.
+    wants the channel out through one of f = f_IF + f_LO (sum), f = f_IF - f_LO or
+    f = f_LO - f_IF (differences): the IF input solving one of them that lies nearest the
+    IF passband centre is the wanted one.
     """
     if direction == "down":
         summ, diff = channel_hz + lo_hz, abs(channel_hz - lo_hz)
@@ -131,7 +132,10 @@ def wanted_conversion(direction: str, channel_hz: float, lo_hz: float, if_low_hz
         if sum_in and not diff_in:
             return channel_hz, summ, 1
         return channel_hz, diff, -1
-    return abs(channel_hz - lo_hz), channel_hz, (1 if channel_hz > lo_hz else -1)
+    centre = 0.5 * (if_low_hz + if_high_hz)
+    options = [(channel_hz - lo_hz, 1), (channel_hz + lo_hz, -1), (lo_hz - channel_hz, -1)]
+    f_if, sign = min((o for o in options if o[0] > 0), key=lambda o: abs(o[0] - centre))
+    return f_if, channel_hz, sign
 
 
 def sweep(plan, limit: int | None = None) -> list[dict]:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from mixchart.analysis import evaluate
@@ -111,3 +112,29 @@ def test_failing_channels_are_listed() -> None:
     image = ev.hits[ev.hits["label"] == "image"]["channel_hz"].to_numpy()
     assert image.min() > 100e6 and image.max() == 108e6
     assert set(failing) == set(ev.channels_hz[ev.worst_margin_db < 0])
+
+
+def test_an_up_converter_with_a_fixed_lo_below_the_if_takes_if_minus_lo() -> None:
+    # Derived by hand: a 1000 MHz IF and a fixed 300 MHz LO give the 700 MHz channel through
+    # IF - LO = 700 MHz, so the wanted IF input is 1000 MHz (difference, LO below the input:
+    # no inversion).  The old rule (sum when the channel is above the LO) took an IF of
+    # 700 - 300 = 400 MHz, outside the IF passband, and every product with it.
+    from mixchart.plan import plan_from_dict
+
+    plan = plan_from_dict({
+        "direction": "up",
+        "rf": {"start_hz": "690 MHz", "stop_hz": "710 MHz", "step_hz": "10 MHz"},
+        "signal": {"bandwidth_hz": "1 MHz"},
+        "lo": {"mode": "fixed", "fixed_hz": "300 MHz"},
+        "if": {"center_hz": "1000 MHz", "bandwidth_hz": "40 MHz"},
+        "max_order": 5,
+    })
+    ev = evaluate(plan)
+    np.testing.assert_allclose(ev._context.f_in_hz, [990e6, 1000e6, 1010e6])
+    assert (ev._context.wanted_sign == -1).all() and ev.summary.inverted == "no"
+    wanted = ev.channel_frame(1)
+    wanted = wanted[wanted["label"] == "wanted"].iloc[0]
+    assert (wanted["rf_harmonic"], wanted["lo_harmonic"], wanted["sign"]) == (1, 1, -1)
+    assert wanted["f_center_hz"] == 700e6
+    # no warning that the channels miss the IF passband: they all fit it
+    assert not any("do not fit the IF passband" in w for w in ev.warnings)
