@@ -286,6 +286,16 @@ class Evaluation:
         return self._context.table
 
     @property
+    def wanted_sign(self) -> np.ndarray:
+        """Per channel, ``+1`` where the wanted (1,1) conversion is the sum, ``-1`` the difference (read-only)."""
+        return self._context.wanted_sign
+
+    @property
+    def f_wanted_in_hz(self) -> np.ndarray:
+        """Per channel, the wanted signal's centre at the mixer input, Hz (RF down, IF up; read-only)."""
+        return self._context.f_in_hz
+
+    @property
     def filters(self) -> tuple[Filter | None, Filter | None]:
         """The built ``(rf, if)`` filters (None where the plan describes none)."""
         return self._context.rf_filter, self._context.if_filter

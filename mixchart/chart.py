@@ -300,10 +300,10 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     lines = output_plane_loci(max_shown, lo_now / o_scale, o_win)
     line_level = table.level_dbc_at(lines.rf_harmonic, lines.lo_harmonic, plan.signal.level_dbm)
     line_cat = _category(-line_level - req).astype(object)
-    wanted_sign = 1 if (ev.f_wanted_out_hz[index] > lo_now and down) or (not down and ch > lo_now) else -1
+    wanted_sign = int(ev.wanted_sign[index])  # the engine's choice, never re-derived here
     is_wanted = (lines.rf_harmonic == 1) & (lines.lo_harmonic == 1) & (lines.sign == wanted_sign)
     # The difference is a V of two arms; only the arm through the wanted input is the wanted conversion.
-    x_w = (ch if down else abs(ch - lo_now)) / o_scale
+    x_w = float(ev.f_wanted_in_hz[index]) / o_scale
     on_arm = (np.minimum(lines.x0, lines.x1) <= x_w * (1 + 1e-9)) & (np.maximum(lines.x0, lines.x1) >= x_w * (1 - 1e-9))
     image_arm = is_wanted & ~on_arm
     is_wanted &= on_arm
@@ -328,7 +328,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     }
     # actual products of the current channel and responses, after the filters
     prod = frame[(frame["order"] <= max_shown) & (frame["level_dbc"] > FLOOR_DBC + 1)]
-    f_in_wanted = ch if down else abs(ch - lo_now)
+    f_in_wanted = float(ev.f_wanted_in_hz[index])
     px = np.where(prod["kind"] == "product", f_in_wanted, prod["f_center_hz"])
     py = np.where(prod["kind"] == "product", prod["f_center_hz"], plan.if_.center_hz)
     if not down:

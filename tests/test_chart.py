@@ -524,9 +524,6 @@ def test_every_column_has_one_length_and_finite_numbers(which, down, up):
         assert len(data.meta[key]) == 4 and all(math.isfinite(v) for v in data.meta[key])
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "chart.py bug: the output plane picks the wanted (1,1) sign as sum when f_IF > f_LO, which is "
-    "wrong for a low-side receiver whose LO is below the IF (f_RF > 2·f_LO); the engine says difference"))
 def test_low_side_receiver_with_the_lo_below_the_if_marks_the_difference_arm_wanted():
     # RF 100-110 MHz, IF 70 MHz, low-side LO = f_RF - 70 MHz: 30-40 MHz.  Channel 105 MHz, f_LO 35 MHz.
     # Derived by hand: the wanted output is 105 - 35 = 70 MHz, the difference arm y = x - 35; the sum
