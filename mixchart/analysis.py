@@ -56,7 +56,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import AnalysisError, one_line
-from .filters import Filter, build_filter
+from .filters import Filter, build_filter, iter_filter_stages
 from .levels import LevelTable, build_table
 from .plan import Plan
 from .products import (
@@ -79,6 +79,10 @@ __all__ = ["Evaluation", "Summary", "evaluate", "frame_records", "FRAME_COLUMNS"
 
 #: Failing (channel, product) rows kept in :attr:`Evaluation.hits`; more are counted, not stored.
 MAX_HIT_ROWS = 50_000
+#: A band filter wider than this fraction of its centre is warned about when it uses the
+#: arithmetic (narrow-band) transform, which is accurate only for narrow filters (common
+#: practice, no source: about 5 %).
+ARITHMETIC_WARN_FRACTION = 0.05
 #: A wanted signal this far (dB) down a fixed filter's skirt is reported in the warnings.
 WANTED_LOSS_WARN_DB = 3.0
 #: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
@@ -1037,6 +1041,26 @@ def _warnings(ctx: _Context) -> list[str]:
             f"{int(misfit.sum())} channel(s) do not fit the IF passband with the signal bandwidth "
             f"(worst: {format_frequency(ctx.channels_hz[k])}, off by {format_frequency(abs(err[k]))})"
         )
+    if plan.lo.mode == "fixed" and plan.lo.step_hz is not None:
+        moved = float(np.max(np.abs(ctx.lo_hz - float(plan.lo.fixed_hz))))
+        if moved > 0:
+            out.append(f"lo.step_hz: the step grid moves the fixed LO {format_frequency(float(plan.lo.fixed_hz))} "
+                       f"by {format_frequency(moved)}; the analysis uses the LO on the grid")
+    if plan.direction == "down" and plan.max_order < 4:
+        out.append(f"max_order: {plan.max_order} < 4, so the half-IF response (2,2) is not analysed")
+    for name, spec in (("filters.rf", plan.filters.rf), ("filters.if", plan.filters.if_),
+                       ("filters.lo", plan.filters.lo)):
+        if spec is None:
+            continue
+        for where, stage in iter_filter_stages(spec, name):
+            centre, width = getattr(stage, "f_center_hz", None), getattr(stage, "bandwidth_hz", None)
+            if getattr(stage, "transform", None) != "arithmetic" or width is None:
+                continue
+            # tracking stages take the channel as centre: judge them at the lowest channel
+            f0 = float(centre) if centre is not None else float(ctx.channels_hz.min())
+            if width / f0 > ARITHMETIC_WARN_FRACTION:
+                out.append(f"{where}.transform: the arithmetic (narrow-band) transform on a "
+                           f"{100 * width / f0:.1f}% wide filter misstates its skirts; use 'geometric'")
     if plan.lo.mode == "tracking" and plan.lo.step_hz is not None:
         worst_step = float(np.max(np.abs(ctx.lo_hz - plan.nominal_lo_hz(ctx.channels_hz))))
         if worst_step > 0:

@@ -1,0 +1,60 @@
+"""Warnings a reviewer expects (issue 8, item 14): each fires on its case and not otherwise."""
+
+from __future__ import annotations
+
+import copy
+
+from mixchart.analysis import evaluate
+from mixchart.plan import plan_from_dict
+
+BASE = {
+    "name": "warnings test plan (invented)",
+    "direction": "down",
+    "rf": {"start_hz": "100 MHz", "stop_hz": "110 MHz", "step_hz": "1 MHz"},
+    "signal": {"bandwidth_hz": "100 kHz"},
+    "lo": {"mode": "tracking", "side": "high"},
+    "if": {"center_hz": "10.7 MHz", "bandwidth_hz": "200 kHz"},
+    "max_order": 5,
+    "filters": {"if": {"kind": "butterworth", "response": "bandpass", "order": 3, "f_center_hz": "10.7 MHz",
+                       "bandwidth_hz": "300 kHz"}},
+}
+
+
+def _warnings(**changes) -> list[str]:
+    data = copy.deepcopy(BASE)
+    for key, value in changes.items():
+        data[key] = value
+    return list(evaluate(plan_from_dict(data)).warnings)
+
+
+def test_the_base_plan_has_none_of_these_warnings():
+    text = " | ".join(_warnings())
+    assert "half-IF" not in text and "transform" not in text and "moves the fixed LO" not in text
+
+
+def test_half_if_not_analysed_below_order_4():
+    # the half-IF response is (2,2): order 4, so max_order 3 leaves it out
+    assert any(w.startswith("max_order: 3 < 4, so the half-IF") for w in _warnings(max_order=3))
+    assert not any("half-IF" in w for w in _warnings(max_order=4))
+
+
+def test_the_step_grid_moving_a_fixed_lo_is_said():
+    # 110.7 MHz on a 1 MHz grid: nearest grid point 111 MHz, moved by 300 kHz (derived by hand)
+    lo = {"mode": "fixed", "fixed_hz": "110.7 MHz", "step_hz": "1 MHz"}
+    found = [w for w in _warnings(lo=lo, rf={"start_hz": "100 MHz", "stop_hz": "100 MHz"}) if "fixed LO" in w]
+    assert found == ["lo.step_hz: the step grid moves the fixed LO 110.7 MHz by 300 kHz; "
+                     "the analysis uses the LO on the grid"]
+    on_grid = {"mode": "fixed", "fixed_hz": "110 MHz", "step_hz": "1 MHz"}
+    assert not any("fixed LO" in w for w in _warnings(lo=on_grid, rf={"start_hz": "99 MHz", "stop_hz": "99 MHz"}))
+
+
+def test_an_arithmetic_transform_on_a_wide_filter_is_said():
+    # a 20 MHz wide preselector at 105 MHz is 19.0 % wide: far beyond the ~5 % the narrow-band
+    # transform suits; a 2 MHz one (1.9 %) is fine
+    wide = {"kind": "butterworth", "response": "bandpass", "order": 3, "f_center_hz": "105 MHz",
+            "bandwidth_hz": "20 MHz", "transform": "arithmetic"}
+    filters = {**BASE["filters"], "rf": wide}
+    assert any(w.startswith("filters.rf.transform: the arithmetic (narrow-band) transform on a 19.0% wide")
+               for w in _warnings(filters=filters))
+    narrow = {**wide, "bandwidth_hz": "2 MHz"}
+    assert not any("transform" in w for w in _warnings(filters={**BASE["filters"], "rf": narrow}))
