@@ -144,7 +144,8 @@ class LoSetting(_Strict):
     )
     fixed_hz: FrequencyHz | None = Field(default=None, description="LO frequency when mode is 'fixed', Hz.")
     step_hz: SpanHz | None = Field(
-        default=None, description="LO synthesiser step, Hz: the LO can only sit on multiples of it."
+        default=None,
+        description="LO synthesiser step, Hz: the LO sits on the nearest multiple of it (exact halves round up).",
     )
 
     @model_validator(mode="after")
@@ -379,7 +380,9 @@ def _channels_and_lo(plan: Plan) -> tuple[np.ndarray, np.ndarray]:
         channels[-1] = min(channels[-1], plan.rf.stop_hz)
     lo = plan.nominal_lo_hz(channels)
     if plan.lo.step_hz is not None:
-        lo = np.round(lo / plan.lo.step_hz) * plan.lo.step_hz
+        # nearest grid point, exact halves up (np.round's halves-to-even would alternate the
+        # sign of the LO error from channel to channel)
+        lo = np.floor(lo / plan.lo.step_hz + 0.5) * plan.lo.step_hz
         if np.any(lo <= 0):
             raise PlanError(
                 f"lo.step_hz: {plan.lo.step_hz!r} snaps the LO to 0 Hz; use a finer step"

@@ -58,3 +58,17 @@ def test_an_arithmetic_transform_on_a_wide_filter_is_said():
                for w in _warnings(filters=filters))
     narrow = {**wide, "bandwidth_hz": "2 MHz"}
     assert not any("transform" in w for w in _warnings(filters={**BASE["filters"], "rf": narrow}))
+
+
+def test_the_lo_grid_rounds_to_nearest_with_halves_up():
+    # Rule stated in plan.LoSetting.step_hz: nearest grid point, exact halves up.  Channels
+    # 100-103 Hz, high-side IF 1 Hz, LO grid 2 Hz: nominal LO 101, 102, 103, 104 Hz, i.e. 50.5,
+    # 51, 51.5, 52 grid steps -> 51, 51, 52, 52 -> 102, 102, 104, 104 Hz (derived by hand;
+    # halves-to-even would give 100, 102, 104, 104 and an LO error alternating in sign).
+    data = {
+        "name": "grid rounding (invented)", "direction": "down",
+        "rf": {"start_hz": 100, "stop_hz": 103, "step_hz": 1},
+        "signal": {"bandwidth_hz": 0.1}, "lo": {"mode": "tracking", "side": "high", "step_hz": 2},
+        "if": {"center_hz": 1, "bandwidth_hz": 0.5}, "max_order": 3,
+    }
+    assert plan_from_dict(data).lo_hz().tolist() == [102.0, 102.0, 104.0, 104.0]
