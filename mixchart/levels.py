@@ -30,7 +30,7 @@ from .errors import LevelTableError, field_error
 from .fileio import read_regular_file
 
 __all__ = [
-    "Topology", "TOPOLOGIES", "FLOOR_DBC", "MAX_HARMONIC", "RF_EXTRAPOLATION_LIMIT_DB",
+    "Topology", "TOPOLOGIES", "FLOOR_DBC", "MAX_HARMONIC", "RF_EXTRAPOLATION_LIMIT_DB", "CSV_MAX_LEVEL_DBC",
     "LO_DRIVE_TOLERANCE_DB", "IDEAL_BALANCED_CONVERSION_LOSS_DB", "IDEAL_SINGLE_ENDED_CONVERSION_LOSS_DB",
     "MixerSpec", "LevelTable", "default_conversion_loss_db", "builtin_table", "read_table_csv", "build_table",
 ]
@@ -53,8 +53,14 @@ _DRIVE_CLIP_DB = 1000.0
 IDEAL_BALANCED_CONVERSION_LOSS_DB = 20.0 * math.log10(math.pi / 2.0)
 #: Ideal switching mixer, 0/1 switching wave: 20·log10(pi) = 9.94 dB (derived by hand).
 IDEAL_SINGLE_ENDED_CONVERSION_LOSS_DB = 20.0 * math.log10(math.pi)
-#: DC term of a 0/1 square wave relative to its fundamental: (1/2)/(2/pi) = pi/4, -2.10 dB.
-_SWITCH_DC_DB = 20.0 * math.log10(math.pi / 4.0)
+#: Switching part of RF feedthrough (m, 0) relative to (m, 1), 0/1 switch s(t) = d + sum c_n cos(n w t):
+#: (m, 0) takes the whole DC term d = 1/2, (m, 1) one sideband's half c_1/2 = 1/pi of the fundamental,
+#: so 20·log10(pi/2) = +3.92 dB (derived by hand; checked against a simulated mixer in the tests).
+_SWITCH_FEEDTHROUGH_DB = 20.0 * math.log10(math.pi / 2.0)
+#: Highest level a CSV table entry may state, dBc: a single-ended RF feedthrough is about +4 dBc and LO
+#: leakage at a low RF reference can be well above 0 dBc; anything higher is taken as a sign slip
+#: (suppression written as a positive number).  Common practice, no source.
+CSV_MAX_LEVEL_DBC = 30.0
 
 
 class MixerSpec(BaseModel):
@@ -299,11 +305,15 @@ def builtin_table(topology: str, max_order: int, *, balance_db: float = 30.0, rf
     y = p(x)·s(t).  Product (m, n) is the m-th RF harmonic times the n-th switching harmonic, so
     its level relative to (1, 1), in dB, is an RF part plus a switching part:
 
-    1. Switching part, n >= 1: -20·log10(n).  Exact for odd n: the Fourier series of a square
-       wave has only odd harmonics, amplitude proportional to 1/n ((1, 3) at -9.54 dBc).  For
-       even n the 1/n envelope is the *unbalanced* level: a 0/1 switching wave of duty d has
-       harmonics proportional to |sin(n·pi·d)|/n, at worst 1/n (derived by hand).  n = 0: DC of
-       a 0/1 wave relative to its fundamental, 20·log10(pi/4) = -2.10 dB (same series).
+    1. Switching part, relative to n = 1, for a switch s(t) = d + sum of c_n·cos(n·w_LO·t):
+       each product (m, n >= 1) is one sideband and takes c_n/2, so n >= 1 gives
+       -20·log10(n).  Exact for odd n: the Fourier series of a square wave has only odd
+       harmonics, amplitude proportional to 1/n ((1, 3) at -9.54 dBc).  For even n the 1/n
+       envelope is the *unbalanced* level: a 0/1 switching wave of duty d has harmonics
+       proportional to |sin(n·pi·d)|/n, at worst 1/n (derived by hand).  n = 0, RF feedthrough
+       (m, 0): the product takes the whole DC term d, not half, so for a 0/1 switch at 50 %
+       duty d/(c_1/2) = (1/2)/(1/pi) = pi/2: +3.92 dB above (m, 1), for every m (derived by
+       hand; the single-ended (1, 0) is +3.92 dBc).
     2. RF part, m >= 1: -(m - 1)·``rf_harmonic_step_db`` at the reference drive.  A diode mixer
        has no closed form; this is a rule of thumb, 20 dB per order by default (common
        practice, no source).
@@ -312,11 +322,15 @@ def builtin_table(topology: str, max_order: int, *, balance_db: float = 30.0, rf
        ``rf_ref_dbm - conversion_loss_db``.  (0, 0) is never a product.
     4. Balance: double-balanced ideally cancels products with m even or n even (so also RF
        feedthrough (m, 0) and LO leakage (0, n)); single-balanced, taken as the signal path
-       switched by a +/-1 LO wave, cancels n even (so also (m, 0)) but not m even; single-ended
-       cancels nothing.  From memory (e.g. S. A. Maas, *Microwave Mixers*: a double-balanced
+       switched by a +/-1 LO wave (no DC term), cancels n even (so also (m, 0)) but not m even;
+       single-ended cancels nothing.  From memory (e.g. S. A. Maas, *Microwave Mixers*: a double-balanced
        mixer passes only products with m and n both odd).  Real balance leaves a cancelled
        product at its unbalanced level minus ``balance_db`` (20-40 dB common practice, no
        source); ``balance_db=inf`` gives the ideal table, cancelled products at :data:`FLOOR_DBC`.
+       E.g. double-balanced (1, 0) at 30 dB balance: 3.92 - 30 = -26.08 dBc.
+
+    All levels are dBc (dB relative to the wanted (1, 1) output amplitude) at the reference
+    drives; conversion loss and drives as below.
 
     Parameters
     ----------
@@ -346,6 +360,8 @@ def builtin_table(topology: str, max_order: int, *, balance_db: float = 30.0, rf
     --------
     >>> round(float(builtin_table("double_balanced", 5, balance_db=math.inf).level_dbc[1, 3]), 2)
     -9.54
+    >>> round(float(builtin_table("single_ended", 5).level_dbc[1, 0]), 2)
+    3.92
     """
     _check_topology(topology)
     whole = isinstance(max_order, (int, np.integer)) and not isinstance(max_order, bool)
@@ -366,7 +382,7 @@ def builtin_table(topology: str, max_order: int, *, balance_db: float = 30.0, rf
 
     h = np.arange(int(max_order) + 1)
     m, n = h[:, None], h[None, :]
-    switch_db = np.where(n >= 1, -20.0 * np.log10(np.maximum(n, 1)), _SWITCH_DC_DB)
+    switch_db = np.where(n >= 1, -20.0 * np.log10(np.maximum(n, 1)), _SWITCH_FEEDTHROUGH_DB)  # rule 1
     unbalanced = -(m - 1.0) * rf_harmonic_step_db + switch_db
     wanted_dbm = rf_ref_dbm - conversion_loss_db
     unbalanced[0, :] = lo_ref_dbm - unbalanced_lo_isolation_db + switch_db[0, :] - wanted_dbm
@@ -417,7 +433,8 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
     Leading ``#`` lines hold ``key = value`` settings (``rf_ref_dbm`` and ``lo_ref_dbm``
     required, dBm at the mixer ports; ``description`` optional) or free-text notes.  The header
     row is ``m\\n`` then the LO harmonics n; each row starts with its RF harmonic m.  Entries are
-    dBc relative to the wanted output: (1, 1) is 0 or blank, others in [:data:`FLOOR_DBC`, 0],
+    dBc relative to the wanted output: (1, 1) is 0 or blank, others in [:data:`FLOOR_DBC`,
+    :data:`CSV_MAX_LEVEL_DBC`] (-300 to +30 dBc; a single-ended RF feedthrough is about +4 dBc),
     (0, 0) blank.  Blank and missing trailing cells take the fallback's value moved to this
     table's RF reference by the (m - 1) dB/dB rule; ``measured`` records which entries were
     measured.  Entries beyond the fallback's harmonic range are validated but not kept.
@@ -438,7 +455,7 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
     LevelTableError
         One line naming the file, line, row m / column n and the bad value: unreadable file; bad
         setting or header; non-integer, negative or duplicate index; non-numeric cell; (1, 1) not
-        0 dBc; entry above 0 dBc or below the floor; a value at (0, 0).
+        0 dBc; entry above :data:`CSV_MAX_LEVEL_DBC` or below the floor; a value at (0, 0).
     """
     path = Path(path)
     name = path.name
@@ -608,8 +625,9 @@ def _parse_level(cell: str, where: str, m: int, n: int) -> float:
         raise field_error(LevelTableError, where, cell, "blank: (0, 0) is not a product")
     if (m, n) == (1, 1) and level != 0.0:
         raise field_error(LevelTableError, where, cell, "0 dBc: levels are relative to the wanted (1, 1) output")
-    if level > 0.0:
-        raise field_error(LevelTableError, where, cell, "<= 0 dBc (write suppression as a negative level)")
+    if level > CSV_MAX_LEVEL_DBC:
+        raise field_error(LevelTableError, where, cell,
+                          f"<= {CSV_MAX_LEVEL_DBC:g} dBc (write suppression as a negative level)")
     if level < FLOOR_DBC:
         raise field_error(LevelTableError, where, cell, f">= {FLOOR_DBC:g} dBc")
     return level
