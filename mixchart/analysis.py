@@ -999,7 +999,7 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         worst_by_product=wbp,
         hits=hit_frame,
         summary=summary,
-        warnings=tuple(_warnings(ctx)),
+        warnings=tuple(_warnings(ctx) + _span_warnings(ctx, wbp)),
         context=ctx,
     )
 
@@ -1016,6 +1016,51 @@ def _nan_error(block: _Block, start: int) -> AnalysisError:
         f"{format_frequency(float(r['channel_hz']))} (channel index {start + row}) has no number (NaN) for its "
         "level; check the field's values there (a NaN is never reported as a margin)"
     ))
+
+
+def _measured_stages(filt: Filter | None, field: str):
+    """Every measured (Touchstone) filter inside ``filt``, with its dotted field name."""
+    stages = getattr(filt, "stages", None)
+    if stages is not None:
+        for i, stage in enumerate(stages):
+            yield from _measured_stages(stage, f"{field}.stages.{i}")
+    elif filt is not None and hasattr(filt, "table_db"):
+        yield field, filt
+
+
+def _span_warnings(ctx: _Context, worst_by_product: pd.DataFrame) -> list[str]:
+    """Say when measured data was read outside its span, and how many worst-case rows it touched.
+
+    A Touchstone filter asked outside its file's span uses its policy (``outside``: the end
+    values held, or an error); held values are an assumption, so every worst-case row whose
+    band reaches outside the span is counted and named here, never silently.
+    """
+    down = ctx.plan.direction == "down"
+    out: list[str] = []
+    # (filter, field, the frequencies it is read at in the worst-case rows, which rows)
+    kinds = worst_by_product["kind"].to_numpy()
+    low, high = worst_by_product["f_low_hz"].to_numpy(), worst_by_product["f_high_hz"].to_numpy()
+    uses = ((ctx.rf_filter, "filters.rf", "response" if down else "product"),
+            (ctx.if_filter, "filters.if", "product" if down else None))
+    for filt, field, kind in uses:
+        for name, stage in _measured_stages(filt, field):
+            f0, f1 = float(stage.f_hz[0]), float(stage.f_hz[-1])
+            wanted = ctx.channels_hz if field == "filters.rf" else (ctx.f_out_hz if down else ctx.f_in_hz)
+            rows = kinds == kind if kind else np.zeros(kinds.size, bool)
+            outside = rows & ((low < f0) | (high > f1))
+            n_wanted = int(np.count_nonzero((wanted < f0) | (wanted > f1)))
+            if outside.any() or n_wanted:
+                parts = []
+                if outside.any():
+                    parts.append(f"{int(outside.sum())} of {int(rows.sum())} worst-case rows "
+                                 f"({format_frequency(float(low[outside].min()))} to "
+                                 f"{format_frequency(float(high[outside].max()))})")
+                if n_wanted:
+                    parts.append(f"the wanted signal on {n_wanted} channel(s)")
+                out.append(f"{name}: {' and '.join(parts)} read outside the file's span "
+                           f"{format_frequency(f0)} to {format_frequency(f1)}; the end values are held there "
+                           "(an assumption: measure wider, or set outside='error')")
+    return out
 
 
 def _warnings(ctx: _Context) -> list[str]:

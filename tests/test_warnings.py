@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import copy
 
+import numpy as np
+
 from mixchart.analysis import evaluate
 from mixchart.plan import plan_from_dict
 
@@ -72,3 +74,26 @@ def test_the_lo_grid_rounds_to_nearest_with_halves_up():
         "if": {"center_hz": 1, "bandwidth_hz": 0.5}, "max_order": 3,
     }
     assert plan_from_dict(data).lo_hz().tolist() == [102.0, 102.0, 104.0, 104.0]
+
+
+def test_measured_data_read_outside_its_span_is_counted(tmp_path):
+    # A Touchstone IF filter measured only over 10.0-11.4 MHz (invented data, flat 1 dB loss).
+    # The FM-like receiver's products land far outside that span (e.g. the (1,0) feedthrough at
+    # 100-110 MHz), so their losses use the held end value: the warning counts those rows.
+    f_hz = np.linspace(10.0e6, 11.4e6, 15)
+    lines = ["# Hz S MA R 50"] + [f"{f:.6g} 0 0 0.891 0 0.891 0 0 0" for f in f_hz]
+    (tmp_path / "if.s2p").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    data = copy.deepcopy(BASE)
+    data["filters"] = {"if": {"kind": "touchstone", "path": str(tmp_path / "if.s2p")}}
+    result = evaluate(plan_from_dict(data))
+    found = [w for w in result.warnings if w.startswith("filters.if:")]
+    assert len(found) == 1 and "read outside the file's span 10 MHz to 11.4 MHz" in found[0]
+    products = result.worst_by_product[result.worst_by_product["kind"] == "product"]
+    outside = ((products["f_low_hz"] < 10.0e6) | (products["f_high_hz"] > 11.4e6)).sum()
+    assert outside > 0 and f"{outside} of {len(products)} worst-case rows" in found[0]
+    # measured wide enough: no warning
+    wide = np.linspace(1e3, 1e9, 200)
+    lines = ["# Hz S MA R 50"] + [f"{f:.9g} 0 0 0.891 0 0.891 0 0 0" for f in wide]
+    (tmp_path / "wide.s2p").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    data["filters"] = {"if": {"kind": "touchstone", "path": str(tmp_path / "wide.s2p")}}
+    assert not any(w.startswith("filters.if:") for w in evaluate(plan_from_dict(data)).warnings)
