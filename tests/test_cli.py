@@ -24,7 +24,8 @@ REPO = Path(__file__).resolve().parents[1]
 
 #: An invented receiver that meets its (modest) requirement: a brick-wall low-pass preselector
 #: at 115 MHz stops every image (100-110 MHz channels + 21.4 MHz = 121.4 MHz and up), and the
-#: strongest remaining spur, IF feedthrough at -32.1 dBc, clears 9 dB (see test_analysis).
+#: tightest remaining response, the (3,1) at -40 dBc (13.3 dB input-referred rejection), clears
+#: 9 dB (see test_analysis).
 PASSING_PLAN = {
     "name": "passing receiver",
     "direction": "down",
