@@ -83,6 +83,9 @@ MAX_HIT_ROWS = 50_000
 #: arithmetic (narrow-band) transform, which is accurate only for narrow filters (common
 #: practice, no source: about 5 %).
 ARITHMETIC_WARN_FRACTION = 0.05
+#: An RF drive at the mixer closer than this to the LO drive is warned about as compression,
+#: dB (common practice, no source).
+COMPRESSION_MARGIN_DB = 10.0
 #: A wanted signal this far (dB) down a fixed filter's skirt is reported in the warnings.
 WANTED_LOSS_WARN_DB = 3.0
 #: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
@@ -1137,8 +1140,34 @@ def _warnings(ctx: _Context) -> list[str]:
     elif plan.direction == "down" and ctx.if_filter is None:
         out.append("filters.if: no IF filter described; the IF passband is taken as an ideal brick wall "
                    "(products outside it are not counted)")
-    drive = plan.signal.level_dbm
+    # Drives at the mixer, after the input-side filter's loss: the wanted signal on every
+    # channel, and (receivers) the interferer at its least-loss point, the channel itself.
+    in_filter = ctx.rf_filter if plan.direction == "down" else ctx.if_filter
+    in_field = "filters.rf" if plan.direction == "down" else "filters.if"
+    centre = ctx.channels_hz if (in_filter is not None and in_filter.tracks_channel) else None
+    loss = np.zeros_like(ctx.f_in_hz) if in_filter is None else _capped(
+        in_filter.atten_db(ctx.f_in_hz, centre), in_field, ctx.f_in_hz)
+    drive = plan.signal.level_dbm - loss
     out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))
+    if in_filter is not None and float(loss.max()) > WANTED_LOSS_WARN_DB:
+        k = int(np.argmax(loss))
+        out.append(f"signal.level_dbm: the wanted drive at the mixer is {drive[k]:.1f} dBm on channel "
+                   f"{format_frequency(float(ctx.channels_hz[k]))}, {loss[k]:.1f} dB below the signal level "
+                   f"after {in_field}")
+    interferer = plan.signal.interferer_level_dbm
+    if plan.direction == "down" and interferer is not None:
+        worst_in = interferer - (0.0 if in_filter is None else float(np.min(loss)))  # pessimistic: least loss
+        note = ctx.table.drive_warnings(worst_in, plan.mixer.lo_drive_dbm)[:1]
+        if note and note[0].startswith("RF drive"):
+            out.append(f"signal.interferer_level_dbm: the interferer's {note[0]}")
+    # Compression: a switching mixer stays near its small-signal levels only with the RF drive
+    # well below the LO drive (common practice, no source: about 10 dB below).
+    strongest = max(float(np.max(drive)), -math.inf if interferer is None or plan.direction != "down"
+                    else interferer - (0.0 if in_filter is None else float(np.min(loss))))
+    if strongest > plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB:
+        out.append(f"mixer.lo_drive_dbm: an RF drive of {strongest:.1f} dBm at the mixer is within "
+                   f"{COMPRESSION_MARGIN_DB:g} dB of the {plan.mixer.lo_drive_dbm:g} dBm LO drive: the mixer "
+                   "compresses and the levels are optimistic there")
     note = ctx.table.fallback_note(plan.max_order)
     if note:
         out.append(note)

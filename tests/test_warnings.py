@@ -97,3 +97,22 @@ def test_measured_data_read_outside_its_span_is_counted(tmp_path):
     (tmp_path / "wide.s2p").write_text("\n".join(lines) + "\n", encoding="utf-8")
     data["filters"] = {"if": {"kind": "touchstone", "path": str(tmp_path / "wide.s2p")}}
     assert not any(w.startswith("filters.if:") for w in evaluate(plan_from_dict(data)).warnings)
+
+
+def test_drives_are_checked_at_the_mixer_for_the_wanted_and_the_interferer():
+    # Built-in table at 0 dBm RF (MixerSpec default), +7 dBm LO.  A +20 dBm interferer reaches
+    # the mixer 13 dB above the LO drive (no preselector): compression, and 20 dB beyond the
+    # table's reference (> RF_EXTRAPOLATION_LIMIT_DB = 10 dB).  Derived by hand.
+    found = _warnings(signal={"bandwidth_hz": "100 kHz", "level_dbm": 0, "interferer_level_dbm": 20})
+    assert any(w.startswith("signal.interferer_level_dbm: the interferer's RF drive 20 dBm is 20.0 dB")
+               for w in found)
+    assert any(w.startswith("mixer.lo_drive_dbm: an RF drive of 20.0 dBm") for w in found)
+    # A 15 dB loss ahead of the mixer (a fixed band-pass far off the channels) lowers the wanted
+    # drive: -30 - 15 = -45 dBm at 100 MHz, said with the filter named
+    lossy = {"kind": "brickwall", "response": "bandpass", "f_center_hz": "300 MHz", "bandwidth_hz": "10 MHz",
+             "stop_atten_db": 15}
+    found = _warnings(filters={**BASE["filters"], "rf": lossy}, signal={"bandwidth_hz": "100 kHz", "level_dbm": -30})
+    assert any(w.startswith("signal.level_dbm: the wanted drive at the mixer is -45.0 dBm") for w in found)
+    # the base plan (-30 dBm, no preselector) says none of these
+    quiet = " | ".join(_warnings())
+    assert "compresses" not in quiet and "interferer" not in quiet and "wanted drive" not in quiet
