@@ -57,7 +57,7 @@ import pandas as pd
 
 from .errors import AnalysisError, one_line
 from .filters import Filter, build_filter, iter_filter_stages
-from .levels import LevelTable, build_table
+from .levels import RF_EXTRAPOLATION_LIMIT_DB, LevelTable, build_table
 from .plan import Plan
 from .products import (
     LABELS,
@@ -1154,16 +1154,16 @@ def _warnings(ctx: _Context) -> list[str]:
         out.append(f"signal.level_dbm: the wanted drive at the mixer is {drive[k]:.1f} dBm on channel "
                    f"{format_frequency(float(ctx.channels_hz[k]))}, {loss[k]:.1f} dB below the signal level "
                    f"after {in_field}")
+    strongest = float(drive.max())
     interferer = plan.signal.interferer_level_dbm
     if plan.direction == "down" and interferer is not None:
-        worst_in = interferer - (0.0 if in_filter is None else float(np.min(loss)))  # pessimistic: least loss
-        note = ctx.table.drive_warnings(worst_in, plan.mixer.lo_drive_dbm)[:1]
-        if note and note[0].startswith("RF drive"):
-            out.append(f"signal.interferer_level_dbm: the interferer's {note[0]}")
+        u_mix = interferer - float(loss.min())  # pessimistic: at the preselector's least loss
+        strongest = max(strongest, u_mix)
+        if abs(u_mix - ctx.table.rf_ref_dbm) > RF_EXTRAPOLATION_LIMIT_DB:
+            out.append("signal.interferer_level_dbm: the interferer's " + ctx.table.drive_warnings(
+                u_mix, ctx.table.lo_ref_dbm)[0])
     # Compression: a switching mixer stays near its small-signal levels only with the RF drive
     # well below the LO drive (common practice, no source: about 10 dB below).
-    strongest = max(float(np.max(drive)), -math.inf if interferer is None or plan.direction != "down"
-                    else interferer - (0.0 if in_filter is None else float(np.min(loss))))
     if strongest > plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB:
         out.append(f"mixer.lo_drive_dbm: an RF drive of {strongest:.1f} dBm at the mixer is within "
                    f"{COMPRESSION_MARGIN_DB:g} dB of the {plan.mixer.lo_drive_dbm:g} dBm LO drive: the mixer "
