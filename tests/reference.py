@@ -34,6 +34,14 @@ from __future__ import annotations
 
 import math
 
+from reference_filters import (  # noqa: F401  (re-exported for the tests)
+    FilterLoss,
+    butterworth_loss_db,
+    chebyshev1_loss_db,
+    tuned_circuit_loss_db,
+)
+from reference_levels import DRIVE_CLIP_DB, FLOOR_DBC, TableLevels  # noqa: F401
+
 
 def product_list(f_in_hz: float, f_lo_hz: float, bw_in_hz: float, max_order: int) -> list[tuple]:
     """Every output product of one channel: ``(m, n, sign, centre, low, high)`` in Hz."""
@@ -194,149 +202,6 @@ def sweep(plan, limit: int | None = None) -> list[dict]:
 
 # ------------------------------------------------------------------ levels and margins
 
-#: Level of a vanished product, dBc: mixchart.levels.FLOOR_DBC, restated from the
-#: levels.py docstring ("sit at the finite floor FLOOR_DBC = -300 dBc").
-FLOOR_DBC = -300.0
-#: LevelTable.level_dbc_at docstring: "offsets from the reference are clipped to +/-1000 dB".
-DRIVE_CLIP_DB = 1000.0
-_DB_PER_DECADE_POWER = 10.0
-
-
-def _db_one_plus(log10_x: float) -> float:
-    """``10·log10(1 + x)`` in dB given ``log10(x)``, without overflow (derived by hand)."""
-    if log10_x == math.inf:
-        return math.inf
-    if log10_x > 0.0:  # 10 log10(x (1 + 1/x)) = 10 log10 x + 10 log10(1 + 1/x)
-        return _DB_PER_DECADE_POWER * (log10_x + math.log10(1.0 + 10.0 ** -log10_x))
-    return _DB_PER_DECADE_POWER * math.log1p(10.0**log10_x) / math.log(10.0)
-
-
-def butterworth_loss_db(omega: float, order: int) -> float:
-    """Butterworth low-pass prototype loss ``10·log10(1 + Omega^(2n))``, dB.
-
-    Textbook formula (from memory: A. B. Williams & F. J. Taylor, *Electronic Filter
-    Design Handbook*, ch. 2, the Butterworth magnitude ``|H|^2 = 1/(1 + Omega^2n)``).
-    """
-    if omega == 0.0:
-        return 0.0
-    return _db_one_plus(2 * order * math.log10(omega))
-
-
-def chebyshev1_loss_db(omega: float, order: int, ripple_db: float) -> float:
-    """Chebyshev type I prototype loss ``10·log10(1 + eps²·T_n(Omega)²)``, dB.
-
-    ``eps² = 10^(ripple/10) - 1``; ``T_n(x) = cos(n·acos x)`` for ``|x| <= 1`` and
-    ``cosh(n·acosh x)`` above (textbook formula, from memory: Williams & Taylor, ch. 2).
-    """
-    eps_sq = 10.0 ** (ripple_db / 10.0) - 1.0
-    if omega <= 1.0:
-        t = math.cos(order * math.acos(omega))
-        return _DB_PER_DECADE_POWER * math.log10(1.0 + eps_sq * t * t)
-    if omega == math.inf:
-        return math.inf
-    x = order * math.acosh(omega)
-    log10_t = (x + math.log1p(math.exp(-2.0 * x)) - math.log(2.0)) / math.log(10.0)  # log10 cosh x
-    return _db_one_plus(math.log10(eps_sq) + 2.0 * log10_t)
-
-
-def tuned_circuit_loss_db(f_hz: float, f0_hz: float, q_loaded: float, stages: int) -> float:
-    """``stages`` single tuned circuits: each ``10·log10(1 + (Q·(f/f0 - f0/f))²)``, dB.
-
-    Textbook formula (from memory: Kennedy & Davis, *Electronic Communication Systems*,
-    the image-rejection ratio ``alpha = sqrt(1 + Q²·rho²)``, ``rho = f/f0 - f0/f``).
-    """
-    if f_hz == 0.0 or f_hz == math.inf:
-        return math.inf
-    q_rho = abs(q_loaded * (f_hz / f0_hz - f0_hz / f_hz))
-    if q_rho == 0.0:
-        return 0.0
-    return stages * _db_one_plus(2.0 * math.log10(q_rho))
-
-
-def _omega(spec, f_hz: float, f0_hz: float | None, arithmetic: bool) -> float:
-    """Normalised prototype frequency of a low/high/band-pass/band-stop filter.
-
-    Standard transforms (as scipy.signal.lp2hp/lp2bp/lp2bs; filters.PrototypeFilter docstring):
-    low-pass ``f/f_e``; high-pass ``f_e/f``; band-pass ``|f/f0 - f0/f|·f0/BW`` (geometric) or
-    ``2|f - f0|/BW`` (arithmetic, narrow-band); band-stop the reciprocal of the band-pass value.
-    """
-    response = spec.response
-    if response == "lowpass":
-        return f_hz / spec.f_edge_hz
-    if response == "highpass":
-        return math.inf if f_hz == 0.0 else spec.f_edge_hz / f_hz
-    if arithmetic:
-        band = abs(f_hz - f0_hz) * 2.0 / spec.bandwidth_hz
-    elif f_hz == 0.0 or f_hz == math.inf:
-        band = math.inf
-    else:
-        band = abs(f_hz / f0_hz - f0_hz / f_hz) * f0_hz / spec.bandwidth_hz
-    if response == "bandpass":
-        return band
-    return math.inf if band == 0.0 else 1.0 / band
-
-
-class FilterLoss:
-    """Loss of a plan's filter at one frequency, dB (positive = loss), plain floats.
-
-    Butterworth, Chebyshev type I, tuned-circuit, brick-wall and cascade filters are
-    re-derived from their textbook formulas above; elliptic and Touchstone filters call
-    :meth:`mixchart.filters.Filter.atten_db` on one scalar at a time.  A filter (or a
-    stage of a cascade) with ``tracks_channel`` is centred on the ``channel_hz`` given
-    (mixchart.filters docstring: "their centre is then given at evaluation time").
-    """
-
-    def __init__(self, spec, base_dir=None) -> None:
-        self.spec = spec
-        self.base_dir = base_dir
-        self.stages = list(spec.stages) if spec.kind == "cascade" else [spec]
-        self.tracks_channel = any(getattr(stage, "tracks_channel", False) for stage in self.stages)
-        self._built = {}
-
-    def least_loss_hz(self) -> float:
-        """Where this fixed filter passes best, nominally (analysis docstring: "the filter's own
-        passband centre ... 0 Hz for a low-pass, the top of the band for a high-pass"): a band-pass
-        or tuned circuit's centre; 0 for a low-pass or band-stop; infinity for a high-pass.
-        Cascades and measured filters use the library's nominal passband (its middle)."""
-        spec = self.spec
-        if spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass":
-            return float(spec.f_center_hz)
-        if getattr(spec, "response", None) in ("lowpass", "bandstop"):
-            return 0.0
-        if getattr(spec, "response", None) == "highpass":
-            return math.inf
-        from mixchart.filters import build_filter
-
-        low, high = build_filter(spec, base_dir=self.base_dir).passband_hz()
-        if low <= 0.0:
-            return 0.0
-        return math.inf if math.isinf(high) else 0.5 * (low + high)
-
-    def __call__(self, f_hz: float, channel_hz: float | None) -> float:
-        return sum(self._stage(stage, i, f_hz, channel_hz) for i, stage in enumerate(self.stages))
-
-    def _stage(self, spec, index: int, f_hz: float, channel_hz: float | None) -> float:
-        f0 = getattr(spec, "f_center_hz", None)
-        if getattr(spec, "tracks_channel", False) and channel_hz is not None:
-            f0 = channel_hz
-        kind = spec.kind
-        if kind == "tuned":
-            return tuned_circuit_loss_db(f_hz, f0, spec.q_loaded, spec.stages)
-        if kind == "brickwall":  # filters.BrickWall: 0 dB edge to edge (edges included), stop_atten_db outside
-            return 0.0 if _omega(spec, f_hz, f0, arithmetic=True) <= 1.0 else spec.stop_atten_db
-        if kind == "butterworth":
-            return butterworth_loss_db(_omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order)
-        if kind == "chebyshev1":
-            return chebyshev1_loss_db(
-                _omega(spec, f_hz, f0, spec.transform == "arithmetic"), spec.order, spec.ripple_db
-            )
-        # elliptic, touchstone: the library's own response, one scalar at a time
-        from mixchart.filters import build_filter
-
-        if index not in self._built:
-            self._built[index] = build_filter(spec, base_dir=self.base_dir)
-        built = self._built[index]
-        return float(built.atten_db(f_hz, f0 if built.tracks_channel else None))
 
 
 def product_label(direction: str, m: int, n: int, sign: int, wanted_sign: int) -> str:
@@ -446,9 +311,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     """
     from mixchart.levels import build_table  # input data only: the mixer's level table
 
-    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
-    level_table = table.level_dbc.tolist()  # plain nested lists of floats, read once
-    rf_ref = float(table.rf_ref_dbm)
+    table_at = TableLevels(build_table(plan.mixer, plan.max_order, base_dir=base_dir))
     down = plan.direction == "down"
     req = plan.requirement.min_rejection_db
     p_w = plan.signal.level_dbm
@@ -467,14 +330,6 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     input_filter, output_filter = (rf_filter, if_filter) if down else (if_filter, rf_filter)
     if output_filter is not None and not output_filter.tracks_channel:
         out_target = output_filter.least_loss_hz()
-
-    def table_at(m: int, n: int, drive_dbm: float) -> float:
-        t = level_table[m][n]
-        if t <= FLOOR_DBC:
-            return FLOOR_DBC
-        offset = min(max(drive_dbm - rf_ref, -DRIVE_CLIP_DB), DRIVE_CLIP_DB)
-        level = t + (m - 1) * offset
-        return level if level > FLOOR_DBC else FLOOR_DBC
 
     inf = math.inf
     channels = []

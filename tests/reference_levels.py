@@ -1,0 +1,35 @@
+"""Mixer level-table rules for the brute-force reference (tests/reference.py): plain floats.
+
+The level table itself is input data (:func:`mixchart.levels.build_table`, read once into
+plain lists); the rules for reading it at a drive are restated here from the documented
+level model (:meth:`mixchart.levels.LevelTable.level_dbc_at` docstring; DEVELOPERS.md).
+Kept apart from tests/reference.py so that the level rules have one home.
+"""
+
+from __future__ import annotations
+
+#: Level of a vanished product, dBc: mixchart.levels.FLOOR_DBC, restated from the
+#: levels.py docstring ("sit at the finite floor FLOOR_DBC = -300 dBc").
+FLOOR_DBC = -300.0
+#: LevelTable.level_dbc_at docstring: "offsets from the reference are clipped to +/-1000 dB".
+DRIVE_CLIP_DB = 1000.0
+
+
+class TableLevels:
+    """``T(m, n) + (m - 1)·(P - P_ref)`` in plain floats, for a built :class:`~mixchart.levels.LevelTable`.
+
+    The offset is clipped to +/-1000 dB, the result never goes below the floor -300 dBc, and
+    vanished entries (at the floor) stay there.
+    """
+
+    def __init__(self, table) -> None:
+        self.level_table = table.level_dbc.tolist()  # plain nested lists of floats, read once
+        self.rf_ref = float(table.rf_ref_dbm)
+
+    def __call__(self, m: int, n: int, drive_dbm: float) -> float:
+        t = self.level_table[m][n]
+        if t <= FLOOR_DBC:
+            return FLOOR_DBC
+        offset = min(max(drive_dbm - self.rf_ref, -DRIVE_CLIP_DB), DRIVE_CLIP_DB)
+        level = t + (m - 1) * offset
+        return level if level > FLOOR_DBC else FLOOR_DBC
