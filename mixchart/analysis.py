@@ -73,6 +73,7 @@ from .products import (
     response_family,
     response_labels,
 )
+from .requirements import Limits, resolve_limits
 from .units import format_frequency
 
 __all__ = ["Evaluation", "Summary", "evaluate", "frame_records", "FRAME_COLUMNS", "MAX_HIT_ROWS"]
@@ -115,9 +116,13 @@ FRAME_COLUMNS: dict[str, str] = {
     "rf_atten_db": "RF filter loss applied (response: m·A(f_in) - A(f_wanted); up: output filter), dB",
     "if_atten_db": "IF filter loss applied relative to the wanted output, dB",
     "level_dbc": "output level relative to the wanted output, dBc",
+    "level_dbm": "output level, dBm (level_dbc plus the wanted output level; responses at the interferer level)",
     "rejection_db": "response: how much stronger than the wanted an unwanted input must be for an equal "
     "output, (P_u - P_w) - level_dbc/m (input-referred); product: -level_dbc",
-    "margin_db": "rejection_db - min_rejection_db; >= 0 passes",
+    "requirement": "the limit the margin is taken against: response rejection, output spur or a mask segment",
+    "limit": "that limit's value, in limit_unit",
+    "limit_unit": "dB (input-referred rejection), dBc or dBm (output level)",
+    "margin_db": "response: rejection_db - limit; product: limit - level (dBc or dBm); >= 0 passes",
     "passes": "margin_db >= 0",
     "extra_rf_db": "extra RF-filter rejection at the spur that would make it pass, dB (NaN: none needed or no help)",
     "extra_if_db": "extra IF/output-filter rejection that would make it pass, dB (NaN: none needed or no help)",
@@ -284,7 +289,7 @@ class Evaluation:
         if not 0 <= index < self.channels_hz.size:
             raise IndexError(f"channel index {index} is out of range 0..{self.channels_hz.size - 1}")
         block = _evaluate_block(self._context, slice(index, index + 1))
-        frame = _frame(block, np.ones_like(block.margin_db, dtype=bool))
+        frame = _frame(block, np.ones_like(block.margin_db, dtype=bool), self._context.limits)
         return frame.sort_values("margin_db", kind="stable").reset_index(drop=True)
 
     @property
@@ -368,6 +373,7 @@ class _Context:
     out_high_hz: float
     out_filter_target_hz: float  # where the fixed output filter loses least
     lo_filter: Filter | None = None  # checked for the LO drive it takes away; not applied to levels
+    limits: Limits | None = None  # the requirement's limits for this direction
 
 
 def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
@@ -404,7 +410,7 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
     target = _least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
     channels, lo, f_in, f_out, wanted_sign = (_read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
     return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high,
-                    target, lo_filter=lo_filter)
+                    target, lo_filter=lo_filter, limits=resolve_limits(plan.requirement, plan.direction))
 
 
 def _rel_atten(
@@ -420,6 +426,58 @@ def _rel_atten(
     a_ref = _capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))), field,
                     f_ref_hz)
     return a - a_ref
+
+
+def _band_rel_atten(ctx: _Context, filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,
+                    centre: np.ndarray | None, field: str) -> np.ndarray:
+    """Output-filter loss of product bands [f_low, f_high] (Cb, K) less its loss at the wanted output, dB.
+
+    The product reaches the output through the least-loss point of its band: the point nearest
+    the filter's own passband centre (the channel, if it tracks it).
+    """
+    c = None if centre is None else centre[:, None]
+    target = c if (c is not None and filt.tracks_channel) else ctx.out_filter_target_hz
+    nearest = np.clip(target, f_low, f_high)
+    return _rel_atten(filt, nearest, f_ref[:, None], c, field)
+
+
+def _mask_margins(ctx: _Context, level: np.ndarray, filt: Filter | None, p_low: np.ndarray, p_high: np.ndarray,
+                  f_out: np.ndarray, centre: np.ndarray | None, field: str, wanted_out_dbm: np.ndarray,
+                  out: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A transmitter's product margins against its emission mask, written into ``out`` (Cb, K).
+
+    Each product band is cut into the mask's pieces (segments and the gaps between them); each
+    part is judged against its piece's limit after the output filter's loss over that part, and
+    the margin is the smallest.  Returns the level (dBc), the filter loss and the piece index
+    (+1, the ``requirement`` code) of the limiting part.
+    """
+    lim = ctx.limits
+    shape = out.shape
+    out.fill(np.inf)
+    best_level = np.broadcast_to(level, shape).copy()
+    best_atten = np.zeros(shape)
+    best_req = np.ones(shape, dtype=np.int8)
+    for i in range(lim.n_pieces):
+        low = np.maximum(p_low, lim.pieces_low_hz[i])
+        high = np.minimum(p_high, lim.pieces_high_hz[i])
+        hit = low <= high
+        if not hit.any():
+            continue
+        if filt is None:
+            atten = np.zeros(shape)
+        else:
+            atten = _band_rel_atten(ctx, filt, np.where(hit, low, p_low), np.where(hit, high, p_high), f_out, centre,
+                                    field)
+        piece_level = level - atten
+        piece_margin = lim.pieces_limit[i] - piece_level
+        if lim.pieces_dbm[i]:
+            piece_margin -= wanted_out_dbm
+        better = hit & (piece_margin < out)
+        np.copyto(out, piece_margin, where=better)
+        np.copyto(best_level, piece_level, where=better)
+        np.copyto(best_atten, atten, where=better)
+        best_req[better] = i + 1
+    return best_level, best_atten, best_req
 
 
 def _capped(atten_db: np.ndarray, field: str, f_hz: np.ndarray) -> np.ndarray:
@@ -647,7 +705,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     for the rows that reach a frame.
     """
     plan = ctx.plan
-    req = plan.requirement.min_rejection_db
+    limits = ctx.limits
     ch = ctx.channels_hz[rows]
     lo = ctx.lo_hz[rows]
     f_in = ctx.f_in_hz[rows]
@@ -678,6 +736,12 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         drive = (sig_dbm - _capped(input_filter.atten_db(f_in, c), in_field, f_in))[:, None]
     else:
         drive = np.full((1, 1), sig_dbm)  # the same for every channel: levels work out once per column
+    # the wanted output, dBm: the drive less the conversion loss and the output filter's loss there
+    wanted_out_dbm = drive - ctx.table.conversion_loss_db
+    if output_filter is not None:
+        c = None if out_filter_centre is None or not output_filter.tracks_channel else out_filter_centre
+        wanted_out_dbm = wanted_out_dbm - _capped(output_filter.atten_db(f_out, c), out_field, f_out)[:, None]
+    wanted_out_dbm = np.broadcast_to(wanted_out_dbm, (nb, 1))
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_p = np.broadcast_to(table_p, shape)
     level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive)  # (1 or Cb, K)
@@ -693,15 +757,15 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         out_atten = _Derived(_brick_wall_db, in_band)
         p_level = np.where(in_band, level, -np.inf)
     else:
-        # The product reaches the output through the least-loss point of its band: the
-        # point nearest the filter's own passband centre (the channel, if it tracks it).
-        c = None if out_filter_centre is None else out_filter_centre[:, None]
-        target = c if (c is not None and output_filter.tracks_channel) else ctx.out_filter_target_hz
-        nearest = np.clip(target, p_low, p_high)
-        out_atten = _rel_atten(output_filter, nearest, f_out[:, None], c, out_field)
+        out_atten = _band_rel_atten(ctx, output_filter, p_low, p_high, f_out, out_filter_centre, out_field)
         p_level = level - out_atten
     p_margin = margin[:, :k_p]
-    np.subtract(-req, p_level, out=p_margin)  # margin = -level - requirement, in one pass
+    if down or limits.n_pieces == 1:
+        np.subtract(limits.spur_dbc, p_level, out=p_margin)  # margin = limit - level, in one pass
+        p_req = np.broadcast_to(np.int8(1), shape)
+    else:  # a transmitter's emission mask: each part of a band against its piece's limit
+        p_level, out_atten, p_req = _mask_margins(ctx, level, output_filter, p_low, p_high, f_out,
+                                                  out_filter_centre, out_field, wanted_out_dbm, p_margin)
     # labels depend on the channel only through the wanted sign: one table row per sign
     p_labels = _labels_by_group(
         product_labels(pf, plan.direction, np.array([-1, 1])), (sign > 0).astype(np.intp), p_margin
@@ -725,8 +789,10 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         "rf_atten_db": zero if down else out_atten,
         "if_atten_db": out_atten if down else zero,
         "level_dbc": p_level,
+        "level_dbm": _Derived(np.add, p_level, np.broadcast_to(wanted_out_dbm, shape)),
         "rejection_db": _Derived(np.negative, p_level),
         "margin_db": p_margin,
+        "requirement": p_req,
         "extra_rf_db": nan if down else extra_out,
         "extra_if_db": extra_out if down else nan,
     }
@@ -770,7 +836,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     # P_u - level/m, and the rejection is (P_u - P_w) - level/m (small-signal regime).  The margin
     # is that rejection less the requirement; for m = 1 it equals the output ratio.
     np.divide(r_level, rfam.rf_harmonic[None, :], out=r_margin)
-    np.subtract(u_dbm - sig_dbm - req, r_margin, out=r_margin)
+    np.subtract(u_dbm - sig_dbm - limits.rejection_db, r_margin, out=r_margin)
     r_level = np.broadcast_to(r_level, shape)
     a_in = np.broadcast_to(a_in, shape)
     # The wanted input is on the (1,1) branch +1, (f_LO + f_IF), only for a difference
@@ -794,29 +860,31 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         "rf_atten_db": _Derived(lambda a, w, mm: mm * a - w, a_in, np.broadcast_to(a_w, shape), m),
         "if_atten_db": zero,
         "level_dbc": r_level,
+        "level_dbm": _Derived(np.add, r_level, np.broadcast_to(wanted_out_dbm, shape)),
         "rejection_db": _Derived(lambda level, mm: (u_dbm - sig_dbm) - level / mm, r_level, m),
         "margin_db": r_margin,
+        "requirement": np.broadcast_to(np.int8(0), shape),
         "extra_rf_db": _Derived(_extra_rf, r_margin, a_in, m),
         "extra_if_db": nan,
     }
     return _Block([products, responses], margin)
 
 
-def _frame(block: _Block, mask: np.ndarray) -> pd.DataFrame:
+def _frame(block: _Block, mask: np.ndarray, limits: Limits) -> pd.DataFrame:
     """Frame of the rows where ``mask`` (shape of ``block.margin_db``) is True, in row-major order."""
-    return _frame_at(block, *np.nonzero(mask))
+    return _frame_at(block, *np.nonzero(mask), limits)
 
 
-def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray) -> pd.DataFrame:
+def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray, limits: Limits) -> pd.DataFrame:
     """Frame of the given (channel row, product column) pairs, in that order."""
-    return _frame_from(block.take(rows, cols))
+    return _frame_from(block.take(rows, cols), limits)
 
 
 _KIND_TEXT = np.asarray(("product", "response"), dtype=object)
 _LABEL_TEXT = np.asarray(LABELS, dtype=object)
 
 
-def _frame_from(data: dict[str, np.ndarray]) -> pd.DataFrame:
+def _frame_from(data: dict[str, np.ndarray], limits: Limits) -> pd.DataFrame:
     """Frame (columns :data:`FRAME_COLUMNS`) of gathered block columns.
 
     Built without copying the gathered arrays (they are fresh and never written
@@ -824,8 +892,11 @@ def _frame_from(data: dict[str, np.ndarray]) -> pd.DataFrame:
     """
     rf_harmonic = data["rf_harmonic"].astype(np.int64, copy=False)
     lo_harmonic = data["lo_harmonic"].astype(np.int64, copy=False)
-    floats = ("table_dbc", "rf_atten_db", "if_atten_db", "level_dbc", "rejection_db", "margin_db", "extra_rf_db",
-              "extra_if_db")
+    floats = ("table_dbc", "rf_atten_db", "if_atten_db", "level_dbc", "level_dbm", "rejection_db", "margin_db",
+              "extra_rf_db", "extra_if_db")
+    req = data["requirement"].astype(np.intp, copy=False)
+    limit = np.concatenate([[limits.rejection_db], limits.pieces_limit])
+    unit = np.asarray(["dB", *np.where(limits.pieces_dbm, "dBm", "dBc")], dtype=object)
     columns = {
         "kind": _KIND_TEXT[data["kind"]],
         "label": _LABEL_TEXT[data["label"]],
@@ -838,6 +909,9 @@ def _frame_from(data: dict[str, np.ndarray]) -> pd.DataFrame:
         **{k: data[k].astype(float, copy=False) for k in floats},
     }
     columns["passes"] = columns["margin_db"] >= 0
+    columns["requirement"] = np.asarray(limits.texts, dtype=object)[req]
+    columns["limit"] = limit[req]
+    columns["limit_unit"] = unit[req]
     return pd.DataFrame({k: columns[k] for k in FRAME_COLUMNS}, copy=False)
 
 
@@ -964,13 +1038,13 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
                 if n_kept > 2 * MAX_HIT_ROWS:  # many ties at the limit: merge
                     hit_parts = [_worst_hits(hit_parts)]
                     n_kept = MAX_HIT_ROWS
-    worst_row = _frame_from(worst_cols)
+    worst_row = _frame_from(worst_cols, ctx.limits)
     # each product/response once, by margin; ties in channel, then family, order
     found = np.flatnonzero(np.isfinite(best_margin))
     order = found[np.lexsort((found, best_channel[found], best_margin[found]))]
-    wbp = _frame_from(_subset(best_rows, order))
+    wbp = _frame_from(_subset(best_rows, order), ctx.limits)
     hit_frame = (
-        _frame_from(_worst_hits(_prune_hits(hit_parts, hit_limit)))  # by margin, ties in channel order
+        _frame_from(_worst_hits(_prune_hits(hit_parts, hit_limit)), ctx.limits)  # by margin, ties in channel order
         if hit_parts
         else wbp.iloc[:0].copy()
     )
@@ -1094,6 +1168,9 @@ def _warnings(ctx: _Context) -> list[str]:
         if moved > 0:
             out.append(f"lo.step_hz: the step grid moves the fixed LO {format_frequency(float(plan.lo.fixed_hz))} "
                        f"by {format_frequency(moved)}; the analysis uses the LO on the grid")
+    if plan.direction == "down" and plan.requirement.emission_mask:
+        out.append("requirement.emission_mask: a receiver has no emission mask; its segments are ignored "
+                   "(products are judged against output_spur_dbc)")
     if plan.direction == "down" and plan.max_order < 4:
         out.append(f"max_order: {plan.max_order} < 4, so the half-IF response (2,2) is not analysed")
     for name, spec in (("filters.rf", plan.filters.rf), ("filters.if", plan.filters.if_),

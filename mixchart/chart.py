@@ -191,7 +191,9 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     """
     plan = ev.plan
     down = plan.direction == "down"
-    req = plan.requirement.min_rejection_db
+    # strips and skirts are judged like the rows they stand for: a receiver's loci by its response
+    # rejection, a transmitter's by its output-spur limit (mixchart.requirements)
+    req = plan.requirement.rejection_db if down else -plan.requirement.spur_dbc
     index = int(np.argmin(ev.worst_margin_db)) if opts.channel_hz is None else ev.nearest_channel(opts.channel_hz)
     ch = float(ev.channels_hz[index])
     lo_now = float(ev.lo_hz[index])

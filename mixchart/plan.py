@@ -29,6 +29,7 @@ from .errors import PlanError, SweepTooLargeError, one_line
 from .fileio import atomic_write_text, read_regular_file
 from .filters import FilterSpec, iter_filter_stages
 from .levels import MixerSpec
+from .requirements import MaskSegment, Requirement
 from .units import FrequencyHz, SpanHz, format_frequency
 from .validation import from_validation_error
 
@@ -43,6 +44,7 @@ __all__ = [
     "IfBand",
     "Filters",
     "Requirement",
+    "MaskSegment",
     "load_plan",
     "loads_plan",
     "save_plan",
@@ -194,21 +196,6 @@ class Filters(_Strict):
     lo: FilterSpec | None = Field(
         default=None,
         description="LO filter: not applied to levels; a warning says when the LO sits on its skirt (lost LO drive).",
-    )
-
-
-class Requirement(_Strict):
-    """What the plan must achieve."""
-
-    min_rejection_db: float = Field(
-        default=60.0,
-        ge=0.0,
-        le=300.0,
-        description=(
-            "dB. Every product of the wanted signal must be at least this far below the wanted output "
-            "(<= -x dBc); every receiver response must need an interferer at least this much stronger "
-            "than the wanted signal for an equal output (input-referred rejection)."
-        ),
     )
 
 

@@ -29,6 +29,7 @@ from .errors import MixchartError
 from .fileio import atomic_write_text
 from .levels import FLOOR_DBC
 from .plan import Plan, dumps_plan
+from .requirements import resolve_limits
 from .units import format_frequency
 
 __all__ = ["report_html", "write_report", "TOP_ROWS"]
@@ -138,7 +139,7 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
     lo_text = f"fixed at {format_frequency(lo.fixed_hz)}" if lo.mode == "fixed" else f"tracking, {lo.side} side"
     lo_text += f", {format_frequency(lo.step_hz)} step" if lo.step_hz is not None else ", no step grid"
     lo_text += f"; spans {format_frequency(float(np.min(ev.lo_hz)))} to {format_frequency(float(np.max(ev.lo_hz)))}"
-    signal = f"bandwidth {format_frequency(sig.bandwidth_hz)}, level {sig.level_dbm:g} dBm at the mixer"
+    signal = f"bandwidth {format_frequency(sig.bandwidth_hz)}, level {sig.level_dbm:g} dBm ahead of the input filter"
     if sig.interferer_level_dbm is not None:
         signal += f"; unwanted inputs assumed at {sig.interferer_level_dbm:g} dBm"
     table = "built-in level table" if mx.table == "builtin" else f"level table {mx.table!r}"
@@ -149,7 +150,10 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
     filters = f"RF: {_filter_words(plan.filters.rf)}. IF: {_filter_words(plan.filters.if_)}."
     if plan.filters.lo is not None:
         filters += f" LO (not applied to levels): {_filter_words(plan.filters.lo)}."
-    req = plan.requirement.min_rejection_db
+    limits = resolve_limits(plan.requirement, plan.direction)
+    # a receiver: its response rejection and output-spur limit; a transmitter: its output-spur
+    # limit and mask segments (each named once)
+    requirement = "; ".join(([limits.texts[0]] if down else []) + list(dict.fromkeys(limits.texts[1:])))
     return [
         ("Direction",
          "down-conversion (receiver: RF in, IF out)" if down else "up-conversion (transmitter: IF in, RF out)"),
@@ -160,7 +164,8 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
         ("Max order", f"m + n ≤ {plan.max_order}"),
         ("Mixer", mixer),
         ("Filters", filters),
-        ("Requirement", f"every spur at least {req:g} dB below the wanted output (≤ {-req:g} dBc)"),
+        ("Requirement", requirement + " (responses: input-referred rejection; products: output level after "
+                        "the output filter)"),
     ]
 
 

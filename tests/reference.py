@@ -313,7 +313,20 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
 
     table_at = TableLevels(build_table(plan.mixer, plan.max_order, base_dir=base_dir))
     down = plan.direction == "down"
-    req = plan.requirement.min_rejection_db
+    # mixchart.requirements docstring: response_rejection_db (default min_rejection_db) for responses,
+    # output_spur_dbc (default -min_rejection_db) for products; a transmitter's mask segments judge the
+    # parts of a product band inside them, the gaps take output_spur_dbc, and the margin is the least.
+    rq = plan.requirement
+    rejection = rq.min_rejection_db if rq.response_rejection_db is None else rq.response_rejection_db
+    spur = -rq.min_rejection_db if rq.output_spur_dbc is None else rq.output_spur_dbc
+    segments = sorted((s.f_low_hz, s.f_high_hz, s.limit, s.unit) for s in rq.emission_mask) if not down else []
+    pieces, edge = [], 0.0
+    for f0, f1, seg_limit, unit in segments:
+        if f0 > edge:
+            pieces.append((edge, f0, spur, "dBc"))
+        pieces.append((f0, f1, seg_limit, unit))
+        edge = f1
+    pieces.append((edge, math.inf, spur, "dBc"))
     p_w = plan.signal.level_dbm
     p_u = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else p_w
     if_low = plan.if_.center_hz - plan.if_.bandwidth_hz / 2.0
@@ -344,20 +357,21 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         else:
             p_mix = p_w - input_filter(f_in, rf_centre if down else None)
         a_out_wanted = 0.0 if output_filter is None else output_filter(f_out, None if down else rf_centre)
+        wanted_out_dbm = p_mix - table_at.conversion_loss_db - a_out_wanted
         in_band = row["in_band"]
         rows = []
         worst_key = None
         worst = None
 
-        def record(kind, label, m, n, sign, centre, low, high, level, index=index, rows=rows):
+        def record(kind, label, m, n, sign, centre, low, high, level, margin=None, index=index, rows=rows):
             """Keep a row; track the channel's worst and each (kind, m, n, sign)'s worst over the sweep."""
             nonlocal worst_key, worst
             if label == "wanted":
                 margin = inf
             elif kind == "product":
-                margin = -level - req
+                pass  # the caller's: limit - level over the limiting piece of the band
             else:  # input-referred rejection (P_u - P_w) - level/m, less the requirement
-                margin = (p_u - p_w) - level / m - req
+                margin = (p_u - p_w) - level / m - rejection
             rows.append((kind, label, m, n, sign, centre, low, high, level, margin))
             if margin < inf:
                 key = (margin, 0 if kind == "product" else 1, m + n, m, sign)
@@ -369,15 +383,23 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         # ---- products of the wanted signal
         for m, n, sign, centre, low, high in row["products"]:
             label = product_label(plan.direction, m, n, sign, wanted_sign)
-            if output_filter is None and not down:
-                a_rel = 0.0  # a transmitter emits every product: no output filter, no loss anywhere
-            elif output_filter is None:
-                a_rel = 0.0 if (m, n, sign) in in_band else inf  # the IF passband as a brick wall
-            else:
-                point = min(max(ch if output_filter.tracks_channel else out_target, low), high)
-                a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted
-            level = table_at(m, n, p_mix) - a_rel
-            record("product", label, m, n, sign, centre, low, high, level)
+            best = None  # (margin, level) of the limiting part of the band
+            for f0, f1, piece_limit, unit in pieces:
+                part_low, part_high = max(low, f0), min(high, f1)
+                if part_low > part_high:
+                    continue
+                if output_filter is None and not down:
+                    a_rel = 0.0  # a transmitter emits every product: no output filter, no loss anywhere
+                elif output_filter is None:
+                    a_rel = 0.0 if (m, n, sign) in in_band else inf  # the IF passband as a brick wall
+                else:
+                    point = min(max(ch if output_filter.tracks_channel else out_target, part_low), part_high)
+                    a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted
+                level = table_at(m, n, p_mix) - a_rel
+                margin = piece_limit - level - (wanted_out_dbm if unit == "dBm" else 0.0)
+                if best is None or margin < best[0]:
+                    best = (margin, level)
+            record("product", label, m, n, sign, centre, low, high, best[1], best[0])
         # ---- receiver responses
         if down:
             wanted_branch = 1 if (wanted_sign < 0 and ch > lo) else -1  # the (1,1) branch holding the channel

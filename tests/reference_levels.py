@@ -25,6 +25,7 @@ class TableLevels:
     def __init__(self, table) -> None:
         self.level_table = table.level_dbc.tolist()  # plain nested lists of floats, read once
         self.rf_ref = float(table.rf_ref_dbm)
+        self.conversion_loss_db = float(table.conversion_loss_db)
 
     def __call__(self, m: int, n: int, drive_dbm: float) -> float:
         t = self.level_table[m][n]

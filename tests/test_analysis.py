@@ -510,6 +510,35 @@ LEVEL_PLANS = {
                     "if": {"kind": "butterworth", "response": "lowpass", "order": 7, "f_edge_hz": "600 MHz"}},
         "requirement": {"min_rejection_db": 50},
     },
+    # transmitter with an emission mask (mixchart.requirements): a tight dBm segment over the
+    # allocation's neighbours, a dBc segment above, the gaps at output_spur_dbc; bands that span
+    # two pieces are judged in each part
+    "up, emission mask in dBc and dBm": {
+        "name": "invented L-band transmitter with a mask", "direction": "up",
+        "rf": {"start_hz": "1.2 GHz", "stop_hz": "1.3 GHz", "step_hz": "10 MHz"},
+        "signal": {"bandwidth_hz": "8 MHz", "level_dbm": -5},
+        "lo": {"mode": "tracking", "side": "low"},
+        "if": {"center_hz": "70 MHz", "bandwidth_hz": "10 MHz"},
+        "max_order": 9, "mixer": {"rf_ref_dbm": -10},
+        "filters": {"rf": {"kind": "butterworth", "response": "bandpass", "order": 3,
+                           "f_center_hz": "1.25 GHz", "bandwidth_hz": "200 MHz"}},
+        "requirement": {"output_spur_dbc": -45, "emission_mask": [
+            {"f_low_hz": "1.05 GHz", "f_high_hz": "1.19 GHz", "limit": -62, "unit": "dBm"},
+            {"f_low_hz": "1.31 GHz", "f_high_hz": "1.5 GHz", "limit": -55, "unit": "dBc"}]},
+    },
+    # receiver with separate limits: responses need 75 dB input-referred, products -50 dBc
+    "down, separate rejection and spur limits": {
+        "name": "invented VHF receiver, split limits", "direction": "down",
+        "rf": {"start_hz": "140 MHz", "stop_hz": "150 MHz", "step_hz": "1 MHz"},
+        "signal": {"bandwidth_hz": "25 kHz", "level_dbm": -50, "interferer_level_dbm": -20},
+        "lo": {"mode": "tracking", "side": "high"},
+        "if": {"center_hz": "21.4 MHz", "bandwidth_hz": "30 kHz"},
+        "max_order": 7, "mixer": {"rf_ref_dbm": -30},
+        "filters": {"rf": {"kind": "tuned", "q_loaded": 20, "stages": 2, "tracks_channel": True},
+                    "if": {"kind": "butterworth", "response": "bandpass", "order": 4,
+                           "f_center_hz": "21.4 MHz", "bandwidth_hz": "30 kHz"}},
+        "requirement": {"min_rejection_db": 99, "response_rejection_db": 75, "output_spur_dbc": -50},
+    },
     # no filters at all: ideal brick wall over the IF, no preselection (low-side LO)
     "down, no filters": receiver(lo={"mode": "tracking", "side": "low"}, requirement={"min_rejection_db": 20}),
     # no filters, transmitter: ideal brick wall over the tuning range widened by half the signal;
