@@ -399,11 +399,18 @@ def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
         # The IF input that gives the channel through (1,1): IF + LO (sum, channel above the LO),
         # IF - LO (difference, LO below the IF) or LO - IF (difference, LO above the IF); the one
         # nearest the IF centre is the wanted conversion (a fixed LO below a high IF gives IF - LO).
-        candidates = np.stack([channels - lo, channels + lo, lo - channels])
+        # With the IF held (lo.grid_holds 'input', the physical case) the IF input is the one the
+        # ideal, off-grid LO needs, and the output moves by the LO's grid error; with the output
+        # held, the IF input is retuned so that the output stays on the channel.
+        hold_output = plan.lo.grid_holds == "output"
+        lo_for_if = lo if hold_output else plan.nominal_lo_hz(channels)
+        candidates = np.stack([channels - lo_for_if, channels + lo_for_if, lo_for_if - channels])
         candidates = np.where(candidates > 0, candidates, np.inf)
         pick = np.argmin(np.abs(candidates - plan.if_.center_hz), axis=0)
         wanted_sign = np.where(pick == 0, 1, -1)
         f_in = np.take_along_axis(candidates, pick[None, :], axis=0)[0]
+        if not hold_output:
+            f_out = np.where(wanted_sign > 0, f_in + lo, np.abs(f_in - lo))
         half = plan.signal.bandwidth_hz / 2
         out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
     output_filter = if_filter if plan.direction == "down" else rf_filter
@@ -665,8 +672,10 @@ class _ResponseBands:
 
     dtype = np.dtype(float)
 
-    def __init__(self, lo_hz: np.ndarray, family: ResponseFamily, if_low_hz: float, if_high_hz: float) -> None:
+    def __init__(self, lo_hz: np.ndarray, family: ResponseFamily, if_low_hz: float, if_high_hz: float,
+                 interferer_bandwidth_hz: float) -> None:
         self.lo_hz = lo_hz
+        self.interferer_bandwidth_hz = interferer_bandwidth_hz
         self.family = family
         self.if_hz = (if_low_hz, if_high_hz)
         self._last: tuple[np.ndarray, np.ndarray, tuple[np.ndarray, ...]] | None = None
@@ -678,7 +687,7 @@ class _ResponseBands:
             fam = self.family
             bands = response_bands_at(
                 self.lo_hz.take(rows), fam.rf_harmonic.take(cols), fam.lo_harmonic.take(cols), fam.branch.take(cols),
-                *self.if_hz,
+                *self.if_hz, interferer_bandwidth_hz=self.interferer_bandwidth_hz,
             )
             self._last = (rows, cols, bands)
         return self._last[2]
@@ -801,11 +810,13 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
 
     # ---- receiver spurious responses
     shape = (nb, len(rfam))
+    b_u = plan.signal.interferer_bandwidth_hz or 0.0  # None: a CW interferer
     if ctx.rf_filter is not None:
-        r_center, r_low, r_high = response_bands(lo, plan.if_.f_low_hz, plan.if_.f_high_hz, rfam)
+        r_center, r_low, r_high = response_bands(lo, plan.if_.f_low_hz, plan.if_.f_high_hz, rfam,
+                                                 interferer_bandwidth_hz=b_u)
     else:
         # nothing but the frames reads the bands: work them out only for the rows gathered
-        r_center, r_low, r_high = _ResponseBands(lo, rfam, plan.if_.f_low_hz, plan.if_.f_high_hz).columns
+        r_center, r_low, r_high = _ResponseBands(lo, rfam, plan.if_.f_low_hz, plan.if_.f_high_hz, b_u).columns
     zero = np.broadcast_to(0.0, shape)
     nan = np.broadcast_to(np.nan, shape)
     m = np.broadcast_to(rfam.rf_harmonic, shape)
@@ -1171,6 +1182,9 @@ def _warnings(ctx: _Context) -> list[str]:
     if plan.direction == "down" and plan.requirement.emission_mask:
         out.append("requirement.emission_mask: a receiver has no emission mask; its segments are ignored "
                    "(products are judged against output_spur_dbc)")
+    if plan.direction == "down" and plan.signal.interferer_bandwidth_hz is None:
+        out.append("signal.interferer_bandwidth_hz: not given, so each response band assumes a CW interferer; "
+                   "a modulated interferer B wide widens every band by B/2 on each side")
     if plan.direction == "down" and plan.max_order < 4:
         out.append(f"max_order: {plan.max_order} < 4, so the half-IF response (2,2) is not analysed")
     for name, spec in (("filters.rf", plan.filters.rf), ("filters.if", plan.filters.if_),
@@ -1186,10 +1200,20 @@ def _warnings(ctx: _Context) -> list[str]:
             if width / f0 > ARITHMETIC_WARN_FRACTION:
                 out.append(f"{where}.transform: the arithmetic (narrow-band) transform on a "
                            f"{100 * width / f0:.1f}% wide filter misstates its skirts; use 'geometric'")
-    if plan.lo.mode == "tracking" and plan.lo.step_hz is not None:
+    if plan.lo.step_hz is not None:
         worst_step = float(np.max(np.abs(ctx.lo_hz - plan.nominal_lo_hz(ctx.channels_hz))))
-        if worst_step > 0:
-            out.append(f"LO grid error up to {format_frequency(worst_step)}: the wanted output is offset by as much")
+        if worst_step > 0 and plan.direction == "down":
+            out.append(f"LO grid error up to {format_frequency(worst_step)}: the RF channel is where it is, so the "
+                       "wanted IF output and every product move by as much")
+        elif worst_step > 0 and plan.lo.grid_holds == "input":
+            out.append(f"LO grid error up to {format_frequency(worst_step)}: the IF input is held (lo.grid_holds "
+                       "'input'), so the wanted output and every product move off the channel by as much")
+        elif worst_step > 0:
+            out.append(f"LO grid error up to {format_frequency(worst_step)}: the IF input is retuned by as much to "
+                       "keep the output on the channel (lo.grid_holds 'output')")
+    if plan.direction == "down" and plan.lo.grid_holds == "output":
+        out.append("lo.grid_holds: 'output' applies to a transmitter; a receiver's RF channel is where it is, "
+                   "so its output moves with the LO (as for 'input')")
     down = plan.direction == "down"
     # (field, filter, the frequencies that must pass it, what they are, what follows)
     must_pass = (

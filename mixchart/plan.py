@@ -132,6 +132,13 @@ class Signal(_Strict):
             "rejection, dBm at the preselector input; default: the wanted level."
         ),
     )
+    interferer_bandwidth_hz: SpanHz | None = Field(
+        default=None,
+        description=(
+            "Bandwidth of the unwanted inputs, Hz: each response band widens by half of it on each side. "
+            "Null: a CW interferer (the analysis says so)."
+        ),
+    )
 
 
 class LoSetting(_Strict):
@@ -148,6 +155,15 @@ class LoSetting(_Strict):
     step_hz: SpanHz | None = Field(
         default=None,
         description="LO synthesiser step, Hz: the LO sits on the nearest multiple of it (exact halves round up).",
+    )
+    grid_holds: Literal["input", "output"] = Field(
+        default="input",
+        description=(
+            "What stays put when the LO sits off its ideal value (on the step grid): 'input', the physical "
+            "case (a receiver's RF channel, a transmitter's IF from its modem), so the wanted output and every "
+            "product move by the LO error; 'output' (transmitters only), the IF source retunes to keep the "
+            "output on the channel."
+        ),
     )
 
     @model_validator(mode="after")

@@ -232,7 +232,8 @@ def product_bands(
 
 
 def response_bands(
-    f_lo_hz: np.ndarray, if_low_hz: float, if_high_hz: float, family: ResponseFamily
+    f_lo_hz: np.ndarray, if_low_hz: float, if_high_hz: float, family: ResponseFamily, *,
+    interferer_bandwidth_hz: float = 0.0,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Input bands that reach the IF passband, for every channel's LO.
 
@@ -248,6 +249,11 @@ def response_bands(
         IF passband edges, Hz.
     family : ResponseFamily
         Which responses.
+    interferer_bandwidth_hz : float, optional
+        Bandwidth of the unwanted input, Hz (0: a CW interferer).  An input ``B_u`` wide
+        centred at ``f`` gives an (m, n) output ``m·B_u`` wide, which reaches the IF passband
+        when ``m·f`` lies within ``m·B_u/2`` of ``[IF_low, IF_high] ± n·f_lo``: the band of
+        responding centres widens by ``B_u/2`` on each side, for every m (derived by hand).
 
     Returns
     -------
@@ -256,7 +262,8 @@ def response_bands(
         A band of the ``-1`` branch that straddles ``n·f_lo`` starts at 0 Hz.
     """
     f_lo = np.asarray(f_lo_hz, dtype=float)[:, None]
-    return response_bands_at(f_lo, family.rf_harmonic, family.lo_harmonic, family.branch, if_low_hz, if_high_hz)
+    return response_bands_at(f_lo, family.rf_harmonic, family.lo_harmonic, family.branch, if_low_hz, if_high_hz,
+                             interferer_bandwidth_hz=interferer_bandwidth_hz)
 
 
 def response_bands_at(
@@ -266,6 +273,8 @@ def response_bands_at(
     branch: np.ndarray,
     if_low_hz: float,
     if_high_hz: float,
+    *,
+    interferer_bandwidth_hz: float = 0.0,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """:func:`response_bands` element by element: the arguments broadcast together.
 
@@ -282,6 +291,8 @@ def response_bands_at(
         :class:`ResponseFamily`).
     if_low_hz, if_high_hz : float
         IF passband edges, Hz.
+    interferer_bandwidth_hz : float, optional
+        Bandwidth of the unwanted input, Hz (see :func:`response_bands`).
 
     Returns
     -------
@@ -311,6 +322,11 @@ def response_bands_at(
     np.abs(x, out=x)
     np.abs(y, out=y)
     high = np.maximum(x, y, out=x)
+    if interferer_bandwidth_hz > 0:
+        half = 0.5 * interferer_bandwidth_hz
+        low -= half
+        np.maximum(low, 0.0, out=low)
+        high += half
     return center, low, high
 
 

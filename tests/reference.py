@@ -182,7 +182,13 @@ def sweep(plan, limit: int | None = None) -> list[dict]:
     rows = []
     for ch in channels[:limit]:
         lo = plan_lo(ch, plan.lo.mode, plan.lo.side, plan.if_.center_hz, plan.lo.fixed_hz, plan.lo.step_hz)
-        f_in, _f_out, wanted_sign = wanted_conversion(plan.direction, ch, lo, if_low, if_high)
+        f_in, f_out, wanted_sign = wanted_conversion(plan.direction, ch, lo, if_low, if_high)
+        if plan.direction == "up" and plan.lo.grid_holds == "input":
+            # plan.LoSetting.grid_holds 'input': the transmitter's IF is the one the ideal (off-grid)
+            # LO needs; the LO on its grid then moves the output off the channel
+            ideal_lo = plan_lo(ch, plan.lo.mode, plan.lo.side, plan.if_.center_hz, plan.lo.fixed_hz, None)
+            f_in, _, wanted_sign = wanted_conversion("up", ch, ideal_lo, if_low, if_high)
+            f_out = f_in + lo if wanted_sign > 0 else abs(f_in - lo)
         products = product_list(f_in, lo, bw, plan.max_order)
         in_band = set()
         worst = None
@@ -194,7 +200,8 @@ def sweep(plan, limit: int | None = None) -> list[dict]:
                     if worst is None or key < worst:
                         worst = key
         responses = response_list(lo, if_low, if_high, plan.max_order) if plan.direction == "down" else []
-        rows.append({"channel": ch, "lo": lo, "f_in": f_in, "wanted_sign": wanted_sign, "products": products,
+        rows.append({"channel": ch, "lo": lo, "f_in": f_in, "f_out": f_out, "wanted_sign": wanted_sign,
+                     "products": products,
                      "responses": responses, "in_band": in_band,
                      "worst_in_band": None if worst is None else (worst[1], worst[3], worst[2])})
     return rows
@@ -329,6 +336,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     pieces.append((edge, math.inf, spur, "dBc"))
     p_w = plan.signal.level_dbm
     p_u = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else p_w
+    b_u = plan.signal.interferer_bandwidth_hz or 0.0
     if_low = plan.if_.center_hz - plan.if_.bandwidth_hz / 2.0
     if_high = plan.if_.center_hz + plan.if_.bandwidth_hz / 2.0
     bw = plan.signal.bandwidth_hz
@@ -349,7 +357,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     worst_by_product: dict = {}
     for index, row in enumerate(sweep(plan, limit)):
         ch, lo, f_in, wanted_sign = row["channel"], row["lo"], row["f_in"], row["wanted_sign"]
-        f_out = ch + lo if (down and wanted_sign > 0) else (abs(ch - lo) if down else ch)
+        f_out = row["f_out"]
         # RF-side filters are centred on the channel when they track it; the IF filter never is
         rf_centre = ch
         if input_filter is None:
@@ -405,6 +413,9 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
             wanted_branch = 1 if (wanted_sign < 0 and ch > lo) else -1  # the (1,1) branch holding the channel
             a_w = 0.0 if rf_filter is None else rf_filter(ch, rf_centre)
             for m, n, branch, centre, low, high in row["responses"]:
+                # an interferer B_u wide responds while any part of it lies in the CW band: the band
+                # of its centres is B_u/2 wider each side (plan.Signal.interferer_bandwidth_hz)
+                low, high = max(low - b_u / 2.0, 0.0), high + b_u / 2.0
                 label = response_label(m, n, branch, wanted_branch)
                 a_in = 0.0 if rf_filter is None else rf_filter(min(max(ch, low), high), rf_centre)
                 level = table_at(m, n, p_u - a_in) - a_in + a_w + (p_u - p_w)

@@ -526,11 +526,25 @@ LEVEL_PLANS = {
             {"f_low_hz": "1.05 GHz", "f_high_hz": "1.19 GHz", "limit": -62, "unit": "dBm"},
             {"f_low_hz": "1.31 GHz", "f_high_hz": "1.5 GHz", "limit": -55, "unit": "dBc"}]},
     },
+    # transmitter whose LO sits on a 3 MHz grid: the IF from the modem is held (lo.grid_holds
+    # 'input', the default), so the output and every product move by the LO's grid error
+    "up, LO on a grid, IF held": {
+        "name": "invented L-band transmitter on a coarse grid", "direction": "up",
+        "rf": {"start_hz": "1.2 GHz", "stop_hz": "1.3 GHz", "step_hz": "10 MHz"},
+        "signal": {"bandwidth_hz": "8 MHz", "level_dbm": -5},
+        "lo": {"mode": "tracking", "side": "low", "step_hz": "3 MHz"},
+        "if": {"center_hz": "70 MHz", "bandwidth_hz": "10 MHz"},
+        "max_order": 7, "mixer": {"rf_ref_dbm": -10},
+        "filters": {"rf": {"kind": "chebyshev1", "response": "bandpass", "order": 5, "ripple_db": 0.5,
+                           "f_center_hz": "1.25 GHz", "bandwidth_hz": "150 MHz"}},
+        "requirement": {"min_rejection_db": 60},
+    },
     # receiver with separate limits: responses need 75 dB input-referred, products -50 dBc
     "down, separate rejection and spur limits": {
         "name": "invented VHF receiver, split limits", "direction": "down",
         "rf": {"start_hz": "140 MHz", "stop_hz": "150 MHz", "step_hz": "1 MHz"},
-        "signal": {"bandwidth_hz": "25 kHz", "level_dbm": -50, "interferer_level_dbm": -20},
+        "signal": {"bandwidth_hz": "25 kHz", "level_dbm": -50, "interferer_level_dbm": -20,
+                   "interferer_bandwidth_hz": "200 kHz"},
         "lo": {"mode": "tracking", "side": "high"},
         "if": {"center_hz": "21.4 MHz", "bandwidth_hz": "30 kHz"},
         "max_order": 7, "mixer": {"rf_ref_dbm": -30},
@@ -856,6 +870,7 @@ def test_response_rejection_is_the_input_ratio_solved_for_equal_output():
     from scipy.optimize import brentq
 
     data = json.loads(example_path("fm_receiver").read_text(encoding="utf-8"))
+    data["signal"].pop("interferer_bandwidth_hz", None)  # a CW interferer, as the trade's test uses
     p_w = data["signal"]["level_dbm"]
 
     def row_at(p_u: float, m: int, n: int) -> pd.Series:

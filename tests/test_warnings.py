@@ -5,6 +5,7 @@ from __future__ import annotations
 import copy
 
 import numpy as np
+import pytest
 
 from mixchart.analysis import evaluate
 from mixchart.plan import plan_from_dict
@@ -115,4 +116,38 @@ def test_drives_are_checked_at_the_mixer_for_the_wanted_and_the_interferer():
     assert any(w.startswith("signal.level_dbm: the wanted drive at the mixer is -45.0 dBm") for w in found)
     # the base plan (-30 dBm, no preselector) says none of these
     quiet = " | ".join(_warnings())
-    assert "compresses" not in quiet and "interferer" not in quiet and "wanted drive" not in quiet
+    assert "compresses" not in quiet and "signal.interferer_level_dbm" not in quiet and "wanted drive" not in quiet
+
+
+def test_a_cw_interferer_is_said_and_an_interferer_bandwidth_widens_every_response_band():
+    # An input B_u wide centred at f gives an (m,n) output m·B_u wide, which reaches the IF while
+    # m·f is within m·B_u/2 of [IF_low, IF_high] + n·LO: the band of responding centres widens
+    # by B_u/2 on each side whatever m (derived by hand; products.response_bands docstring).
+    cw = evaluate(plan_from_dict({**BASE, "signal": {"bandwidth_hz": "100 kHz"}}))
+    assert any(w.startswith("signal.interferer_bandwidth_hz: not given") for w in cw.warnings)
+    wide = evaluate(plan_from_dict({**BASE, "signal": {"bandwidth_hz": "100 kHz", "interferer_bandwidth_hz": 1e6}}))
+    assert not any(w.startswith("signal.interferer_bandwidth_hz") for w in wide.warnings)
+    a, b = cw.channel_frame(0), wide.channel_frame(0)
+    key = ["kind", "rf_harmonic", "lo_harmonic", "sign"]
+    a, b = (f[f["kind"] == "response"].sort_values(key).reset_index(drop=True) for f in (a, b))
+    assert len(a) == len(b) > 5
+    np.testing.assert_allclose(b["f_high_hz"] - a["f_high_hz"], 0.5e6, rtol=1e-9)
+    np.testing.assert_allclose(b["f_low_hz"], np.maximum(a["f_low_hz"] - 0.5e6, 0.0), rtol=1e-9, atol=1e-6)
+
+
+def test_an_up_converter_on_an_lo_grid_moves_its_output_unless_told_to_hold_it():
+    # Transmitter, low-side LO, IF 70 MHz, LO grid 3 MHz: channel 1.2 GHz wants LO 1.13 GHz, which
+    # snaps to 1.131 GHz (376.67 steps -> 377).  With the IF held at 70 MHz (the physical case,
+    # the default) the output is 70 + 1131 = 1201 MHz; with the output held the IF input becomes
+    # 1200 - 1131 = 69 MHz.  Arithmetic by hand.
+    data = {"name": "grid", "direction": "up", "rf": {"start_hz": "1.2 GHz", "stop_hz": "1.2 GHz"},
+            "signal": {"bandwidth_hz": "1 MHz"}, "lo": {"mode": "tracking", "side": "low", "step_hz": "3 MHz"},
+            "if": {"center_hz": "70 MHz", "bandwidth_hz": "10 MHz"}}
+    held_if = evaluate(plan_from_dict(data))
+    assert held_if.lo_hz[0] == 1131e6
+    assert held_if.f_wanted_in_hz[0] == 70e6 and held_if.f_wanted_out_hz[0] == 1201e6
+    assert any("the IF input is held" in w and "move off the channel" in w for w in held_if.warnings)
+    data["lo"]["grid_holds"] = "output"
+    held_out = evaluate(plan_from_dict(data))
+    assert held_out.f_wanted_in_hz[0] == pytest.approx(69e6) and held_out.f_wanted_out_hz[0] == 1200e6
+    assert any("the IF input is retuned" in w for w in held_out.warnings)
