@@ -123,6 +123,9 @@ FRAME_COLUMNS: dict[str, str] = {
     "limit": "that limit's value, in limit_unit",
     "limit_unit": "dB (input-referred rejection), dBc or dBm (output level)",
     "margin_db": "response: rejection_db - limit; product: limit - level (dBc or dBm); >= 0 passes",
+    "mixer_drive_dbm": "RF drive at the mixer's signal input that the row's level was read at, dBm (product: the "
+    "wanted after the input filter; response: the interferer after the preselector's loss)",
+    "drive_ok": "mixer_drive_dbm within 10 dB of the level table's reference and 10 dB under the LO drive",
     "passes": "margin_db >= 0",
     "extra_rf_db": "extra RF-filter rejection at the spur that would make it pass, dB (NaN: none needed or no help)",
     "extra_if_db": "extra IF/output-filter rejection that would make it pass, dB (NaN: none needed or no help)",
@@ -289,7 +292,7 @@ class Evaluation:
         if not 0 <= index < self.channels_hz.size:
             raise IndexError(f"channel index {index} is out of range 0..{self.channels_hz.size - 1}")
         block = _evaluate_block(self._context, slice(index, index + 1))
-        frame = _frame(block, np.ones_like(block.margin_db, dtype=bool), self._context.limits)
+        frame = _frame(block, np.ones_like(block.margin_db, dtype=bool), self._context)
         return frame.sort_values("margin_db", kind="stable").reset_index(drop=True)
 
     @property
@@ -802,6 +805,7 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         "rejection_db": _Derived(np.negative, p_level),
         "margin_db": p_margin,
         "requirement": p_req,
+        "mixer_drive_dbm": np.broadcast_to(drive, shape),
         "extra_rf_db": nan if down else extra_out,
         "extra_if_db": extra_out if down else nan,
     }
@@ -875,27 +879,28 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         "rejection_db": _Derived(lambda level, mm: (u_dbm - sig_dbm) - level / mm, r_level, m),
         "margin_db": r_margin,
         "requirement": np.broadcast_to(np.int8(0), shape),
+        "mixer_drive_dbm": np.broadcast_to(mixer_drive, shape),
         "extra_rf_db": _Derived(_extra_rf, r_margin, a_in, m),
         "extra_if_db": nan,
     }
     return _Block([products, responses], margin)
 
 
-def _frame(block: _Block, mask: np.ndarray, limits: Limits) -> pd.DataFrame:
+def _frame(block: _Block, mask: np.ndarray, ctx: _Context) -> pd.DataFrame:
     """Frame of the rows where ``mask`` (shape of ``block.margin_db``) is True, in row-major order."""
-    return _frame_at(block, *np.nonzero(mask), limits)
+    return _frame_at(block, *np.nonzero(mask), ctx)
 
 
-def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray, limits: Limits) -> pd.DataFrame:
+def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray, ctx: _Context) -> pd.DataFrame:
     """Frame of the given (channel row, product column) pairs, in that order."""
-    return _frame_from(block.take(rows, cols), limits)
+    return _frame_from(block.take(rows, cols), ctx)
 
 
 _KIND_TEXT = np.asarray(("product", "response"), dtype=object)
 _LABEL_TEXT = np.asarray(LABELS, dtype=object)
 
 
-def _frame_from(data: dict[str, np.ndarray], limits: Limits) -> pd.DataFrame:
+def _frame_from(data: dict[str, np.ndarray], ctx: _Context) -> pd.DataFrame:
     """Frame (columns :data:`FRAME_COLUMNS`) of gathered block columns.
 
     Built without copying the gathered arrays (they are fresh and never written
@@ -904,7 +909,8 @@ def _frame_from(data: dict[str, np.ndarray], limits: Limits) -> pd.DataFrame:
     rf_harmonic = data["rf_harmonic"].astype(np.int64, copy=False)
     lo_harmonic = data["lo_harmonic"].astype(np.int64, copy=False)
     floats = ("table_dbc", "rf_atten_db", "if_atten_db", "level_dbc", "level_dbm", "rejection_db", "margin_db",
-              "extra_rf_db", "extra_if_db")
+              "extra_rf_db", "extra_if_db", "mixer_drive_dbm")
+    limits = ctx.limits
     req = data["requirement"].astype(np.intp, copy=False)
     limit = np.concatenate([[limits.rejection_db], limits.pieces_limit])
     unit = np.asarray(["dB", *np.where(limits.pieces_dbm, "dBm", "dBc")], dtype=object)
@@ -923,6 +929,11 @@ def _frame_from(data: dict[str, np.ndarray], limits: Limits) -> pd.DataFrame:
     columns["requirement"] = np.asarray(limits.texts, dtype=object)[req]
     columns["limit"] = limit[req]
     columns["limit_unit"] = unit[req]
+    # the table's levels hold near its reference drive (levels.RF_EXTRAPOLATION_LIMIT_DB) and with
+    # the RF drive well under the LO drive (COMPRESSION_MARGIN_DB): rows outside are flagged
+    drive = columns["mixer_drive_dbm"]
+    columns["drive_ok"] = ((np.abs(drive - ctx.table.rf_ref_dbm) <= RF_EXTRAPOLATION_LIMIT_DB)
+                           & (drive <= ctx.plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB)) | np.isneginf(drive)
     return pd.DataFrame({k: columns[k] for k in FRAME_COLUMNS}, copy=False)
 
 
@@ -1049,13 +1060,13 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
                 if n_kept > 2 * MAX_HIT_ROWS:  # many ties at the limit: merge
                     hit_parts = [_worst_hits(hit_parts)]
                     n_kept = MAX_HIT_ROWS
-    worst_row = _frame_from(worst_cols, ctx.limits)
+    worst_row = _frame_from(worst_cols, ctx)
     # each product/response once, by margin; ties in channel, then family, order
     found = np.flatnonzero(np.isfinite(best_margin))
     order = found[np.lexsort((found, best_channel[found], best_margin[found]))]
-    wbp = _frame_from(_subset(best_rows, order), ctx.limits)
+    wbp = _frame_from(_subset(best_rows, order), ctx)
     hit_frame = (
-        _frame_from(_worst_hits(_prune_hits(hit_parts, hit_limit)), ctx.limits)  # by margin, ties in channel order
+        _frame_from(_worst_hits(_prune_hits(hit_parts, hit_limit)), ctx)  # by margin, ties in channel order
         if hit_parts
         else wbp.iloc[:0].copy()
     )

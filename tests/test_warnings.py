@@ -151,3 +151,28 @@ def test_an_up_converter_on_an_lo_grid_moves_its_output_unless_told_to_hold_it()
     held_out = evaluate(plan_from_dict(data))
     assert held_out.f_wanted_in_hz[0] == pytest.approx(69e6) and held_out.f_wanted_out_hz[0] == 1200e6
     assert any("the IF input is retuned" in w for w in held_out.warnings)
+
+
+def test_every_row_says_the_drive_it_was_read_at_and_whether_the_table_holds_there():
+    # Table stated at -30 dBm RF, +7 dBm LO.  Products are read at the wanted drive, -30 dBm (no
+    # preselector): within 10 dB of the reference and 37 dB under the LO, so valid.  Responses
+    # are read at the interferer's drive, +20 dBm (no preselector loss): 50 dB from the
+    # reference and above the LO drive, so flagged (thresholds: levels.RF_EXTRAPOLATION_LIMIT_DB,
+    # analysis.COMPRESSION_MARGIN_DB; arithmetic by hand).
+    data = copy.deepcopy(BASE)
+    data["signal"] = {"bandwidth_hz": "100 kHz", "level_dbm": -30, "interferer_level_dbm": 20}
+    data["mixer"] = {"rf_ref_dbm": -30}
+    frame = evaluate(plan_from_dict(data)).channel_frame(0)
+    products, responses = frame[frame["kind"] == "product"], frame[frame["kind"] == "response"]
+    assert (products["mixer_drive_dbm"] == -30).all() and products["drive_ok"].all()
+    assert (responses["mixer_drive_dbm"] == 20).all() and not responses["drive_ok"].any()
+    # behind a tuned preselector the interferer's drive is 20 dB less the loss at its band
+    data["filters"] = {**BASE["filters"], "rf": {"kind": "tuned", "q_loaded": 30, "stages": 1,
+                                                 "tracks_channel": True}}
+    frame = evaluate(plan_from_dict(data)).channel_frame(0)
+    responses = frame[frame["kind"] == "response"]
+    image = responses[responses["label"] == "image"].iloc[0]
+    # image of 100 MHz with a 110.7 MHz LO: 121.4 MHz; one tuned circuit, Q 30:
+    # 10 log10(1 + (30 (121.4/100 - 100/121.4))^2) (Kennedy & Davis tuned-circuit formula)
+    loss = 10 * np.log10(1 + (30 * (121.4 / 100 - 100 / 121.4)) ** 2)
+    assert image["mixer_drive_dbm"] == pytest.approx(20 - loss, abs=0.05)
