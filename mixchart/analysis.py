@@ -55,9 +55,12 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .checks import COMPRESSION_MARGIN_DB, plan_warnings, span_warnings
+from .context import Context, band_rel_atten, build_context, capped, mask_margins
+from .context import read_only as _read_only
 from .errors import AnalysisError, one_line
-from .filters import Filter, build_filter, iter_filter_stages
-from .levels import RF_EXTRAPOLATION_LIMIT_DB, LevelTable, build_table
+from .filters import Filter
+from .levels import RF_EXTRAPOLATION_LIMIT_DB, LevelTable
 from .plan import Plan
 from .products import (
     LABELS,
@@ -73,24 +76,12 @@ from .products import (
     response_family,
     response_labels,
 )
-from .requirements import Limits, resolve_limits
 from .units import format_frequency
 
 __all__ = ["Evaluation", "Summary", "evaluate", "frame_records", "FRAME_COLUMNS", "MAX_HIT_ROWS"]
 
 #: Failing (channel, product) rows kept in :attr:`Evaluation.hits`; more are counted, not stored.
 MAX_HIT_ROWS = 50_000
-#: A band filter wider than this fraction of its centre is warned about when it uses the
-#: arithmetic (narrow-band) transform, which is accurate only for narrow filters (common
-#: practice, no source: about 5 %).
-ARITHMETIC_WARN_FRACTION = 0.05
-#: An RF drive at the mixer closer than this to the LO drive is warned about as compression,
-#: dB (common practice, no source).
-COMPRESSION_MARGIN_DB = 10.0
-#: A wanted signal this far (dB) down a fixed filter's skirt is reported in the warnings.
-WANTED_LOSS_WARN_DB = 3.0
-#: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
-MAX_FILTER_LOSS_DB = 400.0
 #: Channels processed per block; bounds peak memory whatever the sweep size.  Blocks of a
 #: few hundred channels keep the (channels x products) temporaries in cache and out of
 #: fresh-page faults: measured fastest for orders 7-15 on our machines.
@@ -225,7 +216,7 @@ class Evaluation:
         hits: pd.DataFrame,
         summary: Summary,
         warnings: tuple[str, ...],
-        context: _Context,
+        context: Context,
     ) -> None:
         values = {
             "plan": plan,
@@ -334,13 +325,6 @@ class Evaluation:
         }
 
 
-def _read_only(array: np.ndarray) -> np.ndarray:
-    """A read-only copy of ``array`` (nothing else holds a writable alias of it)."""
-    out = np.array(array, copy=True)
-    out.setflags(write=False)
-    return out
-
-
 def _plain(value: Any) -> Any:
     if isinstance(value, (np.floating, float)):
         value = float(value)
@@ -357,177 +341,6 @@ def frame_records(frame: pd.DataFrame) -> list[dict[str, Any]]:
 
 
 # ------------------------------------------------------------------ engine
-
-
-@dataclass(frozen=True)
-class _Context:
-    """Everything the per-block evaluation needs, built once per plan."""
-
-    plan: Plan
-    table: LevelTable
-    rf_filter: Filter | None
-    if_filter: Filter | None
-    channels_hz: np.ndarray
-    lo_hz: np.ndarray
-    f_in_hz: np.ndarray  # wanted centre at the mixer signal input
-    f_out_hz: np.ndarray  # wanted output centre
-    wanted_sign: np.ndarray
-    out_low_hz: float  # output passband
-    out_high_hz: float
-    out_filter_target_hz: float  # where the fixed output filter loses least
-    lo_filter: Filter | None = None  # checked for the LO drive it takes away; not applied to levels
-    limits: Limits | None = None  # the requirement's limits for this direction
-
-
-def _build_context(plan: Plan, base_dir: Path | None) -> _Context:
-    channels = plan.channels_hz()
-    lo = plan.lo_hz()
-    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
-    rf_filter = (None if plan.filters.rf is None
-                 else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf."))
-    if_filter = (None if plan.filters.if_ is None
-                 else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if."))
-    lo_filter = (None if plan.filters.lo is None
-                 else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo."))
-    if plan.direction == "down":
-        f_in = channels
-        diff = np.abs(channels - lo)
-        summ = channels + lo
-        in_if = lambda f: (f >= plan.if_.f_low_hz) & (f <= plan.if_.f_high_hz)  # noqa: E731
-        wanted_sign = np.where(in_if(summ) & ~in_if(diff), 1, -1)
-        f_out = np.where(wanted_sign > 0, summ, diff)
-        out_low, out_high = plan.if_.f_low_hz, plan.if_.f_high_hz
-    else:
-        f_out = channels
-        # The IF input that gives the channel through (1,1): IF + LO (sum, channel above the LO),
-        # IF - LO (difference, LO below the IF) or LO - IF (difference, LO above the IF); the one
-        # nearest the IF centre is the wanted conversion (a fixed LO below a high IF gives IF - LO).
-        # With the IF held (lo.grid_holds 'input', the physical case) the IF input is the one the
-        # ideal, off-grid LO needs, and the output moves by the LO's grid error; with the output
-        # held, the IF input is retuned so that the output stays on the channel.
-        hold_output = plan.lo.grid_holds == "output"
-        lo_for_if = lo if hold_output else plan.nominal_lo_hz(channels)
-        candidates = np.stack([channels - lo_for_if, channels + lo_for_if, lo_for_if - channels])
-        candidates = np.where(candidates > 0, candidates, np.inf)
-        pick = np.argmin(np.abs(candidates - plan.if_.center_hz), axis=0)
-        wanted_sign = np.where(pick == 0, 1, -1)
-        f_in = np.take_along_axis(candidates, pick[None, :], axis=0)[0]
-        if not hold_output:
-            f_out = np.where(wanted_sign > 0, f_in + lo, np.abs(f_in - lo))
-        half = plan.signal.bandwidth_hz / 2
-        out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
-    output_filter = if_filter if plan.direction == "down" else rf_filter
-    target = _least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
-    channels, lo, f_in, f_out, wanted_sign = (_read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
-    return _Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high,
-                    target, lo_filter=lo_filter, limits=resolve_limits(plan.requirement, plan.direction))
-
-
-def _rel_atten(
-    filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None, field: str
-) -> np.ndarray:
-    """Filter loss at ``f_hz`` less its loss at ``f_ref_hz`` (the wanted), dB."""
-    if filt is None:
-        return np.zeros(np.broadcast_shapes(np.shape(f_hz), np.shape(f_ref_hz)))
-    c = None
-    if filt.tracks_channel:
-        c = centre
-    a = _capped(filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz))), field, f_hz)
-    a_ref = _capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))), field,
-                    f_ref_hz)
-    return a - a_ref
-
-
-def _band_rel_atten(ctx: _Context, filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,
-                    centre: np.ndarray | None, field: str) -> np.ndarray:
-    """Output-filter loss of product bands [f_low, f_high] (Cb, K) less its loss at the wanted output, dB.
-
-    The product reaches the output through the least-loss point of its band: the point nearest
-    the filter's own passband centre (the channel, if it tracks it).
-    """
-    c = None if centre is None else centre[:, None]
-    target = c if (c is not None and filt.tracks_channel) else ctx.out_filter_target_hz
-    nearest = np.clip(target, f_low, f_high)
-    return _rel_atten(filt, nearest, f_ref[:, None], c, field)
-
-
-def _mask_margins(ctx: _Context, level: np.ndarray, filt: Filter | None, p_low: np.ndarray, p_high: np.ndarray,
-                  f_out: np.ndarray, centre: np.ndarray | None, field: str, wanted_out_dbm: np.ndarray,
-                  out: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """A transmitter's product margins against its emission mask, written into ``out`` (Cb, K).
-
-    Each product band is cut into the mask's pieces (segments and the gaps between them); each
-    part is judged against its piece's limit after the output filter's loss over that part, and
-    the margin is the smallest.  Returns the level (dBc), the filter loss and the piece index
-    (+1, the ``requirement`` code) of the limiting part.
-    """
-    lim = ctx.limits
-    shape = out.shape
-    out.fill(np.inf)
-    best_level = np.broadcast_to(level, shape).copy()
-    best_atten = np.zeros(shape)
-    best_req = np.ones(shape, dtype=np.int8)
-    for i in range(lim.n_pieces):
-        low = np.maximum(p_low, lim.pieces_low_hz[i])
-        high = np.minimum(p_high, lim.pieces_high_hz[i])
-        hit = low <= high
-        if not hit.any():
-            continue
-        if filt is None:
-            atten = np.zeros(shape)
-        else:
-            atten = _band_rel_atten(ctx, filt, np.where(hit, low, p_low), np.where(hit, high, p_high), f_out, centre,
-                                    field)
-        piece_level = level - atten
-        piece_margin = lim.pieces_limit[i] - piece_level
-        if lim.pieces_dbm[i]:
-            piece_margin -= wanted_out_dbm
-        better = hit & (piece_margin < out)
-        np.copyto(out, piece_margin, where=better)
-        np.copyto(best_level, piece_level, where=better)
-        np.copyto(best_atten, atten, where=better)
-        best_req[better] = i + 1
-    return best_level, best_atten, best_req
-
-
-def _capped(atten_db: np.ndarray, field: str, f_hz: np.ndarray) -> np.ndarray:
-    """Filter loss limited to :data:`MAX_FILTER_LOSS_DB` (an exact zero of a response is not infinite here).
-
-    A NaN loss is an :class:`~mixchart.errors.AnalysisError` naming the filter (``field``) and the
-    first frequency of ``f_hz`` where it happened: it never reaches a margin.
-    """
-    atten_db = np.asarray(atten_db, dtype=float)
-    bad = np.isnan(atten_db)
-    if bad.any():
-        f_bad = float(np.broadcast_to(f_hz, atten_db.shape)[bad].flat[0])
-        raise AnalysisError(
-            f"{field}: the filter's loss at {format_frequency(f_bad)} is not a number (NaN); "
-            "check its description there (a NaN is never reported as a margin)"
-        )
-    return np.minimum(atten_db, MAX_FILTER_LOSS_DB)
-
-
-def _least_loss_target_hz(filt: Filter | None, fallback_hz: float) -> float:
-    """Where a fixed filter loses least, nominally.
-
-    A band-pass filter or tuned circuit: its centre; otherwise the middle of its
-    nominal passband, 0 Hz when that starts at 0 (low-pass, band-stop) and
-    infinity when it has no top (high-pass).
-    """
-    if filt is None or filt.tracks_channel:
-        return fallback_hz
-    spec = filt.spec
-    centre = getattr(spec, "f_center_hz", None)
-    if centre is not None and (spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass"):
-        return float(centre)
-    low, high = filt.passband_hz()
-    if not (low == low and high == high):  # NaN: a cascade with no common passband
-        return fallback_hz
-    if low <= 0.0:
-        return 0.0
-    if math.isinf(high):
-        return math.inf
-    return 0.5 * (low + high)
 
 
 def _gather(column, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
@@ -709,7 +522,7 @@ class _BandEdge:
         return self.bands.at(rows, cols)[self.which]
 
 
-def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
+def _evaluate_block(ctx: Context, rows: slice) -> _Block:
     """Products and responses of the channels ``rows``.
 
     Works in place on as few full (channels x products) arrays as it can: labels,
@@ -745,14 +558,14 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         in_field, out_field = "filters.if", "filters.rf"
     if input_filter is not None:
         c = None if not input_filter.tracks_channel else in_filter_centre
-        drive = (sig_dbm - _capped(input_filter.atten_db(f_in, c), in_field, f_in))[:, None]
+        drive = (sig_dbm - capped(input_filter.atten_db(f_in, c), in_field, f_in))[:, None]
     else:
         drive = np.full((1, 1), sig_dbm)  # the same for every channel: levels work out once per column
     # the wanted output, dBm: the drive less the conversion loss and the output filter's loss there
     wanted_out_dbm = drive - ctx.table.conversion_loss_db
     if output_filter is not None:
         c = None if out_filter_centre is None or not output_filter.tracks_channel else out_filter_centre
-        wanted_out_dbm = wanted_out_dbm - _capped(output_filter.atten_db(f_out, c), out_field, f_out)[:, None]
+        wanted_out_dbm = wanted_out_dbm - capped(output_filter.atten_db(f_out, c), out_field, f_out)[:, None]
     wanted_out_dbm = np.broadcast_to(wanted_out_dbm, (nb, 1))
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_p = np.broadcast_to(table_p, shape)
@@ -769,14 +582,14 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         out_atten = _Derived(_brick_wall_db, in_band)
         p_level = np.where(in_band, level, -np.inf)
     else:
-        out_atten = _band_rel_atten(ctx, output_filter, p_low, p_high, f_out, out_filter_centre, out_field)
+        out_atten = band_rel_atten(ctx, output_filter, p_low, p_high, f_out, out_filter_centre, out_field)
         p_level = level - out_atten
     p_margin = margin[:, :k_p]
     if down or limits.n_pieces == 1:
         np.subtract(limits.spur_dbc, p_level, out=p_margin)  # margin = limit - level, in one pass
         p_req = np.broadcast_to(np.int8(1), shape)
     else:  # a transmitter's emission mask: each part of a band against its piece's limit
-        p_level, out_atten, p_req = _mask_margins(ctx, level, output_filter, p_low, p_high, f_out,
+        p_level, out_atten, p_req = mask_margins(ctx, level, output_filter, p_low, p_high, f_out,
                                                   out_filter_centre, out_field, wanted_out_dbm, p_margin)
     # labels depend on the channel only through the wanted sign: one table row per sign
     p_labels = _labels_by_group(
@@ -829,9 +642,9 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
         # The unwanted input's loss at the band point nearest the channel (conservative).
         probe = np.clip(ch[:, None], r_low, r_high)
         c = ch[:, None] if ctx.rf_filter.tracks_channel else None
-        a_in = _capped(ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape)),
+        a_in = capped(ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape)),
                        "filters.rf", probe)
-        a_w = _capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None), "filters.rf",
+        a_w = capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None), "filters.rf",
                       ch)[:, None]
         mixer_drive = u_dbm - a_in
     else:
@@ -886,12 +699,12 @@ def _evaluate_block(ctx: _Context, rows: slice) -> _Block:
     return _Block([products, responses], margin)
 
 
-def _frame(block: _Block, mask: np.ndarray, ctx: _Context) -> pd.DataFrame:
+def _frame(block: _Block, mask: np.ndarray, ctx: Context) -> pd.DataFrame:
     """Frame of the rows where ``mask`` (shape of ``block.margin_db``) is True, in row-major order."""
     return _frame_at(block, *np.nonzero(mask), ctx)
 
 
-def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray, ctx: _Context) -> pd.DataFrame:
+def _frame_at(block: _Block, rows: np.ndarray, cols: np.ndarray, ctx: Context) -> pd.DataFrame:
     """Frame of the given (channel row, product column) pairs, in that order."""
     return _frame_from(block.take(rows, cols), ctx)
 
@@ -900,7 +713,7 @@ _KIND_TEXT = np.asarray(("product", "response"), dtype=object)
 _LABEL_TEXT = np.asarray(LABELS, dtype=object)
 
 
-def _frame_from(data: dict[str, np.ndarray], ctx: _Context) -> pd.DataFrame:
+def _frame_from(data: dict[str, np.ndarray], ctx: Context) -> pd.DataFrame:
     """Frame (columns :data:`FRAME_COLUMNS`) of gathered block columns.
 
     Built without copying the gathered arrays (they are fresh and never written
@@ -988,7 +801,7 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         If a filter or level table described by the plan is invalid.
     """
     base = None if base_dir is None else Path(base_dir)
-    ctx = _build_context(plan, base)
+    ctx = build_context(plan, base)
     n_ch = ctx.channels_hz.size
     worst_margin = np.empty(n_ch)
     # Per-chunk results stay plain numpy; the frames are built once at the end.
@@ -1098,7 +911,7 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         worst_by_product=wbp,
         hits=hit_frame,
         summary=summary,
-        warnings=tuple(_warnings(ctx) + _span_warnings(ctx, wbp)),
+        warnings=tuple(plan_warnings(ctx) + span_warnings(ctx, wbp)),
         context=ctx,
     )
 
@@ -1115,183 +928,3 @@ def _nan_error(block: _Block, start: int) -> AnalysisError:
         f"{format_frequency(float(r['channel_hz']))} (channel index {start + row}) has no number (NaN) for its "
         "level; check the field's values there (a NaN is never reported as a margin)"
     ))
-
-
-def _measured_stages(filt: Filter | None, field: str):
-    """Every measured (Touchstone) filter inside ``filt``, with its dotted field name."""
-    stages = getattr(filt, "stages", None)
-    if stages is not None:
-        for i, stage in enumerate(stages):
-            yield from _measured_stages(stage, f"{field}.stages.{i}")
-    elif filt is not None and hasattr(filt, "table_db"):
-        yield field, filt
-
-
-def _span_warnings(ctx: _Context, worst_by_product: pd.DataFrame) -> list[str]:
-    """Say when measured data was read outside its span, and how many worst-case rows it touched.
-
-    A Touchstone filter asked outside its file's span uses its policy (``outside``: the end
-    values held, or an error); held values are an assumption, so every worst-case row whose
-    band reaches outside the span is counted and named here, never silently.
-    """
-    down = ctx.plan.direction == "down"
-    out: list[str] = []
-    # (filter, field, the frequencies it is read at in the worst-case rows, which rows)
-    kinds = worst_by_product["kind"].to_numpy()
-    low, high = worst_by_product["f_low_hz"].to_numpy(), worst_by_product["f_high_hz"].to_numpy()
-    uses = ((ctx.rf_filter, "filters.rf", "response" if down else "product"),
-            (ctx.if_filter, "filters.if", "product" if down else None))
-    for filt, field, kind in uses:
-        for name, stage in _measured_stages(filt, field):
-            f0, f1 = float(stage.f_hz[0]), float(stage.f_hz[-1])
-            wanted = ctx.channels_hz if field == "filters.rf" else (ctx.f_out_hz if down else ctx.f_in_hz)
-            rows = kinds == kind if kind else np.zeros(kinds.size, bool)
-            outside = rows & ((low < f0) | (high > f1))
-            n_wanted = int(np.count_nonzero((wanted < f0) | (wanted > f1)))
-            if outside.any() or n_wanted:
-                parts = []
-                if outside.any():
-                    parts.append(f"{int(outside.sum())} of {int(rows.sum())} worst-case rows "
-                                 f"({format_frequency(float(low[outside].min()))} to "
-                                 f"{format_frequency(float(high[outside].max()))})")
-                if n_wanted:
-                    parts.append(f"the wanted signal on {n_wanted} channel(s)")
-                out.append(f"{name}: {' and '.join(parts)} read outside the file's span "
-                           f"{format_frequency(f0)} to {format_frequency(f1)}; the end values are held there "
-                           "(an assumption: measure wider, or set outside='error')")
-    return out
-
-
-def _warnings(ctx: _Context) -> list[str]:
-    plan = ctx.plan
-    out: list[str] = []
-    rf_low = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
-    rf_high = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
-    if plan.if_.f_low_hz <= rf_high and plan.if_.f_high_hz >= rf_low:
-        out.append(
-            f"IF passband {format_frequency(plan.if_.f_low_hz)}-{format_frequency(plan.if_.f_high_hz)} "
-            f"overlaps the RF band {format_frequency(rf_low)}-{format_frequency(rf_high)}: "
-            "signals there feed straight through"
-        )
-    if plan.direction == "down":
-        err = ctx.f_out_hz - plan.if_.center_hz
-    else:
-        err = ctx.f_in_hz - plan.if_.center_hz
-    half_room = (plan.if_.bandwidth_hz - plan.signal.bandwidth_hz) / 2
-    misfit = np.abs(err) > half_room + 1e-9 * plan.if_.center_hz
-    if misfit.any():
-        k = int(np.argmax(np.abs(err)))
-        out.append(
-            f"{int(misfit.sum())} channel(s) do not fit the IF passband with the signal bandwidth "
-            f"(worst: {format_frequency(ctx.channels_hz[k])}, off by {format_frequency(abs(err[k]))})"
-        )
-    if plan.lo.mode == "fixed" and plan.lo.step_hz is not None:
-        moved = float(np.max(np.abs(ctx.lo_hz - float(plan.lo.fixed_hz))))
-        if moved > 0:
-            out.append(f"lo.step_hz: the step grid moves the fixed LO {format_frequency(float(plan.lo.fixed_hz))} "
-                       f"by {format_frequency(moved)}; the analysis uses the LO on the grid")
-    if plan.direction == "down" and plan.requirement.emission_mask:
-        out.append("requirement.emission_mask: a receiver has no emission mask; its segments are ignored "
-                   "(products are judged against output_spur_dbc)")
-    if plan.direction == "down" and plan.signal.interferer_bandwidth_hz is None:
-        out.append("signal.interferer_bandwidth_hz: not given, so each response band assumes a CW interferer; "
-                   "a modulated interferer B wide widens every band by B/2 on each side")
-    if plan.direction == "down" and plan.max_order < 4:
-        out.append(f"max_order: {plan.max_order} < 4, so the half-IF response (2,2) is not analysed")
-    for name, spec in (("filters.rf", plan.filters.rf), ("filters.if", plan.filters.if_),
-                       ("filters.lo", plan.filters.lo)):
-        if spec is None:
-            continue
-        for where, stage in iter_filter_stages(spec, name):
-            centre, width = getattr(stage, "f_center_hz", None), getattr(stage, "bandwidth_hz", None)
-            if getattr(stage, "transform", None) != "arithmetic" or width is None:
-                continue
-            # tracking stages take the channel as centre: judge them at the lowest channel
-            f0 = float(centre) if centre is not None else float(ctx.channels_hz.min())
-            if width / f0 > ARITHMETIC_WARN_FRACTION:
-                out.append(f"{where}.transform: the arithmetic (narrow-band) transform on a "
-                           f"{100 * width / f0:.1f}% wide filter misstates its skirts; use 'geometric'")
-    if plan.lo.step_hz is not None:
-        worst_step = float(np.max(np.abs(ctx.lo_hz - plan.nominal_lo_hz(ctx.channels_hz))))
-        if worst_step > 0 and plan.direction == "down":
-            out.append(f"LO grid error up to {format_frequency(worst_step)}: the RF channel is where it is, so the "
-                       "wanted IF output and every product move by as much")
-        elif worst_step > 0 and plan.lo.grid_holds == "input":
-            out.append(f"LO grid error up to {format_frequency(worst_step)}: the IF input is held (lo.grid_holds "
-                       "'input'), so the wanted output and every product move off the channel by as much")
-        elif worst_step > 0:
-            out.append(f"LO grid error up to {format_frequency(worst_step)}: the IF input is retuned by as much to "
-                       "keep the output on the channel (lo.grid_holds 'output')")
-    if plan.direction == "down" and plan.lo.grid_holds == "output":
-        out.append("lo.grid_holds: 'output' applies to a transmitter; a receiver's RF channel is where it is, "
-                   "so its output moves with the LO (as for 'input')")
-    down = plan.direction == "down"
-    # (field, filter, the frequencies that must pass it, what they are, what follows)
-    must_pass = (
-        ("filters.rf", ctx.rf_filter, ctx.channels_hz, "the wanted signal", "move the filter with the plan"),
-        ("filters.if", ctx.if_filter, ctx.f_out_hz if down else ctx.f_in_hz, "the wanted signal",
-         "move the filter with the plan"),
-        # the tables hold at the stated LO drive: an LO on the skirt starves the mixer, and the
-        # levels are not scaled for that (the LO filter is not applied to levels)
-        ("filters.lo", ctx.lo_filter, ctx.lo_hz, "the LO",
-         "the mixer's LO drive falls by as much and the levels, stated at the table's LO drive, do not follow"),
-    )
-    for name, filt, f_hz, what, advice in must_pass:
-        if filt is None or filt.tracks_channel:
-            continue  # a tracking filter follows the wanted signal by construction
-        loss = _capped(filt.atten_db(f_hz), name, f_hz) - _passband_loss_db(filt)
-        k = int(np.argmax(loss))
-        if loss[k] > WANTED_LOSS_WARN_DB:
-            out.append(
-                f"{name}: {what} at {format_frequency(f_hz[k])} is {loss[k]:.1f} dB down the filter's "
-                f"skirt (channel {format_frequency(ctx.channels_hz[k])}); {advice}"
-            )
-    if plan.direction == "up" and ctx.rf_filter is None:
-        out.append("filters.rf: no output filter described; every product is taken at 0 dB of filter loss "
-                   "wherever it lands (add the real output filter for real margins)")
-    elif plan.direction == "down" and ctx.if_filter is None:
-        out.append("filters.if: no IF filter described; the IF passband is taken as an ideal brick wall "
-                   "(products outside it are not counted)")
-    # Drives at the mixer, after the input-side filter's loss: the wanted signal on every
-    # channel, and (receivers) the interferer at its least-loss point, the channel itself.
-    in_filter = ctx.rf_filter if plan.direction == "down" else ctx.if_filter
-    in_field = "filters.rf" if plan.direction == "down" else "filters.if"
-    centre = ctx.channels_hz if (in_filter is not None and in_filter.tracks_channel) else None
-    loss = np.zeros_like(ctx.f_in_hz) if in_filter is None else _capped(
-        in_filter.atten_db(ctx.f_in_hz, centre), in_field, ctx.f_in_hz)
-    drive = plan.signal.level_dbm - loss
-    out.extend(ctx.table.drive_warnings(drive, plan.mixer.lo_drive_dbm))
-    if in_filter is not None and float(loss.max()) > WANTED_LOSS_WARN_DB:
-        k = int(np.argmax(loss))
-        out.append(f"signal.level_dbm: the wanted drive at the mixer is {drive[k]:.1f} dBm on channel "
-                   f"{format_frequency(float(ctx.channels_hz[k]))}, {loss[k]:.1f} dB below the signal level "
-                   f"after {in_field}")
-    strongest = float(drive.max())
-    interferer = plan.signal.interferer_level_dbm
-    if plan.direction == "down" and interferer is not None:
-        u_mix = interferer - float(loss.min())  # pessimistic: at the preselector's least loss
-        strongest = max(strongest, u_mix)
-        if abs(u_mix - ctx.table.rf_ref_dbm) > RF_EXTRAPOLATION_LIMIT_DB:
-            out.append("signal.interferer_level_dbm: the interferer's " + ctx.table.drive_warnings(
-                u_mix, ctx.table.lo_ref_dbm)[0])
-    # Compression: a switching mixer stays near its small-signal levels only with the RF drive
-    # well below the LO drive (common practice, no source: about 10 dB below).
-    if strongest > plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB:
-        out.append(f"mixer.lo_drive_dbm: an RF drive of {strongest:.1f} dBm at the mixer is within "
-                   f"{COMPRESSION_MARGIN_DB:g} dB of the {plan.mixer.lo_drive_dbm:g} dBm LO drive: the mixer "
-                   "compresses and the levels are optimistic there")
-    note = ctx.table.fallback_note(plan.max_order)
-    if note:
-        out.append(note)
-    return out
-
-
-def _passband_loss_db(filt: Filter) -> float:
-    """Smallest loss of a fixed filter across its nominal passband, dB (its insertion loss)."""
-    low, high = filt.passband_hz()
-    if not (math.isfinite(low) and high > low):
-        return 0.0
-    if not math.isfinite(high):
-        high = 4 * max(low, 1.0)
-    grid = np.linspace(low, high, 129)
-    return float(np.min(filt.atten_db(grid)))

@@ -118,10 +118,10 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    from .analysis import _build_context
+    from .context import build_context
 
     plan, base = _load(args)
-    _build_context(plan, base)  # filters and level tables load too
+    build_context(plan, base)  # filters and level tables load too
     print(f"ok: {plan.name!r}: {plan.rf.n_channels} channel(s), order {plan.max_order}, direction {plan.direction}")
     return 0
 

@@ -305,10 +305,10 @@ def _nan_above(filt, f_hz: float):
 
 
 def test_a_nan_margin_is_an_error_naming_the_term_never_a_pass(monkeypatch):
-    import mixchart.analysis as analysis
+    import mixchart.context as context
 
     plan = load_plan(example_path("fm_receiver"))
-    build = analysis.build_filter
+    build = context.build_filter
 
     def nan_filter(spec, **kwargs):
         filt = build(spec, **kwargs)
@@ -316,7 +316,7 @@ def test_a_nan_margin_is_an_error_naming_the_term_never_a_pass(monkeypatch):
             _nan_above(filt, 150e6)  # the FM preselector has no number above 150 MHz
         return filt
 
-    monkeypatch.setattr(analysis, "build_filter", nan_filter)
+    monkeypatch.setattr(context, "build_filter", nan_filter)
     with pytest.raises(AnalysisError) as info:
         evaluate(plan)
     message = one_line_error(info)

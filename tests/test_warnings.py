@@ -158,7 +158,7 @@ def test_every_row_says_the_drive_it_was_read_at_and_whether_the_table_holds_the
     # preselector): within 10 dB of the reference and 37 dB under the LO, so valid.  Responses
     # are read at the interferer's drive, +20 dBm (no preselector loss): 50 dB from the
     # reference and above the LO drive, so flagged (thresholds: levels.RF_EXTRAPOLATION_LIMIT_DB,
-    # analysis.COMPRESSION_MARGIN_DB; arithmetic by hand).
+    # checks.COMPRESSION_MARGIN_DB; arithmetic by hand).
     data = copy.deepcopy(BASE)
     data["signal"] = {"bandwidth_hz": "100 kHz", "level_dbm": -30, "interferer_level_dbm": 20}
     data["mixer"] = {"rf_ref_dbm": -30}

@@ -1,0 +1,203 @@
+"""The sweep context of an evaluation and the filter losses as the analysis applies them.
+
+:func:`build_context` works out, once per plan, the channels, the LO on its grid, the wanted
+conversion of every channel, the built filters and level table and the requirement's limits;
+the loss helpers turn a filter's attenuation into the relative losses the level model uses
+(:mod:`mixchart.analysis` docstring).  Pure numpy; never imports a plotting library.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .errors import AnalysisError
+from .filters import Filter, build_filter
+from .levels import LevelTable, build_table
+from .plan import Plan
+from .requirements import Limits, resolve_limits
+from .units import format_frequency
+
+#: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
+MAX_FILTER_LOSS_DB = 400.0
+
+
+def read_only(array: np.ndarray) -> np.ndarray:
+    """A read-only copy of ``array`` (nothing else holds a writable alias of it)."""
+    out = np.array(array, copy=True)
+    out.setflags(write=False)
+    return out
+
+
+@dataclass(frozen=True)
+class Context:
+    """Everything the per-block evaluation needs, built once per plan."""
+
+    plan: Plan
+    table: LevelTable
+    rf_filter: Filter | None
+    if_filter: Filter | None
+    channels_hz: np.ndarray
+    lo_hz: np.ndarray
+    f_in_hz: np.ndarray  # wanted centre at the mixer signal input
+    f_out_hz: np.ndarray  # wanted output centre
+    wanted_sign: np.ndarray
+    out_low_hz: float  # output passband
+    out_high_hz: float
+    out_filter_target_hz: float  # where the fixed output filter loses least
+    lo_filter: Filter | None = None  # checked for the LO drive it takes away; not applied to levels
+    limits: Limits | None = None  # the requirement's limits for this direction
+
+
+def build_context(plan: Plan, base_dir: Path | None) -> Context:
+    channels = plan.channels_hz()
+    lo = plan.lo_hz()
+    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
+    rf_filter = (None if plan.filters.rf is None
+                 else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf."))
+    if_filter = (None if plan.filters.if_ is None
+                 else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if."))
+    lo_filter = (None if plan.filters.lo is None
+                 else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo."))
+    if plan.direction == "down":
+        f_in = channels
+        diff = np.abs(channels - lo)
+        summ = channels + lo
+        in_if = lambda f: (f >= plan.if_.f_low_hz) & (f <= plan.if_.f_high_hz)  # noqa: E731
+        wanted_sign = np.where(in_if(summ) & ~in_if(diff), 1, -1)
+        f_out = np.where(wanted_sign > 0, summ, diff)
+        out_low, out_high = plan.if_.f_low_hz, plan.if_.f_high_hz
+    else:
+        f_out = channels
+        # The IF input that gives the channel through (1,1): IF + LO (sum, channel above the LO),
+        # IF - LO (difference, LO below the IF) or LO - IF (difference, LO above the IF); the one
+        # nearest the IF centre is the wanted conversion (a fixed LO below a high IF gives IF - LO).
+        # With the IF held (lo.grid_holds 'input', the physical case) the IF input is the one the
+        # ideal, off-grid LO needs, and the output moves by the LO's grid error; with the output
+        # held, the IF input is retuned so that the output stays on the channel.
+        hold_output = plan.lo.grid_holds == "output"
+        lo_for_if = lo if hold_output else plan.nominal_lo_hz(channels)
+        candidates = np.stack([channels - lo_for_if, channels + lo_for_if, lo_for_if - channels])
+        candidates = np.where(candidates > 0, candidates, np.inf)
+        pick = np.argmin(np.abs(candidates - plan.if_.center_hz), axis=0)
+        wanted_sign = np.where(pick == 0, 1, -1)
+        f_in = np.take_along_axis(candidates, pick[None, :], axis=0)[0]
+        if not hold_output:
+            f_out = np.where(wanted_sign > 0, f_in + lo, np.abs(f_in - lo))
+        half = plan.signal.bandwidth_hz / 2
+        out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
+    output_filter = if_filter if plan.direction == "down" else rf_filter
+    target = least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
+    channels, lo, f_in, f_out, wanted_sign = (read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
+    return Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high,
+                    target, lo_filter=lo_filter, limits=resolve_limits(plan.requirement, plan.direction))
+
+
+def rel_atten(
+    filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None, field: str
+) -> np.ndarray:
+    """Filter loss at ``f_hz`` less its loss at ``f_ref_hz`` (the wanted), dB."""
+    if filt is None:
+        return np.zeros(np.broadcast_shapes(np.shape(f_hz), np.shape(f_ref_hz)))
+    c = None
+    if filt.tracks_channel:
+        c = centre
+    a = capped(filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz))), field, f_hz)
+    a_ref = capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))), field,
+                    f_ref_hz)
+    return a - a_ref
+
+
+def band_rel_atten(ctx: Context, filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,
+                    centre: np.ndarray | None, field: str) -> np.ndarray:
+    """Output-filter loss of product bands [f_low, f_high] (Cb, K) less its loss at the wanted output, dB.
+
+    The product reaches the output through the least-loss point of its band: the point nearest
+    the filter's own passband centre (the channel, if it tracks it).
+    """
+    c = None if centre is None else centre[:, None]
+    target = c if (c is not None and filt.tracks_channel) else ctx.out_filter_target_hz
+    nearest = np.clip(target, f_low, f_high)
+    return rel_atten(filt, nearest, f_ref[:, None], c, field)
+
+
+def mask_margins(ctx: Context, level: np.ndarray, filt: Filter | None, p_low: np.ndarray, p_high: np.ndarray,
+                  f_out: np.ndarray, centre: np.ndarray | None, field: str, wanted_out_dbm: np.ndarray,
+                  out: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A transmitter's product margins against its emission mask, written into ``out`` (Cb, K).
+
+    Each product band is cut into the mask's pieces (segments and the gaps between them); each
+    part is judged against its piece's limit after the output filter's loss over that part, and
+    the margin is the smallest.  Returns the level (dBc), the filter loss and the piece index
+    (+1, the ``requirement`` code) of the limiting part.
+    """
+    lim = ctx.limits
+    shape = out.shape
+    out.fill(np.inf)
+    best_level = np.broadcast_to(level, shape).copy()
+    best_atten = np.zeros(shape)
+    best_req = np.ones(shape, dtype=np.int8)
+    for i in range(lim.n_pieces):
+        low = np.maximum(p_low, lim.pieces_low_hz[i])
+        high = np.minimum(p_high, lim.pieces_high_hz[i])
+        hit = low <= high
+        if not hit.any():
+            continue
+        if filt is None:
+            atten = np.zeros(shape)
+        else:
+            atten = band_rel_atten(ctx, filt, np.where(hit, low, p_low), np.where(hit, high, p_high), f_out, centre,
+                                    field)
+        piece_level = level - atten
+        piece_margin = lim.pieces_limit[i] - piece_level
+        if lim.pieces_dbm[i]:
+            piece_margin -= wanted_out_dbm
+        better = hit & (piece_margin < out)
+        np.copyto(out, piece_margin, where=better)
+        np.copyto(best_level, piece_level, where=better)
+        np.copyto(best_atten, atten, where=better)
+        best_req[better] = i + 1
+    return best_level, best_atten, best_req
+
+
+def capped(atten_db: np.ndarray, field: str, f_hz: np.ndarray) -> np.ndarray:
+    """Filter loss limited to :data:`MAX_FILTER_LOSS_DB` (an exact zero of a response is not infinite here).
+
+    A NaN loss is an :class:`~mixchart.errors.AnalysisError` naming the filter (``field``) and the
+    first frequency of ``f_hz`` where it happened: it never reaches a margin.
+    """
+    atten_db = np.asarray(atten_db, dtype=float)
+    bad = np.isnan(atten_db)
+    if bad.any():
+        f_bad = float(np.broadcast_to(f_hz, atten_db.shape)[bad].flat[0])
+        raise AnalysisError(
+            f"{field}: the filter's loss at {format_frequency(f_bad)} is not a number (NaN); "
+            "check its description there (a NaN is never reported as a margin)"
+        )
+    return np.minimum(atten_db, MAX_FILTER_LOSS_DB)
+
+
+def least_loss_target_hz(filt: Filter | None, fallback_hz: float) -> float:
+    """Where a fixed filter loses least, nominally.
+
+    A band-pass filter or tuned circuit: its centre; otherwise the middle of its
+    nominal passband, 0 Hz when that starts at 0 (low-pass, band-stop) and
+    infinity when it has no top (high-pass).
+    """
+    if filt is None or filt.tracks_channel:
+        return fallback_hz
+    spec = filt.spec
+    centre = getattr(spec, "f_center_hz", None)
+    if centre is not None and (spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass"):
+        return float(centre)
+    low, high = filt.passband_hz()
+    if not (low == low and high == high):  # NaN: a cascade with no common passband
+        return fallback_hz
+    if low <= 0.0:
+        return 0.0
+    if math.isinf(high):
+        return math.inf
+    return 0.5 * (low + high)
