@@ -116,7 +116,7 @@ FRAME_COLUMNS: dict[str, str] = {
     "margin_db": "response: rejection_db - limit; product: limit - level (dBc or dBm); >= 0 passes",
     "mixer_drive_dbm": "RF drive at the mixer's signal input that the row's level was read at, dBm (product: the "
     "wanted after the input filter; response: the interferer after the preselector's loss)",
-    "drive_ok": "mixer_drive_dbm within 10 dB of the level table's reference and 10 dB under the LO drive",
+    "drive_ok": "mixer_drive_dbm at most 10 dB above the level table's reference and 10 dB under the LO drive",
     "passes": "margin_db >= 0",
     "extra_rf_db": "extra RF-filter rejection at the spur that would make it pass, dB (NaN: none needed or no help)",
     "extra_if_db": "extra IF/output-filter rejection that would make it pass, dB (NaN: none needed or no help)",
@@ -742,11 +742,13 @@ def _frame_from(data: dict[str, np.ndarray], ctx: Context) -> pd.DataFrame:
     columns["requirement"] = np.asarray(limits.texts, dtype=object)[req]
     columns["limit"] = limit[req]
     columns["limit_unit"] = unit[req]
-    # the table's levels hold near its reference drive (levels.RF_EXTRAPOLATION_LIMIT_DB) and with
-    # the RF drive well under the LO drive (COMPRESSION_MARGIN_DB): rows outside are flagged
+    # The table's levels hold up to RF_EXTRAPOLATION_LIMIT_DB above its reference drive and with the
+    # RF drive COMPRESSION_MARGIN_DB under the LO drive: rows read beyond are flagged.  Below the
+    # reference the small-signal slope of (m - 1) dB per dB is the power-series result itself, so
+    # lower drives are not flagged (the summary's drive warning still names a far reference).
     drive = columns["mixer_drive_dbm"]
-    columns["drive_ok"] = ((np.abs(drive - ctx.table.rf_ref_dbm) <= RF_EXTRAPOLATION_LIMIT_DB)
-                           & (drive <= ctx.plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB)) | np.isneginf(drive)
+    columns["drive_ok"] = ((drive <= ctx.table.rf_ref_dbm + RF_EXTRAPOLATION_LIMIT_DB)
+                           & (drive <= ctx.plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB))
     return pd.DataFrame({k: columns[k] for k in FRAME_COLUMNS}, copy=False)
 
 

@@ -51,6 +51,11 @@ def _fmt_db(value: float) -> str:
     return "   -inf" if value == float("-inf") else "    inf" if value == float("inf") else f"{value:7.1f}"
 
 
+def _limit_text(row) -> str:
+    """The row's requirement in short: ">=70 dB" (input-referred rejection), "<=-60 dBc", "<=-36 dBm"."""
+    return f"{'>=' if row.limit_unit == 'dB' else '<='}{row.limit:g} {row.limit_unit}"
+
+
 def _text_table(frame, top: int) -> str:
     from .units import format_frequency
 
@@ -59,23 +64,31 @@ def _text_table(frame, top: int) -> str:
     lo = [format_frequency(f, 7) for f in shown["lo_hz"]]
     band = [f"{format_frequency(a, 7)}-{format_frequency(b, 7)}"
             for a, b in zip(shown["f_low_hz"], shown["f_high_hz"], strict=True)]
+    limit = [_limit_text(row) for row in shown.itertuples(index=False)]
     # frequency columns as wide as their longest entry, so long values never run together
-    w_ch, w_lo, w_band = (max([len(head), *map(len, col)]) for head, col in
-                          (("channel", channel), ("LO", lo), ("spur/input band", band)))
+    w_ch, w_lo, w_band, w_lim = (max([len(head), *map(len, col)]) for head, col in
+                                 (("channel", channel), ("LO", lo), ("spur/input band", band), ("limit", limit)))
     lines = [
         f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>{w_ch}} {'LO':>{w_lo}} "
-        f"{'spur/input band':>{w_band}} {'level dBc':>10} {'margin':>7} {'need RF':>7} {'need IF':>7}"
+        f"{'spur/input band':>{w_band}} {'level dBc':>10} {'rej. dB':>7} {'limit':>{w_lim}} {'margin':>7} "
+        f"{'need RF':>7} {'need IF':>7} drive"
     ]
     for k, row in enumerate(shown.itertuples(index=False)):
         need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:7.1f}"
         need_if = "" if row.extra_if_db != row.extra_if_db else f"{row.extra_if_db:7.1f}"
+        rejection = _fmt_db(row.rejection_db) if row.kind == "response" else ""
+        drive = f"{row.mixer_drive_dbm:.0f} dBm{'' if row.drive_ok else ' (!)'}"
         lines.append(
             f"{row.kind:<8} {row.label:<17} {row.rf_harmonic:>2} {row.lo_harmonic:>2} "
             f"{'+' if row.sign > 0 else '-':>1} {channel[k]:>{w_ch}} {lo[k]:>{w_lo}} "
-            f"{band[k]:>{w_band}} {_fmt_db(row.level_dbc):>10} {_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7}"
+            f"{band[k]:>{w_band}} {_fmt_db(row.level_dbc):>10} {rejection:>7} {limit[k]:>{w_lim}} "
+            f"{_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7} {drive}"
         )
     if len(frame) > top:
         lines.append(f"... {len(frame) - top} more rows (use --top)")
+    lines.append("rej. dB: input-referred response rejection (how much stronger than the wanted an input must be "
+                 "for an equal output); level dBc: at the output after the filters; drive: RF drive at the mixer, "
+                 "(!) where the level table does not hold (over 10 dB above its reference, or near the LO drive)")
     return "\n".join(lines)
 
 
