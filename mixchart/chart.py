@@ -410,6 +410,9 @@ def _point_columns(rows) -> dict[str, list]:
         "kind": rows["kind"].tolist(),
         "freq": [format_frequency(f, 7) for f in rows["f_center_hz"]],
         "level": rows["level_dbc"].to_numpy(float),
+        # responses are judged by their input-referred rejection, products by their output level
+        "rejection": np.where(rows["kind"].to_numpy() == "response", rows["rejection_db"].to_numpy(float), np.nan),
+        "requirement": rows["requirement"].tolist(),
         # the wanted row has no margin (inf): shown as NaN
         "margin": np.where(np.isfinite(rows["margin_db"].to_numpy(float)), rows["margin_db"].to_numpy(float), np.nan),
     }
@@ -466,6 +469,8 @@ _HOVER_POINTS = [
     ("kind", "@kind"),
     ("frequency", "@freq"),
     ("level", "@level{0.0} dBc"),
+    ("rejection (input-referred)", "@rejection{0.0} dB"),
+    ("judged against", "@requirement"),
     ("margin", "@margin{+0.0} dB"),
 ]
 

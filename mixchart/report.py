@@ -180,16 +180,21 @@ def _summary_card(title: str | None, ev: Evaluation) -> str:
 
 def _worst_table(ev: Evaluation, top: int) -> str:
     frame = ev.to_frame()
-    head = ["label", "(m,n)", "kind", "channel", "spur / input band", "level", "margin", "extra RF", "extra IF"]
+    head = ["label", "(m,n)", "kind", "channel", "spur / input band", "level", "rejection", "requirement",
+            "margin", "extra RF", "extra IF"]
     rows = []
     for r in frame.head(top).itertuples(index=False):
         cat = _category(r.margin_db)
         extra = ["" if not math.isfinite(v) else _db(v) for v in (r.extra_rf_db, r.extra_if_db)]
+        # responses: the input-referred rejection; products: the output level is the figure judged
+        rejection = _db(r.rejection_db) if r.kind == "response" else ""
+        drive = "" if r.drive_ok else " <span class=note>(drive beyond the table)</span>"
         cells = [
             f"<td>{_e(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic}) {'+' if r.sign > 0 else '−'}</td>",
             f"<td>{_e(r.kind)}</td><td class=num>{_e(format_frequency(r.channel_hz, 7))}</td>",
             f"<td class=num>{_e(_band(r.f_low_hz, r.f_high_hz))}</td>",
-            f"<td class=num>{_db(r.level_dbc, 'dBc')}</td>",
+            f"<td class=num>{_db(r.level_dbc, 'dBc')}</td><td class=num>{rejection}</td>",
+            f"<td>{_e(r.requirement)}{drive}</td>",
             f'<td class="num cat" style="--cat:{CATEGORIES[cat][1]}">{_db(r.margin_db, sign=True)}</td>',
             f"<td class=num>{extra[0]}</td><td class=num>{extra[1]}</td>",
         ]

@@ -518,6 +518,10 @@ def test_every_column_has_one_length_and_finite_numbers(which, down, up):
                 nan = np.isnan(arr)
                 assert all(lb == "wanted" for lb in np.asarray(columns["label"])[nan]), name
                 assert np.isfinite(arr[~nan]).all(), name
+            elif key == "rejection" and "kind" in columns:
+                # chart._point_columns: only responses have an input-referred rejection; products NaN
+                response = np.asarray(columns["kind"]) == "response"
+                assert np.isnan(arr[~response]).all() and np.isfinite(arr[response]).all(), name
             else:
                 assert np.isfinite(arr).all(), (name, key)
     for key in ("tuning_window", "output_window"):
