@@ -113,7 +113,9 @@ FRAME_COLUMNS: dict[str, str] = {
     "requirement": "the limit the margin is taken against: response rejection, output spur or a mask segment",
     "limit": "that limit's value, in limit_unit",
     "limit_unit": "dB (input-referred rejection), dBc or dBm (output level)",
-    "margin_db": "response: rejection_db - limit; product: limit - level (dBc or dBm); >= 0 passes",
+    "margin_db": "response: rejection_db - limit; product: limit - level (dBc or dBm); >= 0 passes; +inf: the "
+    "wanted row, and co-channel responses (an input inside the wanted channel is the wanted signal, whose own "
+    "products are judged)",
     "mixer_drive_dbm": "RF drive at the mixer's signal input that the row's level was read at, dBm (product: the "
     "wanted after the input filter; response: the interferer after the preselector's loss)",
     "drive_ok": "mixer_drive_dbm at most 10 dB above the level table's reference and 10 dB under the LO drive",
@@ -665,6 +667,16 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
     # is that rejection less the requirement; for m = 1 it equals the output ratio.
     np.divide(r_level, rfam.rf_harmonic[None, :], out=r_margin)
     np.subtract(u_dbm - sig_dbm - limits.rejection_db, r_margin, out=r_margin)
+    # Co-channel: an unwanted input whose centre would sit inside the wanted channel is the wanted
+    # signal itself, whose own products are judged above; such responses have no margin (+inf).
+    if isinstance(r_low, np.ndarray):
+        band_low, band_high = r_low, r_high
+    else:
+        _, band_low, band_high = response_bands(lo, plan.if_.f_low_hz, plan.if_.f_high_hz, rfam,
+                                                interferer_bandwidth_hz=b_u)
+    half = 0.5 * plan.signal.bandwidth_hz
+    co_channel = (band_low + 0.5 * b_u <= (ch + half)[:, None]) & (band_high - 0.5 * b_u >= (ch - half)[:, None])
+    r_margin[co_channel] = np.inf
     r_level = np.broadcast_to(r_level, shape)
     a_in = np.broadcast_to(a_in, shape)
     # The wanted input is on the (1,1) branch +1, (f_LO + f_IF), only for a difference

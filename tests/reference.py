@@ -374,7 +374,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         def record(kind, label, m, n, sign, centre, low, high, level, margin=None, index=index, rows=rows):
             """Keep a row; track the channel's worst and each (kind, m, n, sign)'s worst over the sweep."""
             nonlocal worst_key, worst
-            if label == "wanted":
+            if label == "wanted" or margin == inf:
                 margin = inf
             elif kind == "product":
                 pass  # the caller's: limit - level over the limiting piece of the band
@@ -419,6 +419,12 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
                 label = response_label(m, n, branch, wanted_branch)
                 a_in = 0.0 if rf_filter is None else rf_filter(min(max(ch, low), high), rf_centre)
                 level = table_at(m, n, p_u - a_in) - a_in + a_w + (p_u - p_w)
+                # co-channel (analysis FRAME_COLUMNS "margin_db"): an unwanted input centred inside the
+                # wanted channel [ch - B/2, ch + B/2] is the wanted signal itself: no margin
+                half = bw / 2.0
+                if low + b_u / 2.0 <= ch + half and high - b_u / 2.0 >= ch - half:
+                    record("response", label, m, n, branch, centre, low, high, level, inf)
+                    continue
                 record("response", label, m, n, branch, centre, low, high, level)
         channels.append({"channel": ch, "lo": lo, "worst_margin_db": inf if worst is None else worst[9],
                          "worst": worst, "rows": rows})

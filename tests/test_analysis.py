@@ -891,3 +891,19 @@ def test_response_rejection_is_the_input_ratio_solved_for_equal_output():
     worst = evaluate(plan_from_dict(data)).worst_by_product
     half_if = worst[worst["label"] == "half-IF"]["margin_db"].min()
     assert half_if == pytest.approx(-6.15, abs=0.05)
+
+
+def test_a_response_inside_the_wanted_channel_is_the_wanted_signal_not_an_interferer():
+    # Tuned to 22.5 MHz with a 45 MHz IF, the (2,0) response sits at 45/2 = 22.5 MHz: on the
+    # channel itself.  An "interferer" there is the wanted signal, whose own (2,0) product (its
+    # second harmonic fed through to the IF) is judged as a product at the wanted drive; the
+    # response has no margin (analysis FRAME_COLUMNS "margin_db").  Arithmetic by hand.
+    data = receiver(rf={"start_hz": "22.5 MHz", "stop_hz": "22.5 MHz"}, signal={"bandwidth_hz": "3 kHz"},
+                    **{"if": {"center_hz": "45 MHz", "bandwidth_hz": "15 kHz"}}, max_order=4,
+                    filters={})
+    frame = evaluate(plan_from_dict(data)).channel_frame(0)
+    pick = (frame["rf_harmonic"] == 2) & (frame["lo_harmonic"] == 0)
+    response = frame[pick & (frame["kind"] == "response")].iloc[0]
+    product = frame[pick & (frame["kind"] == "product")].iloc[0]
+    assert response["f_low_hz"] <= 22.5e6 <= response["f_high_hz"] and response["margin_db"] == math.inf
+    assert product["in_band"] and math.isfinite(product["margin_db"])

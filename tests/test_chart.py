@@ -514,9 +514,12 @@ def test_every_column_has_one_length_and_finite_numbers(which, down, up):
             if arr.dtype.kind not in "fiu":
                 continue
             if key == "margin" and "label" in columns:
-                # chart._point_columns: the wanted row has no margin, shown as NaN; nothing else is NaN
+                # chart._point_columns: the wanted row and co-channel responses have no margin, shown
+                # as NaN; nothing else is NaN
                 nan = np.isnan(arr)
-                assert all(lb == "wanted" for lb in np.asarray(columns["label"])[nan]), name
+                kinds = np.asarray(columns["kind"])[nan] if "kind" in columns else np.full(nan.sum(), "product")
+                assert all(lb == "wanted" or k == "response"
+                           for lb, k in zip(np.asarray(columns["label"])[nan], kinds, strict=True)), name
                 assert np.isfinite(arr[~nan]).all(), name
             elif key == "rejection" and "kind" in columns:
                 # chart._point_columns: only responses have an input-referred rejection; products NaN
