@@ -17,10 +17,8 @@ a measured filter is built.
 
 from __future__ import annotations
 
-import io
+import itertools
 import math
-import re
-import warnings
 from pathlib import Path
 from typing import Annotated, Literal
 
@@ -29,7 +27,7 @@ from numpy.typing import ArrayLike
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, ValidationError, model_validator
 
 from .errors import FilterError, field_error
-from .fileio import read_regular_file
+from .touchstone import MAX_TOUCHSTONE_BYTES, read_touchstone  # noqa: F401 (re-exported)
 from .units import FrequencyHz, SpanHz, format_frequency
 from .validation import from_validation_error
 
@@ -50,6 +48,22 @@ MIN_Q, MAX_Q = 0.5, 1e6
 MAX_PORT = 99
 #: Longest file path accepted in a spec, characters (PATH_MAX on Linux is 4096).
 MAX_PATH_CHARS = 4096
+#: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
+MAX_FILTER_LOSS_DB = 400.0
+#: Ultimate rejection of each kind of filter when its spec gives no ``max_atten_db``, dB (common
+#: practice, no source): coupling around a lumped LC filter (and an idealised brick wall standing
+#: for one) and its enclosure limit it to about 80 dB; a tuned-circuit preselector reaches about
+#: 70 dB; a measured file already holds the part's own leakage, but fixtures and the analyser's
+#: dynamic range rarely show more than 100 dB; an assembly of several filters (a cascade) is
+#: limited by its housing to about 100 dB, whatever its stages add up to.
+DEFAULT_MAX_ATTEN_DB = {"butterworth": 80.0, "chebyshev1": 80.0, "elliptic": 80.0, "brickwall": 80.0,
+                        "tuned": 70.0, "touchstone": 100.0, "cascade": 100.0}
+_MAX_ATTEN_DOC = ("Ultimate rejection in dB (> 0, <= 400): the loss never exceeds it anywhere.  "
+                  "None: the kind's common-practice default, :data:`DEFAULT_MAX_ATTEN_DB`.")
+
+
+def _max_atten_field():
+    return Field(default=None, gt=0, le=MAX_FILTER_LOSS_DB, allow_inf_nan=False, description=_MAX_ATTEN_DOC)
 
 
 class _Spec(BaseModel):
@@ -118,6 +132,7 @@ class PrototypeFilter(_Spec):
     stop_atten_db: float | None = Field(default=None, gt=0, le=MAX_STOP_ATTEN_DB, **_FINITE)
     transform: Literal["geometric", "arithmetic"] = "geometric"
     tracks_channel: bool = False
+    max_atten_db: float | None = _max_atten_field()
 
     @model_validator(mode="after")
     def _check(self) -> PrototypeFilter:
@@ -154,6 +169,7 @@ class TunedCircuit(_Spec):
     q_loaded: float = Field(ge=MIN_Q, le=MAX_Q, **_FINITE)
     stages: int = Field(default=1, ge=1, le=20)
     tracks_channel: bool = False
+    max_atten_db: float | None = _max_atten_field()
 
     @model_validator(mode="after")
     def _check(self) -> TunedCircuit:
@@ -176,6 +192,7 @@ class BrickWall(_Spec):
     bandwidth_hz: SpanHz | None = None
     stop_atten_db: float = Field(default=200.0, gt=0, le=MAX_STOP_ATTEN_DB, **_FINITE)
     tracks_channel: bool = False
+    max_atten_db: float | None = _max_atten_field()
 
     @model_validator(mode="after")
     def _check(self) -> BrickWall:
@@ -202,7 +219,19 @@ class MeasuredFilter(_Spec):
     path: str = Field(min_length=1, max_length=MAX_PATH_CHARS)
     port_out: int = Field(default=2, ge=1, le=MAX_PORT)
     port_in: int = Field(default=1, ge=1, le=MAX_PORT)
-    outside: Literal["hold", "error"] = "hold"
+    outside: Literal["hold", "floor", "error"] = "hold"
+    outside_atten_db: float | None = Field(default=None, ge=0, le=MAX_FILTER_LOSS_DB, allow_inf_nan=False)
+    max_atten_db: float | None = _max_atten_field()
+
+    @model_validator(mode="after")
+    def _check(self) -> MeasuredFilter:
+        if self.outside == "floor" and self.outside_atten_db is None:
+            raise field_error(FilterError, "outside_atten_db", None,
+                              "outside='floor' needs the loss (dB) to take there")
+        if self.outside != "floor" and self.outside_atten_db is not None:
+            raise field_error(FilterError, "outside_atten_db", self.outside_atten_db,
+                              f"used only with outside='floor', not {self.outside!r}")
+        return self
 
 
 class Cascade(_Spec):
@@ -210,6 +239,7 @@ class Cascade(_Spec):
 
     kind: Literal["cascade"]
     stages: tuple[FilterSpec, ...] = Field(min_length=1)
+    max_atten_db: float | None = _max_atten_field()
 
 
 FilterSpec = Annotated[
@@ -279,17 +309,25 @@ class Filter:
     tracks_channel : bool
         True when the filter (or a stage of a cascade) follows the tuned channel
         and so needs ``f_center_hz`` at evaluation time.
+    max_atten_db : float
+        Ultimate rejection in dB: the spec's ``max_atten_db``, or the kind's
+        common-practice default (:data:`DEFAULT_MAX_ATTEN_DB`).
+    max_atten_is_default : bool
+        True when ``max_atten_db`` is the default, an assumption the analysis reports.
     """
 
     def __init__(self, spec, field: str = "") -> None:
         self.spec = spec
         self.tracks_channel = bool(getattr(spec, "tracks_channel", False))
         self._field = field
+        given = getattr(spec, "max_atten_db", None)
+        self.max_atten_is_default = given is None
+        self.max_atten_db = float(DEFAULT_MAX_ATTEN_DB[spec.kind] if given is None else given)
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}({self.spec!r})"
 
-    def atten_db(self, f_hz: ArrayLike, f_center_hz: ArrayLike | None = None) -> np.ndarray:
+    def atten_db(self, f_hz: ArrayLike, f_center_hz: ArrayLike | None = None, *, floored: bool = True) -> np.ndarray:
         """Attenuation in dB (positive = loss) at the frequencies ``f_hz``.
 
         Parameters
@@ -300,14 +338,17 @@ class Filter:
             Centre in Hz of a channel-tracking filter, broadcast against ``f_hz``
             (one per frequency, or a scalar).  Ignored by fixed filters.  When
             omitted, a tracking filter uses the ``f_center_hz`` of its spec.
+        floored : bool
+            Limit the loss to the ultimate rejection :attr:`max_atten_db` (and each
+            cascade stage's own); False gives the ideal response (``inf`` where it
+            is exactly zero, e.g. a high-pass at 0 Hz).
 
         Returns
         -------
         numpy.ndarray of float64
             Loss in dB, shape ``broadcast(f_hz, f_center_hz)``: 0 dB at the
             passband maximum of a prototype or tuned circuit, ``-|S|`` in dB for
-            a measured filter, ``inf`` where the response is exactly zero (e.g.
-            a high-pass at 0 Hz).
+            a measured filter, never above :attr:`max_atten_db` when ``floored``.
 
         Raises
         ------
@@ -316,26 +357,98 @@ class Filter:
             centre, or a measured filter with ``outside="error"`` is asked
             outside its measured range.
         """
-        f = np.asarray(f_hz, dtype=np.float64)
-        if f.size and not f.min() >= 0:
-            raise field_error(FilterError, "f_hz", float(f[~(f >= 0)].flat[0]), "frequencies must be >= 0 Hz")
+        return self._evaluate(self._total, (f_hz,), ("f_hz",), f_center_hz, floored=floored)
+
+    def least_atten_db(self, f_low_hz: ArrayLike, f_high_hz: ArrayLike, f_center_hz: ArrayLike | None = None, *,
+                       floored: bool = True) -> np.ndarray:
+        """Least attenuation in dB over each band ``[f_low_hz, f_high_hz]``.
+
+        A signal occupying the band reaches the far side through the band's least-loss
+        point, so this, not the loss at one point, is what a band's level takes.  It is
+        exact for prototypes (their local minima are known: ``T_n``'s zeros for a
+        Chebyshev filter, the equiripple stopband minima of an elliptic filter, found
+        between its transmission zeros), tuned circuits (loss least at the point
+        nearest the centre) and measured data (the least of the points inside the band
+        and of the interpolated ends).  Bounds that are not exact are lower bounds, so
+        never optimistic: an elliptic band that reaches the passband takes 0 dB (at
+        most ``ripple_db`` low), and a cascade takes the sum of its stages' least losses.
+
+        Parameters
+        ----------
+        f_low_hz, f_high_hz : array_like of float
+            Band edges in Hz, ``0 <= f_low_hz <= f_high_hz`` (``inf`` allowed), broadcast together.
+        f_center_hz : array_like of float, optional
+            Centre of a channel-tracking filter in Hz, as in :meth:`atten_db`.
+        floored : bool
+            Limit the loss to :attr:`max_atten_db` (and each stage's); False gives the
+            unlimited response, to tell where the ultimate rejection decided.
+
+        Returns
+        -------
+        numpy.ndarray of float64
+            Least loss over each band, dB, shape ``broadcast(f_low_hz, f_high_hz, f_center_hz)``.
+
+        Raises
+        ------
+        FilterError
+            As :meth:`atten_db`, and if a band's low edge is above its high edge.
+
+        Examples
+        --------
+        >>> filt = build_filter({"kind": "tuned", "f_center_hz": "10 MHz", "q_loaded": 20})
+        >>> float(filt.least_atten_db(9e6, 11e6))  # the band holds the centre
+        0.0
+        """
+        low = np.asarray(f_low_hz, dtype=np.float64)
+        high = np.asarray(f_high_hz, dtype=np.float64)
+        try:
+            low, high = np.broadcast_arrays(low, high)
+        except ValueError:
+            raise field_error(FilterError, "f_high_hz", f"shape {high.shape}",
+                              f"must broadcast against f_low_hz of shape {low.shape}") from None
+        if low.size and not np.all(high >= low):
+            bad = ~(high >= low)
+            allowed = f"each band's high edge must be >= its low edge ({float(low[bad].flat[0])!r} Hz)"
+            raise field_error(FilterError, "f_high_hz", float(high[bad].flat[0]), allowed)
+        return self._evaluate(self._least_total, (low, high), ("f_low_hz", "f_high_hz"), f_center_hz,
+                              floored=floored)
+
+    def _evaluate(self, fn, freqs: tuple, names: tuple, f_center_hz, *, floored: bool) -> np.ndarray:
+        """Checked, broadcast, chunked evaluation of ``fn(*freqs, fc, floored)`` (1-D blocks)."""
+        arrays = [np.asarray(f, dtype=np.float64) for f in freqs]
+        for f, name in zip(arrays, names, strict=True):
+            if f.size and not f.min() >= 0:
+                raise field_error(FilterError, name, float(f[~(f >= 0)].flat[0]), "frequencies must be >= 0 Hz")
         fc = None if f_center_hz is None else np.asarray(f_center_hz, dtype=np.float64)
         if fc is not None:
             if self.tracks_channel and fc.size and not (fc.min() > 0 and np.isfinite(fc.max())):
                 bad = float(fc[~((fc > 0) & np.isfinite(fc))].flat[0])
                 raise field_error(FilterError, self._field + "f_center_hz", bad, "centres must be finite and > 0 Hz")
             try:
-                f, fc = np.broadcast_arrays(f, fc)
+                *arrays, fc = np.broadcast_arrays(*arrays, fc)
             except ValueError:
-                allowed = f"must broadcast against f_hz of shape {f.shape}"
+                allowed = f"must broadcast against {names[0]} of shape {arrays[0].shape}"
                 raise field_error(FilterError, self._field + "f_center_hz", f"shape {fc.shape}", allowed) from None
-        shape, f = f.shape, f.reshape(-1)
+        shape = arrays[0].shape
+        arrays = [a.reshape(-1) for a in arrays]
         fc = None if fc is None else fc.reshape(-1)
-        out = np.empty(f.size)
+        out = np.empty(arrays[0].size)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            for i in range(0, f.size, _CHUNK):
-                out[i : i + _CHUNK] = self._atten(f[i : i + _CHUNK], None if fc is None else fc[i : i + _CHUNK])
+            for i in range(0, out.size, _CHUNK):
+                part = slice(i, i + _CHUNK)
+                out[part] = fn(*(a[part] for a in arrays), None if fc is None else fc[part], floored)
         return out.reshape(shape)
+
+    def _total(self, f: np.ndarray, fc, floored: bool) -> np.ndarray:
+        out = self._atten(f, fc)
+        return np.minimum(out, self.max_atten_db) if floored else out
+
+    def _least_total(self, low: np.ndarray, high: np.ndarray, fc, floored: bool) -> np.ndarray:
+        out = self._least(low, high, fc)
+        return np.minimum(out, self.max_atten_db) if floored else out
+
+    def _least(self, low: np.ndarray, high: np.ndarray, fc) -> np.ndarray:
+        raise NotImplementedError
 
     def passbands_hz(self, f_center_hz: float | None = None) -> list[tuple[float, float]]:
         """Nominal pass intervals in Hz, for shading on charts.
@@ -400,11 +513,20 @@ class _Mapped(Filter):
             self._proto = lambda w: np.where(w <= 1.0, 0.0, spec.stop_atten_db)
         elif spec.kind == "butterworth":  # 10 log10(1 + w^2n), overflow-free
             self._proto = lambda w: _DB_PER_NEPER_SQ * np.logaddexp(0.0, (2 * n) * np.log(w))
-        elif spec.kind == "chebyshev1":
+        # Interior local minima (Omega, loss in dB) of the prototype's loss; between them and the
+        # ends of an Omega interval the loss is monotone, so these and the ends give its least loss.
+        self._minima: list[tuple[float, float]] = []
+        self._passband_bound = False  # an interval reaching Omega <= 1 takes 0 dB (elliptic)
+        if spec.kind == "chebyshev1":
             log_eps_sq = math.log(math.expm1(spec.ripple_db * math.log(10) / 10))
             self._proto = lambda w: _chebyshev_atten_db(w, n, log_eps_sq)
-        else:
-            self._proto = _elliptic_atten(n, spec.ripple_db, spec.stop_atten_db)
+            # 0 dB at the zeros of T_n, cos((2k - 1) pi / 2n)
+            self._minima = [(math.cos((2 * k - 1) * math.pi / (2 * n)), 0.0) for k in range(1, n + 1)]
+        elif spec.kind == "elliptic":
+            self._proto, zeros = _elliptic_atten(n, spec.ripple_db, spec.stop_atten_db)
+            passband = _elliptic_pass_minima(self._proto, zeros, spec.stop_atten_db)
+            self._passband_bound = passband is None
+            self._minima = (passband or []) + _elliptic_stop_minima(self._proto, zeros, n, spec.stop_atten_db)
 
     def _atten(self, f: np.ndarray, fc) -> np.ndarray:
         spec = self.spec
@@ -420,6 +542,31 @@ class _Mapped(Filter):
         else:
             omega = np.abs(f - f0) * (2.0 / spec.bandwidth_hz)
         return self._proto(1.0 / omega if spec.response == "bandstop" else omega)
+
+    def _least(self, low: np.ndarray, high: np.ndarray, fc) -> np.ndarray:
+        spec = self.spec
+        if spec.response == "lowpass":
+            w_a, w_b = low / spec.f_edge_hz, high / spec.f_edge_hz
+        elif spec.response == "highpass":
+            w_a, w_b = spec.f_edge_hz / high, spec.f_edge_hz / low
+        else:
+            f0 = self._centre(fc)
+            if self.tracks_channel:
+                _check_lower_edge(float(np.min(f0)), spec.bandwidth_hz, self._field + "f_center_hz")
+            if self._geometric:  # signed Omega, increasing in f and zero at f0
+                g_a = (low / f0 - f0 / low) * (f0 / spec.bandwidth_hz)
+                g_b = (high / f0 - f0 / high) * (f0 / spec.bandwidth_hz)
+            else:
+                g_a, g_b = (low - f0) * (2.0 / spec.bandwidth_hz), (high - f0) * (2.0 / spec.bandwidth_hz)
+            o_a = np.where((g_a <= 0) & (g_b >= 0), 0.0, np.minimum(np.abs(g_a), np.abs(g_b)))
+            o_b = np.maximum(np.abs(g_a), np.abs(g_b))
+            w_a, w_b = (1.0 / o_b, 1.0 / o_a) if spec.response == "bandstop" else (o_a, o_b)
+        out = np.minimum(self._proto(w_a), self._proto(w_b))
+        for w_min, loss in self._minima:
+            np.minimum(out, np.where((w_a <= w_min) & (w_min <= w_b), loss, np.inf), out=out)
+        if self._passband_bound:
+            np.minimum(out, np.where(w_a <= 1.0, 0.0, np.inf), out=out)
+        return out
 
     def passbands_hz(self, f_center_hz: float | None = None) -> list[tuple[float, float]]:
         spec = self.spec
@@ -474,13 +621,64 @@ def _elliptic_atten(n: int, ripple_db: float, stop_atten_db: float):
             gain /= np.sqrt(w_sq + s_sq)
         return -2.0 * _DB_PER_NEPER_SQ * (np.log(gain) + log_k)
 
-    return atten
+    return atten, np.sqrt(zeros_sq)
+
+
+def _elliptic_pass_minima(atten, zeros: np.ndarray, stop_atten_db: float) -> list[tuple[float, float]] | None:
+    """The passband's 0 dB points (Omega, 0.0) of an elliptic prototype, or None if not found.
+
+    An elliptic rational function's zeros and poles are reciprocal about the selectivity
+    ``xi`` (the stopband edge, passband edge 1): ``R(xi/x) = L/R(x)`` (the elliptic rational
+    functions' reciprocity; from memory, and checked here point by point).  So the passband's
+    zero-loss points are ``xi / Omega_z`` for the transmission zeros ``Omega_z``; between them
+    the loss rises to the ripple and falls again.  If a point does not check out to 1e-6 dB the
+    caller falls back to 0 dB for any interval reaching the passband (a lower bound).
+    """
+    from scipy.optimize import brentq
+
+    if not zeros.size:
+        return None
+    try:
+        edge = brentq(lambda w: float(atten(np.array([w]))[0]) - stop_atten_db, 1.0, float(zeros[0]) * (1 - 1e-12),
+                      xtol=1e-15, rtol=1e-15)
+    except ValueError:
+        return None
+    points = edge / zeros
+    if not np.all(np.abs(atten(points)) < 1e-6):
+        return None
+    return [(float(w), 0.0) for w in points]
+
+
+def _elliptic_stop_minima(atten, zeros: np.ndarray, n: int, stop_atten_db: float) -> list[tuple[float, float]]:
+    """The stopband's local minima (Omega, dB) of an elliptic prototype.
+
+    Between two transmission zeros (and, for an odd order, beyond the last) the loss has one
+    minimum, where it touches ``stop_atten_db`` (equiripple stopband); it is found with a bounded
+    scalar search in each bracket and given the design value, the least of the two.  Below the
+    first zero the loss rises monotonically from the passband edge, and beyond the last zero of an
+    even order it falls monotonically towards ``stop_atten_db``, so the interval ends cover those.
+    """
+    from scipy.optimize import minimize_scalar
+
+    brackets = list(itertools.pairwise(zeros))
+    if n % 2 and zeros.size:
+        brackets.append((zeros[-1], zeros[-1] * 1e3))  # the real pole's 20 dB/decade rise follows
+    minima = []
+    for a, b in brackets:
+        found = minimize_scalar(lambda w: float(atten(np.array([w]))[0]), bounds=(a, b), method="bounded",
+                                options={"xatol": 1e-12 * b})
+        minima.append((float(found.x), min(float(found.fun), stop_atten_db)))
+    return minima
 
 
 class _Tuned(Filter):
     def _atten(self, f: np.ndarray, fc) -> np.ndarray:
         f0 = self._centre(fc)
         return (20.0 * self.spec.stages) * np.log10(np.hypot(1.0, self.spec.q_loaded * (f / f0 - f0 / f)))
+
+    def _least(self, low: np.ndarray, high: np.ndarray, fc) -> np.ndarray:
+        # the loss rises monotonically on each side of f0: least at the band point nearest it
+        return self._atten(np.clip(self._centre(fc), low, high), fc)
 
     def passbands_hz(self, f_center_hz: float | None = None) -> list[tuple[float, float]]:
         f0 = self._passband_centre(f_center_hz)
@@ -495,15 +693,29 @@ class _Measured(Filter):
         super().__init__(spec, field)
         path = Path(spec.path).expanduser()
         self.path = path if path.is_absolute() or base_dir is None else Path(base_dir) / path
-        self.f_hz, self.table_db = _read_touchstone(self.path, spec.port_out, spec.port_in, field + "path")
+        self.f_hz, self.table_db = read_touchstone(self.path, spec.port_out, spec.port_in, field + "path")
+
+        self._range_min = _SparseMin(self.table_db)
 
     def _atten(self, f: np.ndarray, fc) -> np.ndarray:
         lo, hi = self.f_hz[0], self.f_hz[-1]
-        if self.spec.outside == "error" and f.size and (f.min() < lo or f.max() > hi):
+        outside = (f < lo) | (f > hi)
+        if self.spec.outside == "error" and outside.any():
             allowed = (f"outside the range {format_frequency(lo)} to {format_frequency(hi)} measured in "
-                       f"{str(self.path)!r}; use outside='hold' to hold the end values")
-            raise field_error(FilterError, "f_hz", float(f[(f < lo) | (f > hi)].flat[0]), allowed)
-        return np.interp(f, self.f_hz, self.table_db)
+                       f"{str(self.path)!r}; use outside='hold' or 'floor' to say what the loss is there")
+            raise field_error(FilterError, "f_hz", float(f[outside].flat[0]), allowed)
+        out = np.interp(f, self.f_hz, self.table_db)
+        if self.spec.outside == "floor":
+            out[outside] = self.spec.outside_atten_db
+        return out
+
+    def _least(self, low: np.ndarray, high: np.ndarray, fc) -> np.ndarray:
+        # loss linear between points (and as the policy says outside): least at a band end or at
+        # a measured point inside the band
+        out = np.minimum(self._atten(low, fc), self._atten(high, fc))
+        first = np.searchsorted(self.f_hz, low, side="left")
+        stop = np.searchsorted(self.f_hz, high, side="right")
+        return np.minimum(out, self._range_min(first, stop))
 
     def passbands_hz(self, f_center_hz: float | None = None) -> list[tuple[float, float]]:
         """Span around the least-loss point where the loss stays within 3 dB of it."""
@@ -512,7 +724,8 @@ class _Measured(Filter):
         limit = a[best] + 3.0
         above = np.flatnonzero(a > limit)
         left, right = above[above < best], above[above > best]
-        hold = self.spec.outside == "hold"  # held end values extend the passband to 0 Hz / infinity
+        # held end values extend the passband to 0 Hz / infinity, and so does a floor within 3 dB
+        hold = self.spec.outside == "hold" or (self.spec.outside == "floor" and self.spec.outside_atten_db <= limit)
 
         def crossing(i: int, j: int) -> float:  # where the loss crosses the limit between points i and j
             return float(np.interp(limit, a[[i, j]], f[[i, j]]))
@@ -522,77 +735,29 @@ class _Measured(Filter):
         return [(lo, hi)]
 
 
-# Linear: each character can be taken by one part only (the old mantissa \d+\.?\d* was quadratic).
-_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
-_VERSION2 = re.compile(r"^[ \t]*\[version\]", re.IGNORECASE | re.MULTILINE)  # [ \t], not \s: linear
-#: Largest Touchstone file read, bytes (a 2-port file of 100,000 points is about 10 MB).
-MAX_TOUCHSTONE_BYTES = 20_000_000
+class _SparseMin:
+    """Range minimum of a fixed array in O(1) per query (a sparse table of minima over 2^k runs)."""
 
+    def __init__(self, values: np.ndarray) -> None:
+        levels = [np.asarray(values, dtype=np.float64)]
+        while 2 ** len(levels) <= levels[0].size:
+            prev, half = levels[-1], 2 ** (len(levels) - 1)
+            levels.append(np.minimum(prev[:-half], prev[half:]))
+        self.levels = levels
 
-def _raw_frequencies(text: str, nports: int) -> list[float] | str:
-    """Frequencies of the network-data records in file order, or a problem description.
-
-    scikit-rf takes a decreasing frequency in a 2-port version 1 file as the
-    start of noise data and silently drops what follows, so order is checked here.
-    """
-    version2 = _VERSION2.search(text) is not None
-    in_data, lines = not version2, []
-    for lineno, raw in enumerate(text.splitlines(), start=1):
-        line = raw.split("!", 1)[0].strip()
-        if line.startswith("["):  # version 2 keyword: data only under [Network Data]
-            in_data = version2 and line.lower().startswith("[network data]")
-        elif line and not line.startswith("#") and in_data:
-            if not all(len(word) <= 64 and _NUMBER.fullmatch(word) for word in line.split()):
-                return f"line {lineno} is not numeric data"  # its text is not repeated: it may be any file
-            lines.append(line.split())
-    if nports == 2 and not version2 and all(len(w) in (9, 5) for w in lines):  # records, then noise data
-        n_s = next((i for i, w in enumerate(lines) if len(w) == 5), len(lines))
-        if any(len(w) == 9 for w in lines[n_s:]):
-            return "network data follow noise data (frequencies not increasing?)"
-        lines = lines[:n_s]
-    tokens, per_record = [word for words in lines for word in words], 1 + 2 * nports * nports
-    if len(tokens) % per_record:
-        return f"{len(tokens)} numbers do not make whole {nports}-port records of {per_record}"
-    return [float(t) for t in tokens[::per_record]]
-
-
-def _read_touchstone(path: Path, port_out: int, port_in: int, field: str) -> tuple[np.ndarray, np.ndarray]:
-    """Frequencies in Hz and loss ``-20 log10|S[port_out, port_in]|`` in dB from a Touchstone file."""
-    where = str(path)
-    # A regular file only (never a FIFO or a device), at most MAX_TOUCHSTONE_BYTES; scikit-rf
-    # then parses these bytes from memory and never opens the path itself.
-    raw = read_regular_file(path, MAX_TOUCHSTONE_BYTES, error=FilterError, field=field)
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        text = raw.decode("iso-8859-1")  # as scikit-rf falls back
-    import skrf
-
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")  # every problem it warns about is checked below
-            source = io.StringIO(text)
-            source.name = path.name  # scikit-rf reads the port count from the extension (.s2p)
-            net = skrf.Network(source)
-    except Exception as exc:  # any reader failure is a bad file to the user
-        # the reader's own words can quote the file; name only what failed
-        raise field_error(FilterError, field, where, f"not a readable Touchstone file ({type(exc).__name__})") from None
-    if net.nports < max(port_out, port_in):
-        allowed = f"the file has {net.nports} port(s): no S{port_out}{port_in} (port_out={port_out}, port_in={port_in})"
-        raise field_error(FilterError, field, where, allowed)
-    f_hz = np.asarray(net.f, dtype=np.float64)
-    if f_hz.size == 0:
-        raise field_error(FilterError, field, where, "the file holds no frequency points")
-    raw = _raw_frequencies(text, net.nports)
-    if isinstance(raw, str):
-        raise field_error(FilterError, field, where, raw)
-    if len(raw) != f_hz.size or np.any(np.diff(raw) <= 0) or np.any(np.diff(f_hz) <= 0):
-        raise field_error(FilterError, field, where, "frequencies must be strictly increasing, without repeats")
-    s = np.asarray(net.s[:, port_out - 1, port_in - 1])
-    if not (np.all(np.isfinite(f_hz)) and np.all(np.isfinite(s))):
-        raise field_error(FilterError, field, where, "the file holds non-finite numbers")
-    # Clip |S| at 1e-20 (400 dB) so a recorded exact zero stays finite for interpolation.
-    return f_hz, -20.0 * np.log10(np.maximum(np.abs(s), 1e-20))
+    def __call__(self, first: np.ndarray, stop: np.ndarray) -> np.ndarray:
+        """Least of ``values[first:stop]`` for each pair, ``inf`` where the range is empty."""
+        count = stop - first
+        out = np.full(count.shape, np.inf)
+        some = count > 0
+        if not some.any():
+            return out
+        k = np.floor(np.log2(np.where(some, count, 1))).astype(np.intp)
+        for level in np.unique(k[some]):
+            sel = some & (k == level)
+            row = self.levels[level]
+            out[sel] = np.minimum(row[first[sel]], row[stop[sel] - 2**level])
+        return out
 
 
 class _Cascade(Filter):
@@ -602,7 +767,17 @@ class _Cascade(Filter):
         self.tracks_channel = any(stage.tracks_channel for stage in stages)
 
     def _atten(self, f: np.ndarray, fc) -> np.ndarray:
-        return sum((stage._atten(f, fc) for stage in self.stages[1:]), self.stages[0]._atten(f, fc))
+        return self._total(f, fc, False)
+
+    def _total(self, f: np.ndarray, fc, floored: bool) -> np.ndarray:
+        out = sum((stage._total(f, fc, floored) for stage in self.stages[1:]), self.stages[0]._total(f, fc, floored))
+        return np.minimum(out, self.max_atten_db) if floored else out
+
+    def _least_total(self, low: np.ndarray, high: np.ndarray, fc, floored: bool) -> np.ndarray:
+        # the sum of the stages' least losses: a lower bound of the cascade's (never optimistic)
+        out = sum((stage._least_total(low, high, fc, floored) for stage in self.stages[1:]),
+                  self.stages[0]._least_total(low, high, fc, floored))
+        return np.minimum(out, self.max_atten_db) if floored else out
 
     def passbands_hz(self, f_center_hz: float | None = None) -> list[tuple[float, float]]:
         bands = [(0.0, math.inf)]

@@ -87,6 +87,18 @@ def _omega(spec, f_hz: float, f0_hz: float | None, arithmetic: bool) -> float:
     return math.inf if band == 0.0 else 1.0 / band
 
 
+#: The documented default ultimate rejection of each kind, dB (common practice, no source; restated
+#: from the mixchart.filters docstring, not imported).
+ULTIMATE_DEFAULT_DB = {"butterworth": 80.0, "chebyshev1": 80.0, "elliptic": 80.0, "brickwall": 80.0,
+                       "tuned": 70.0, "touchstone": 100.0, "cascade": 100.0}
+
+
+def ultimate_db(spec) -> float:
+    """A filter spec's ultimate rejection: its ``max_atten_db``, else its kind's default, dB."""
+    given = getattr(spec, "max_atten_db", None)
+    return ULTIMATE_DEFAULT_DB[spec.kind] if given is None else float(given)
+
+
 class FilterLoss:
     """Loss of a plan's filter at one frequency, dB (positive = loss), plain floats.
 
@@ -124,7 +136,12 @@ class FilterLoss:
         return math.inf if math.isinf(high) else 0.5 * (low + high)
 
     def __call__(self, f_hz: float, channel_hz: float | None) -> float:
-        return sum(self._stage(stage, i, f_hz, channel_hz) for i, stage in enumerate(self.stages))
+        # Every filter's loss stops at its ultimate rejection (mixchart.filters docstring:
+        # max_atten_db, else the kind's common-practice default); a cascade's stages keep their
+        # own and the assembly has its own.
+        total = sum(min(self._stage(stage, i, f_hz, channel_hz), ultimate_db(stage))
+                    for i, stage in enumerate(self.stages))
+        return min(total, ultimate_db(self.spec)) if self.spec.kind == "cascade" else total
 
     def _stage(self, spec, index: int, f_hz: float, channel_hz: float | None) -> float:
         f0 = getattr(spec, "f_center_hz", None)

@@ -115,6 +115,8 @@ def test_a_drag_to_an_impossible_place_is_refused_and_the_band_goes_back(app: Pl
 
 
 def test_channel_slider_moves_the_output_plane(app: PlannerApp) -> None:
+    if app.controls.channel.value == 0:  # the worst channel may be the first: start from another
+        app.controls.channel.value = 1
     lines_before = _data(app)["out_lines"]
     app.controls.channel.value = 0
     ev = app.state.evaluation

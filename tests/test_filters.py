@@ -8,6 +8,7 @@ scikit-rf is the outside reference for Touchstone files and circuit networks.
 
 from __future__ import annotations
 
+import functools
 import math
 import subprocess
 import sys
@@ -28,9 +29,21 @@ from mixchart.filters import (
     MeasuredFilter,
     PrototypeFilter,
     TunedCircuit,
-    build_filter,
     parse_filter_spec,
 )
+from mixchart.filters import build_filter as build_floored
+
+
+def build_filter(spec, **kw):
+    """A built filter whose ``atten_db`` gives the ideal response (``floored=False``).
+
+    The shape checks against scipy.signal below compare the prototypes themselves, whose loss
+    grows without bound; the ultimate rejection that limits it (``max_atten_db``) is tested
+    separately with :func:`build_floored`.
+    """
+    filt = build_floored(spec, **kw)
+    filt.atten_db = functools.partial(filt.atten_db, floored=False)
+    return filt
 
 REPO = Path(__file__).resolve().parents[1]
 HALF_POWER_DB = 10 * math.log10(2)  # definition of the -3 dB (half-power) point
