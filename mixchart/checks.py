@@ -27,6 +27,15 @@ COMPRESSION_MARGIN_DB = 10.0
 WANTED_LOSS_WARN_DB = 3.0
 
 
+def _all_stages(filt: Filter | None):
+    """``filt`` and, for a cascade, every stage inside it (nested cascades included)."""
+    if filt is None:
+        return
+    yield filt
+    for stage in getattr(filt, "stages", ()):
+        yield from _all_stages(stage)
+
+
 def _measured_stages(filt: Filter | None, field: str):
     """Every measured (Touchstone) filter inside ``filt``, with its dotted field name."""
     stages = getattr(filt, "stages", None)
@@ -156,6 +165,13 @@ def plan_warnings(ctx: Context) -> list[str]:
                 f"{name}: {what} at {format_frequency(f_hz[k])} is {loss[k]:.1f} dB down the filter's "
                 f"skirt (channel {format_frequency(ctx.channels_hz[k])}); {advice}"
             )
+    # Every filter stops at an ultimate rejection; where the plan does not state one, the kind's
+    # common-practice default is assumed, and said (an assumption is never silent).
+    for name, filt in (("filters.rf", ctx.rf_filter), ("filters.if", ctx.if_filter)):
+        assumed = sorted({f"{f.spec.kind} {f.max_atten_db:g} dB" for f in _all_stages(filt) if f.max_atten_is_default})
+        if assumed:
+            out.append(f"{name}.max_atten_db: not given, so the common-practice ultimate rejection is assumed "
+                       f"({', '.join(assumed)}); state the filter's real stopband floor")
     if plan.direction == "up" and ctx.rf_filter is None:
         out.append("filters.rf: no output filter described; every product is taken at 0 dB of filter loss "
                    "wherever it lands (add the real output filter for real margins)")
