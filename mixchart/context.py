@@ -15,14 +15,12 @@ from pathlib import Path
 import numpy as np
 
 from .errors import AnalysisError
-from .filters import Filter, build_filter
+from .filters import MAX_FILTER_LOSS_DB, Filter, build_filter  # the cap lives in filters (one home)
 from .levels import LevelTable, build_table
 from .plan import Plan
 from .requirements import Limits, resolve_limits
 from .units import format_frequency
 
-#: Filter loss is counted up to this, dB: a response's exact zero (e.g. a band-stop centre) is not infinite.
-MAX_FILTER_LOSS_DB = 400.0
 
 
 def read_only(array: np.ndarray) -> np.ndarray:
