@@ -22,7 +22,6 @@ from .requirements import Limits, resolve_limits
 from .units import format_frequency
 
 
-
 def read_only(array: np.ndarray) -> np.ndarray:
     """A read-only copy of ``array`` (nothing else holds a writable alias of it)."""
     out = np.array(array, copy=True)
