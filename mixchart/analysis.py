@@ -18,9 +18,10 @@ conversion: the transmitter's output spurs)::
 
 where ``P_mix`` is the wanted drive at the mixer (signal level less the input
 filter's loss) and ``A_out`` the output filter (IF filter of a receiver, RF
-filter of a transmitter) at the product band's least-loss point: the point of
-the band nearest the filter's own passband centre (the channel, for a filter
-that tracks it; 0 Hz for a low-pass, the top of the band for a high-pass).
+filter of a transmitter) taken as its least loss over the product band
+(:meth:`mixchart.filters.Filter.least_atten_db`): a band reaches the output
+through its least-loss point, so an elliptic zero or a measured notch inside the
+band never hides it.
 Filter losses are counted up to :data:`MAX_FILTER_LOSS_DB`.  A transmitter emits every
 product: with no output filter described, its loss is 0 dB everywhere and the
 summary warns.  A receiver with no IF filter described counts only what lands in
@@ -33,8 +34,8 @@ the IF passband (an ideal brick wall there), and the summary says so.
           = T(m, n) + (m - 1)·(P_u - P_ref) - m·A_rf(f_in) + A_rf(f_wanted) + (P_u - P_w)
 
 i.e. preselector loss ``A`` at the unwanted input lowers the (m, n) output by
-``m·A``.  ``A_rf(f_in)`` is taken at the point of the responding input band
-nearest the channel (where a preselector centred on the channel passes most).
+``m·A``.  ``A_rf(f_in)`` is the preselector's least loss over the responding
+input band, by the same rule as for products.
 A receiver without a described preselector rejects nothing by filtering.  The
 response *rejection* is how much stronger than the wanted an unwanted input
 must be to give the same output.
@@ -56,7 +57,7 @@ import numpy as np
 import pandas as pd
 
 from .checks import COMPRESSION_MARGIN_DB, plan_warnings, span_warnings
-from .context import Context, band_rel_atten, build_context, capped, mask_margins
+from .context import Context, band_atten, band_rel_atten, build_context, capped, mask_margins, point_atten
 from .context import read_only as _read_only
 from .errors import AnalysisError, one_line
 from .filters import Filter
@@ -641,13 +642,11 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
     m = np.broadcast_to(rfam.rf_harmonic, shape)
     u_dbm = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else sig_dbm
     if ctx.rf_filter is not None:
-        # The unwanted input's loss at the band point nearest the channel (conservative).
-        probe = np.clip(ch[:, None], r_low, r_high)
-        c = ch[:, None] if ctx.rf_filter.tracks_channel else None
-        a_in = capped(ctx.rf_filter.atten_db(probe, None if c is None else np.broadcast_to(c, probe.shape)),
-                       "filters.rf", probe)
-        a_w = capped(ctx.rf_filter.atten_db(ch, ch if ctx.rf_filter.tracks_channel else None), "filters.rf",
-                      ch)[:, None]
+        # The unwanted input reaches the mixer through its response band's least-loss point: the
+        # preselector's least loss over the band (exact, so an elliptic zero or a measured notch
+        # inside the band never makes the rejection look better than it is).
+        a_in = band_atten(ctx.rf_filter, r_low, r_high, ch, "filters.rf")
+        a_w = point_atten(ctx.rf_filter, ch, ch, "filters.rf")[:, None]
         mixer_drive = u_dbm - a_in
     else:
         # no preselector: every channel alike, so the levels work out once per column

@@ -8,7 +8,6 @@ the loss helpers turn a filter's attenuation into the relative losses the level 
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -44,7 +43,6 @@ class Context:
     wanted_sign: np.ndarray
     out_low_hz: float  # output passband
     out_high_hz: float
-    out_filter_target_hz: float  # where the fixed output filter loses least
     lo_filter: Filter | None = None  # checked for the LO drive it takes away; not applied to levels
     limits: Limits | None = None  # the requirement's limits for this direction
 
@@ -86,39 +84,36 @@ def build_context(plan: Plan, base_dir: Path | None) -> Context:
             f_out = np.where(wanted_sign > 0, f_in + lo, np.abs(f_in - lo))
         half = plan.signal.bandwidth_hz / 2
         out_low, out_high = plan.rf.start_hz - half, plan.rf.stop_hz + half
-    output_filter = if_filter if plan.direction == "down" else rf_filter
-    target = least_loss_target_hz(output_filter, 0.5 * (out_low + out_high))
     channels, lo, f_in, f_out, wanted_sign = (read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
     return Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high,
-                    target, lo_filter=lo_filter, limits=resolve_limits(plan.requirement, plan.direction))
-
-
-def rel_atten(
-    filt: Filter | None, f_hz: np.ndarray, f_ref_hz: np.ndarray, centre: np.ndarray | None, field: str
-) -> np.ndarray:
-    """Filter loss at ``f_hz`` less its loss at ``f_ref_hz`` (the wanted), dB."""
-    if filt is None:
-        return np.zeros(np.broadcast_shapes(np.shape(f_hz), np.shape(f_ref_hz)))
-    c = None
-    if filt.tracks_channel:
-        c = centre
-    a = capped(filt.atten_db(f_hz, None if c is None else np.broadcast_to(c, np.shape(f_hz))), field, f_hz)
-    a_ref = capped(filt.atten_db(f_ref_hz, None if c is None else np.broadcast_to(c, np.shape(f_ref_hz))), field,
-                    f_ref_hz)
-    return a - a_ref
+                    lo_filter=lo_filter, limits=resolve_limits(plan.requirement, plan.direction))
 
 
 def band_rel_atten(ctx: Context, filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,
                     centre: np.ndarray | None, field: str) -> np.ndarray:
     """Output-filter loss of product bands [f_low, f_high] (Cb, K) less its loss at the wanted output, dB.
 
-    The product reaches the output through the least-loss point of its band: the point nearest
-    the filter's own passband centre (the channel, if it tracks it).
+    A product occupying a band reaches the output through the band's least-loss point, so the
+    loss it takes is the filter's least loss over the band (:meth:`Filter.least_atten_db`: exact
+    for prototypes, tuned circuits and measured data, a lower bound for a cascade), never the
+    loss at one chosen point, which an elliptic zero or a measured notch would make optimistic.
     """
-    c = None if centre is None else centre[:, None]
-    target = c if (c is not None and filt.tracks_channel) else ctx.out_filter_target_hz
-    nearest = np.clip(target, f_low, f_high)
-    return rel_atten(filt, nearest, f_ref[:, None], c, field)
+    return band_atten(filt, f_low, f_high, centre, field) - point_atten(filt, f_ref, centre, field)[:, None]
+
+
+def band_atten(filt: Filter, f_low: np.ndarray, f_high: np.ndarray, centre: np.ndarray | None, field: str,
+               *, floored: bool = True) -> np.ndarray:
+    """Least loss of ``filt`` over bands [f_low, f_high] (Cb, K), dB, capped; ``centre`` (Cb,) if it tracks."""
+    fc = None
+    if filt.tracks_channel and centre is not None:
+        fc = np.broadcast_to(np.asarray(centre, dtype=float)[:, None], np.broadcast_shapes(f_low.shape, f_high.shape))
+    return capped(filt.least_atten_db(f_low, f_high, fc, floored=floored), field, f_low)
+
+
+def point_atten(filt: Filter, f_hz: np.ndarray, centre: np.ndarray | None, field: str) -> np.ndarray:
+    """Loss of ``filt`` at ``f_hz`` (Cb,), dB, capped; ``centre`` (Cb,) if it tracks."""
+    fc = centre if (filt.tracks_channel and centre is not None) else None
+    return capped(filt.atten_db(f_hz, fc), field, f_hz)
 
 
 def mask_margins(ctx: Context, level: np.ndarray, filt: Filter | None, p_low: np.ndarray, p_high: np.ndarray,
@@ -175,26 +170,3 @@ def capped(atten_db: np.ndarray, field: str, f_hz: np.ndarray) -> np.ndarray:
             "check its description there (a NaN is never reported as a margin)"
         )
     return np.minimum(atten_db, MAX_FILTER_LOSS_DB)
-
-
-def least_loss_target_hz(filt: Filter | None, fallback_hz: float) -> float:
-    """Where a fixed filter loses least, nominally.
-
-    A band-pass filter or tuned circuit: its centre; otherwise the middle of its
-    nominal passband, 0 Hz when that starts at 0 (low-pass, band-stop) and
-    infinity when it has no top (high-pass).
-    """
-    if filt is None or filt.tracks_channel:
-        return fallback_hz
-    spec = filt.spec
-    centre = getattr(spec, "f_center_hz", None)
-    if centre is not None and (spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass"):
-        return float(centre)
-    low, high = filt.passband_hz()
-    if not (low == low and high == high):  # NaN: a cascade with no common passband
-        return fallback_hz
-    if low <= 0.0:
-        return 0.0
-    if math.isinf(high):
-        return math.inf
-    return 0.5 * (low + high)

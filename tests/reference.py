@@ -264,10 +264,10 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
       with ``P_mix`` the signal level less the input filter's loss at the wanted
       input (receiver: the preselector at the channel; transmitter: the IF filter at
       the IF input), ``A_out`` the output filter (receiver: IF filter; transmitter:
-      RF filter) "at the product band's least-loss point: the point of the band
-      nearest the filter's own passband centre (the channel, for a filter that
-      tracks it; 0 Hz for a low-pass, the top of the band for a high-pass)", and
-      ``f_wanted`` the wanted output centre.
+      RF filter) taken as its least loss over the product band ("a band reaches the
+      output through its least-loss point": mixchart.filters.Filter.least_atten_db,
+      re-derived in tests/reference_filters.py FilterLoss.least), and ``f_wanted`` the
+      wanted output centre.
     * No output filter: "an ideal brick wall over the output passband (the IF
       passband of a receiver; the RF tuning range, widened by half the signal
       bandwidth, of a transmitter): products outside it do not reach the output"
@@ -276,10 +276,9 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
       ``level = T(m, n) + (m - 1)·(P_u - A_rf(f_in) - P_ref) - A_rf(f_in) + A_rf(f_wanted)
       + (P_u - P_w)``: the table is read at the unwanted input's drive at the mixer,
       ``P_u`` is ``signal.interferer_level_dbm`` (default: the wanted level ``P_w``),
-      ``f_wanted`` the channel.  The analysis docstring does not say at which point of
-      a response band ``A_rf(f_in)`` is taken; this reference takes the point nearest
-      the channel, the same choice as for products (the point nearest where the filter
-      passes most, for a filter centred on the channel).  "A receiver without a
+      ``f_wanted`` the channel.  ``A_rf(f_in)`` is the preselector's least loss over the
+      response band (an interferer anywhere in the band responds, so the least-loss point
+      decides), the same rule as for products.  "A receiver without a
       described preselector rejects nothing by filtering": ``A_rf = 0``.
     * Product: ``margin = -level - min_rejection_db``.  Response: the trade's spurious-response
       rejection is the input ratio at which the response output equals the wanted output; the
@@ -337,20 +336,10 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     p_w = plan.signal.level_dbm
     p_u = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else p_w
     b_u = plan.signal.interferer_bandwidth_hz or 0.0
-    if_low = plan.if_.center_hz - plan.if_.bandwidth_hz / 2.0
-    if_high = plan.if_.center_hz + plan.if_.bandwidth_hz / 2.0
     bw = plan.signal.bandwidth_hz
-    if down:
-        out_low, out_high = if_low, if_high
-    else:
-        out_low, out_high = plan.rf.start_hz - bw / 2.0, plan.rf.stop_hz + bw / 2.0
-    out_centre = (out_low + out_high) / 2.0
-    out_target = out_centre
     rf_filter = None if plan.filters.rf is None else FilterLoss(plan.filters.rf, base_dir)
     if_filter = None if plan.filters.if_ is None else FilterLoss(plan.filters.if_, base_dir)
     input_filter, output_filter = (rf_filter, if_filter) if down else (if_filter, rf_filter)
-    if output_filter is not None and not output_filter.tracks_channel:
-        out_target = output_filter.least_loss_hz()
 
     inf = math.inf
     channels = []
@@ -400,9 +389,8 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
                     a_rel = 0.0  # a transmitter emits every product: no output filter, no loss anywhere
                 elif output_filter is None:
                     a_rel = 0.0 if (m, n, sign) in in_band else inf  # the IF passband as a brick wall
-                else:
-                    point = min(max(ch if output_filter.tracks_channel else out_target, part_low), part_high)
-                    a_rel = output_filter(point, None if down else rf_centre) - a_out_wanted
+                else:  # the least loss over the part of the band
+                    a_rel = output_filter.least(part_low, part_high, None if down else rf_centre) - a_out_wanted
                 level = table_at(m, n, p_mix) - a_rel
                 margin = piece_limit - level - (wanted_out_dbm if unit == "dBm" else 0.0)
                 if best is None or margin < best[0]:
@@ -417,7 +405,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
                 # of its centres is B_u/2 wider each side (plan.Signal.interferer_bandwidth_hz)
                 low, high = max(low - b_u / 2.0, 0.0), high + b_u / 2.0
                 label = response_label(m, n, branch, wanted_branch)
-                a_in = 0.0 if rf_filter is None else rf_filter(min(max(ch, low), high), rf_centre)
+                a_in = 0.0 if rf_filter is None else rf_filter.least(low, high, rf_centre)
                 level = table_at(m, n, p_u - a_in) - a_in + a_w + (p_u - p_w)
                 # co-channel (analysis FRAME_COLUMNS "margin_db"): an unwanted input centred inside the
                 # wanted channel [ch - B/2, ch + B/2] is the wanted signal itself: no margin

@@ -87,6 +87,22 @@ def _omega(spec, f_hz: float, f0_hz: float | None, arithmetic: bool) -> float:
     return math.inf if band == 0.0 else 1.0 / band
 
 
+def omega_range(spec, low: float, high: float, f0_hz: float | None, arithmetic: bool) -> tuple[float, float]:
+    """Least and greatest prototype frequency ``Omega`` over the band ``[low, high]`` Hz.
+
+    Each transform is monotone on known pieces (derived by hand): low-pass rises with f,
+    high-pass falls; the band-pass value falls to 0 at f0 and rises either side, so its least
+    is 0 when the band holds f0 and its greatest is at an end; band-stop is the reciprocal.
+    """
+    ends = (_omega(spec, low, f0_hz, arithmetic), _omega(spec, high, f0_hz, arithmetic))
+    holds_centre = spec.response in ("bandpass", "bandstop") and low <= f0_hz <= high
+    if spec.response == "bandpass" and holds_centre:
+        return 0.0, max(ends)
+    if spec.response == "bandstop" and holds_centre:
+        return min(ends), math.inf
+    return min(ends), max(ends)
+
+
 #: The documented default ultimate rejection of each kind, dB (common practice, no source; restated
 #: from the mixchart.filters docstring, not imported).
 ULTIMATE_DEFAULT_DB = {"butterworth": 80.0, "chebyshev1": 80.0, "elliptic": 80.0, "brickwall": 80.0,
@@ -116,24 +132,49 @@ class FilterLoss:
         self.tracks_channel = any(getattr(stage, "tracks_channel", False) for stage in self.stages)
         self._built = {}
 
-    def least_loss_hz(self) -> float:
-        """Where this fixed filter passes best, nominally (analysis docstring: "the filter's own
-        passband centre ... 0 Hz for a low-pass, the top of the band for a high-pass"): a band-pass
-        or tuned circuit's centre; 0 for a low-pass or band-stop; infinity for a high-pass.
-        Cascades and measured filters use the library's nominal passband (its middle)."""
-        spec = self.spec
-        if spec.kind == "tuned" or getattr(spec, "response", None) == "bandpass":
-            return float(spec.f_center_hz)
-        if getattr(spec, "response", None) in ("lowpass", "bandstop"):
-            return 0.0
-        if getattr(spec, "response", None) == "highpass":
-            return math.inf
+    def least(self, f_low_hz: float, f_high_hz: float, channel_hz: float | None) -> float:
+        """Least loss over the band ``[f_low_hz, f_high_hz]``, dB (a band reaches the far side
+        through its least-loss point: mixchart.filters.Filter.least_atten_db docstring).
+
+        Re-derived per stage: Butterworth, brick-wall and tuned losses grow with the prototype
+        frequency's magnitude, so the least is at the band's smallest ``|Omega|`` (found from the
+        transform's monotone pieces: :func:`omega_range`); a Chebyshev loss is 0 where ``T_n``
+        has a zero ``cos((2k-1)·pi/(2n))`` inside the band's ``Omega`` range and otherwise at an
+        end of that range (``T_n²`` is unimodal between its zeros and grows above 1).  Elliptic
+        and Touchstone stages call the library's ``least_atten_db`` on one band (checked on its
+        own against scipy.signal's densely sampled response in tests/test_filter_bands.py).  A
+        cascade takes the sum of its stages' least losses, each at its floor, then the
+        assembly's floor (the library's documented lower bound, restated).
+        """
+        total = sum(min(self._stage_least(stage, i, f_low_hz, f_high_hz, channel_hz), ultimate_db(stage))
+                    for i, stage in enumerate(self.stages))
+        return min(total, ultimate_db(self.spec)) if self.spec.kind == "cascade" else total
+
+    def _stage_least(self, spec, index: int, low: float, high: float, channel_hz: float | None) -> float:
+        f0 = getattr(spec, "f_center_hz", None)
+        if getattr(spec, "tracks_channel", False) and channel_hz is not None:
+            f0 = channel_hz
+        kind = spec.kind
+        if kind == "tuned":  # least |f/f0 - f0/f| at the band point nearest f0
+            return tuned_circuit_loss_db(min(max(f0, low), high), f0, spec.q_loaded, spec.stages)
+        if kind in ("brickwall", "butterworth", "chebyshev1"):
+            arithmetic = kind == "brickwall" or spec.transform == "arithmetic"
+            w_min, w_max = omega_range(spec, low, high, f0, arithmetic)
+            if kind == "brickwall":
+                return 0.0 if w_min <= 1.0 else spec.stop_atten_db
+            if kind == "butterworth":
+                return butterworth_loss_db(w_min, spec.order)
+            n = spec.order
+            if any(w_min <= math.cos((2 * k - 1) * math.pi / (2 * n)) <= w_max for k in range(1, n + 1)):
+                return 0.0
+            return min(chebyshev1_loss_db(w_min, n, spec.ripple_db), chebyshev1_loss_db(w_max, n, spec.ripple_db))
         from mixchart.filters import build_filter
 
-        low, high = build_filter(spec, base_dir=self.base_dir).passband_hz()
-        if low <= 0.0:
-            return 0.0
-        return math.inf if math.isinf(high) else 0.5 * (low + high)
+        if index not in self._built:
+            self._built[index] = build_filter(spec, base_dir=self.base_dir)
+        built = self._built[index]
+        fc = f0 if built.tracks_channel else None
+        return float(built.least_atten_db(low, high, fc))
 
     def __call__(self, f_hz: float, channel_hz: float | None) -> float:
         # Every filter's loss stops at its ultimate rejection (mixchart.filters docstring:

@@ -89,8 +89,9 @@ def test_single_tuned_preselector_image_rejection(channel, image_hz, expected_db
 
 def test_image_rejection_uses_the_image_band_edge_nearest_the_channel():
     # With a 10 kHz IF the image band of a 1000 kHz channel is 1905-1915 kHz; the edge nearest
-    # the channel (1905 kHz) loses least in a filter centred on the channel (analysis docstring:
-    # conservative).  By hand: rho = 1.905 - 1/1.905 = 1.38005, 10 log10(1 + 138.005^2) = 42.80 dB.
+    # the channel (1905 kHz) loses least in a filter centred on the channel, so the band's least
+    # loss (analysis docstring) is the loss there.
+    # By hand: rho = 1.905 - 1/1.905 = 1.38005, 10 log10(1 + 138.005^2) = 42.80 dB.
     plan = plan_from_dict({
         "direction": "down",
         "rf": {"start_hz": "1000 kHz", "stop_hz": "1000 kHz"},

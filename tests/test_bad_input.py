@@ -301,7 +301,14 @@ def _nan_above(filt, f_hz: float):
         out = np.asarray(real(f, *args, **kwargs), dtype=float)
         return np.where(np.asarray(f) > f_hz, np.nan, out)
 
+    real_least = filt.least_atten_db
+
+    def least_atten_db(low, high, *args, **kwargs):
+        out = np.asarray(real_least(low, high, *args, **kwargs), dtype=float)
+        return np.where(np.asarray(high) > f_hz, np.nan, out)
+
     object.__setattr__(filt, "atten_db", atten_db)
+    object.__setattr__(filt, "least_atten_db", least_atten_db)
 
 
 def test_a_nan_margin_is_an_error_naming_the_term_never_a_pass(monkeypatch):

@@ -203,3 +203,39 @@ def test_measured_outside_floor_policy(tmp_path):
         parse_filter_spec({"kind": "touchstone", "path": "x.s2p", "outside": "floor"})
     with pytest.raises(FilterError, match=r"outside_atten_db: 3.0 is invalid; used only with"):
         parse_filter_spec({"kind": "touchstone", "path": "x.s2p", "outside_atten_db": 3.0})
+
+
+def test_an_elliptic_zero_at_the_image_band_edge_no_longer_passes_the_plan():
+    # An invented receiver: 100 MHz channel, 45 MHz IF 2 MHz wide, high-side LO, so the image band is
+    # 189-191 MHz.  The preselector is a 5th-order elliptic low-pass whose first transmission zero sits
+    # on the image band's edge nearest the channel (189 MHz).  Read at that one point the image sees
+    # the 120 dB floor and the plan passes 70 dB by about 50 dB; over the band it sees the stopband's
+    # least loss, ~64 dB, and fails.  Reference: scipy.signal.ellipap + lp2lp_zpk sampled densely.
+    from mixchart import evaluate
+    from mixchart.plan import plan_from_dict
+
+    z, p, k = signal.ellipap(5, 0.5, 50.0)
+    edge_hz = 189e6 / np.sort(np.abs(z.imag))[0]
+    spec = {"kind": "elliptic", "response": "lowpass", "order": 5, "ripple_db": 0.5, "stop_atten_db": 50,
+            "f_edge_hz": edge_hz, "max_atten_db": 120}
+    plan = plan_from_dict({
+        "direction": "down", "rf": {"start_hz": "100 MHz", "stop_hz": "100 MHz"},
+        "signal": {"bandwidth_hz": "100 kHz", "level_dbm": -30}, "lo": {"mode": "tracking", "side": "high"},
+        "if": {"center_hz": "45 MHz", "bandwidth_hz": "2 MHz"}, "max_order": 2, "mixer": {"rf_ref_dbm": -30},
+        "filters": {"rf": spec}, "requirement": {"response_rejection_db": 70, "output_spur_dbc": -70},
+    })
+    image = evaluate(plan).channel_frame(0).query("label == 'image'")
+    assert len(image) == 1
+    assert image["f_low_hz"].iloc[0] == pytest.approx(189e6) and image["f_high_hz"].iloc[0] == pytest.approx(191e6)
+    zpk = signal.lp2lp_zpk(z, p, k, wo=edge_hz)
+    band_least = scipy_band_least_db(zpk, 189e6, 191e6)
+    _, h_wanted = signal.freqs_zpk(*zpk, worN=[100e6])
+    wanted_db = float(-20 * np.log10(np.abs(h_wanted[0])))
+    # the one point the old rule read: on the zero, so only the floor limits it
+    assert float(build_filter(spec).atten_db(189e6)) == pytest.approx(120.0)
+    # the image is a (1,1) response: its rejection is the preselector's relative least loss over the band
+    rejection = float(image["rejection_db"].iloc[0])
+    assert rejection <= band_least - wanted_db + 1e-9  # never above the sampled least
+    assert rejection == pytest.approx(band_least - wanted_db, abs=2e-3)
+    assert 60.0 < rejection < 66.0  # the stopband's 50 dB level plus the zero's skirt, not the 120 dB floor
+    assert float(image["margin_db"].iloc[0]) == pytest.approx(rejection - 70.0) and rejection - 70.0 < 0
