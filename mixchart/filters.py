@@ -517,6 +517,10 @@ class _Mapped(Filter):
         # ends of an Omega interval the loss is monotone, so these and the ends give its least loss.
         self._minima: list[tuple[float, float]] = []
         self._passband_bound = False  # an interval reaching Omega <= 1 takes 0 dB (elliptic)
+        # Above this Omega the loss only grows (Butterworth, brick wall: everywhere; Chebyshev:
+        # above its edge; elliptic: nowhere, for its stopband ripples), so an interval starting
+        # there takes the loss at its low end and nothing else need be looked at.
+        self._rising_from = 0.0 if spec.kind in ("butterworth", "brickwall") else 1.0
         if spec.kind == "chebyshev1":
             log_eps_sq = math.log(math.expm1(spec.ripple_db * math.log(10) / 10))
             self._proto = lambda w: _chebyshev_atten_db(w, n, log_eps_sq)
@@ -527,6 +531,7 @@ class _Mapped(Filter):
             passband = _elliptic_pass_minima(self._proto, zeros, spec.stop_atten_db)
             self._passband_bound = passband is None
             self._minima = (passband or []) + _elliptic_stop_minima(self._proto, zeros, n, spec.stop_atten_db)
+            self._rising_from = math.inf
 
     def _atten(self, f: np.ndarray, fc) -> np.ndarray:
         spec = self.spec
@@ -561,7 +566,18 @@ class _Mapped(Filter):
             o_a = np.where((g_a <= 0) & (g_b >= 0), 0.0, np.minimum(np.abs(g_a), np.abs(g_b)))
             o_b = np.maximum(np.abs(g_a), np.abs(g_b))
             w_a, w_b = (1.0 / o_b, 1.0 / o_a) if spec.response == "bandstop" else (o_a, o_b)
-        out = np.minimum(self._proto(w_a), self._proto(w_b))
+        out = self._proto(w_a)
+        rest = ~(w_a >= self._rising_from)  # where the far end and the interior minima can count
+        if not rest.any():
+            return out
+        if rest.all():
+            return self._least_over(w_a, w_b, out)
+        out[rest] = self._least_over(w_a[rest], w_b[rest], out[rest])
+        return out
+
+    def _least_over(self, w_a: np.ndarray, w_b: np.ndarray, at_a: np.ndarray) -> np.ndarray:
+        """Least loss over Omega intervals [w_a, w_b], given the loss ``at_a`` at their low ends."""
+        out = np.minimum(at_a, self._proto(w_b))
         for w_min, loss in self._minima:
             np.minimum(out, np.where((w_a <= w_min) & (w_min <= w_b), loss, np.inf), out=out)
         if self._passband_bound:
@@ -582,14 +598,34 @@ class _Mapped(Filter):
 
 
 def _chebyshev_atten_db(w: np.ndarray, n: int, log_eps_sq: float) -> np.ndarray:
-    """``10 log10(1 + eps^2 T_n(w)^2)`` without overflow, for ``w >= 0``."""
-    t_in = np.cos(n * np.arccos(np.minimum(w, 1.0)))  # T_n(w) for w <= 1
-    x = n * np.arccosh(np.maximum(w, 1.0))  # T_n(w) = cosh(x) for w > 1; ln cosh(x) below
-    log_t = x - math.log(2.0) + np.log1p(np.exp(-2.0 * x))
-    out = np.logaddexp(0.0, log_eps_sq + 2.0 * log_t)
+    """``10 log10(1 + eps^2 T_n(w)^2)`` without overflow, for ``w >= 0``.
+
+    ``T_n(w) = cos(n acos w)`` for ``w <= 1`` and ``cosh(x)``, ``x = n acosh w``, above, taken
+    through ``ln cosh x = x - ln 2 + ln(1 + e^(-2x))``; each branch is worked out only where it
+    applies (most of a sweep's frequencies lie in the stopband).
+    """
     inside = w <= 1.0
-    out[inside] = np.log1p(math.exp(log_eps_sq) * t_in[inside] ** 2)
-    return out * _DB_PER_NEPER_SQ
+    n_inside = np.count_nonzero(inside)
+    if n_inside == 0:
+        return _chebyshev_stop_db(w, n, log_eps_sq)
+    out = np.empty(w.shape)
+    t_in = np.cos(n * np.arccos(w[inside]))
+    out[inside] = np.log1p(math.exp(log_eps_sq) * t_in * t_in) * _DB_PER_NEPER_SQ
+    if n_inside < w.size:
+        outside = ~inside
+        out[outside] = _chebyshev_stop_db(w[outside], n, log_eps_sq)
+    return out
+
+
+def _chebyshev_stop_db(w: np.ndarray, n: int, log_eps_sq: float) -> np.ndarray:
+    """The Chebyshev loss above the edge (``w > 1``, or NaN), dB: ``10 log10(1 + eps^2 cosh^2 x)``."""
+    x = n * np.arccosh(w)
+    y = np.exp(-2.0 * x)
+    np.log1p(y, out=y)
+    y += x
+    y *= 2.0
+    y += log_eps_sq - 2.0 * math.log(2.0)
+    return np.logaddexp(0.0, y, out=y) * _DB_PER_NEPER_SQ
 
 
 def _elliptic_atten(n: int, ripple_db: float, stop_atten_db: float):
