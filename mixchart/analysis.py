@@ -56,8 +56,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .checks import COMPRESSION_MARGIN_DB, plan_warnings, span_warnings
-from .context import Context, band_atten, band_rel_atten, build_context, capped, mask_margins, point_atten
+from .checks import COMPRESSION_MARGIN_DB, floor_warnings, plan_warnings, span_warnings
+from .context import Context, band_atten, band_rel_atten, build_context, capped, loss_limits, mask_margins, point_atten
 from .context import read_only as _read_only
 from .errors import AnalysisError, one_line
 from .filters import Filter
@@ -120,6 +120,10 @@ FRAME_COLUMNS: dict[str, str] = {
     "mixer_drive_dbm": "RF drive at the mixer's signal input that the row's level was read at, dBm (product: the "
     "wanted after the input filter; response: the interferer after the preselector's loss)",
     "drive_ok": "mixer_drive_dbm at most 10 dB above the level table's reference and 10 dB under the LO drive",
+    "loss_limit": "what limited the row's filter loss where the filter's response did not: a filter's ultimate "
+    "rejection ('filters.rf floor 70 dB (assumed)': assumed when the kind's common-practice default stood in "
+    "for max_atten_db), measured data read outside its span (the file's policy), or a filter not described; "
+    "'' when the response itself",
     "passes": "margin_db >= 0",
     "extra_rf_db": "extra RF-filter rejection at the spur that would make it pass, dB (NaN: none needed or no help)",
     "extra_if_db": "extra IF/output-filter rejection that would make it pass, dB (NaN: none needed or no help)",
@@ -758,6 +762,8 @@ def _frame_from(data: dict[str, np.ndarray], ctx: Context) -> pd.DataFrame:
     # reference the small-signal slope of (m - 1) dB per dB is the power-series result itself, so
     # lower drives are not flagged (the summary's drive warning still names a far reference).
     drive = columns["mixer_drive_dbm"]
+    columns["loss_limit"] = loss_limits(ctx, data["kind"], columns["f_low_hz"], columns["f_high_hz"],
+                                        columns["channel_hz"])
     columns["drive_ok"] = ((drive <= ctx.table.rf_ref_dbm + RF_EXTRAPOLATION_LIMIT_DB)
                            & (drive <= ctx.plan.mixer.lo_drive_dbm - COMPRESSION_MARGIN_DB))
     return pd.DataFrame({k: columns[k] for k in FRAME_COLUMNS}, copy=False)
@@ -924,7 +930,7 @@ def evaluate(plan: Plan, *, base_dir: str | Path | None = None, chunk_channels: 
         worst_by_product=wbp,
         hits=hit_frame,
         summary=summary,
-        warnings=tuple(plan_warnings(ctx) + span_warnings(ctx, wbp)),
+        warnings=tuple(plan_warnings(ctx) + span_warnings(ctx, wbp) + floor_warnings(wbp)),
         context=ctx,
     )
 

@@ -413,6 +413,8 @@ def _point_columns(rows) -> dict[str, list]:
         # responses are judged by their input-referred rejection, products by their output level
         "rejection": np.where(rows["kind"].to_numpy() == "response", rows["rejection_db"].to_numpy(float), np.nan),
         "requirement": rows["requirement"].tolist(),
+        # what set the filter loss where the filter's response did not (a floor, a data-span policy)
+        "loss_limit": [t or "the filters' responses" for t in rows["loss_limit"]],
         # the wanted row has no margin (inf): shown as NaN
         "margin": np.where(np.isfinite(rows["margin_db"].to_numpy(float)), rows["margin_db"].to_numpy(float), np.nan),
     }
@@ -471,6 +473,7 @@ _HOVER_POINTS = [
     ("level", "@level{0.0} dBc"),
     ("rejection (input-referred)", "@rejection{0.0} dB"),
     ("judged against", "@requirement"),
+    ("filter loss set by", "@loss_limit"),
     ("margin", "@margin{+0.0} dB"),
 ]
 

@@ -75,9 +75,39 @@ def span_warnings(ctx: Context, worst_by_product: pd.DataFrame) -> list[str]:
                                  f"{format_frequency(float(high[outside].max()))})")
                 if n_wanted:
                     parts.append(f"the wanted signal on {n_wanted} channel(s)")
+                policy = ("the end values are held there" if stage.spec.outside == "hold" else
+                          f"the stated floor of {stage.spec.outside_atten_db:g} dB is taken there")
                 out.append(f"{name}: {' and '.join(parts)} read outside the file's span "
-                           f"{format_frequency(f0)} to {format_frequency(f1)}; the end values are held there "
+                           f"{format_frequency(f0)} to {format_frequency(f1)}; {policy} "
                            "(an assumption: measure wider, or set outside='error')")
+    return out
+
+
+def floor_warnings(worst_by_product: pd.DataFrame) -> list[str]:
+    """Say when an assumed ultimate rejection (a kind's default floor) decided worst-case rows.
+
+    The default floors are common practice, not the user's filter: a margin they decide
+    depends on that assumption, so the count, the failing count and the worst such row are
+    named (from the ``loss_limit`` column of the worst-case rows).
+    """
+    out: list[str] = []
+    limits = worst_by_product["loss_limit"].to_numpy()
+    margins = worst_by_product["margin_db"].to_numpy()
+    notes: dict[str, list[int]] = {}
+    for i, text in enumerate(limits):
+        for note in filter(None, text.split("; ")):
+            if note.endswith("(assumed)"):
+                notes.setdefault(note, []).append(i)
+    for note, rows in notes.items():
+        field, floor = note.split(" floor ", 1)
+        worst = min(rows, key=lambda i: margins[i])
+        row = worst_by_product.iloc[worst]
+        n_fail = int(np.count_nonzero(margins[rows] < 0))
+        out.append(f"{field}: the assumed ultimate rejection ({floor.removesuffix(' (assumed)')}) sets the loss of "
+                   f"{len(rows)} of {len(limits)} worst-case rows, {n_fail} of them failing; the worst: "
+                   f"{row['label']} ({row['rf_harmonic']},{row['lo_harmonic']}) at "
+                   f"{format_frequency(float(row['channel_hz']))}, margin {float(row['margin_db']):+.1f} dB. "
+                   "These margins rest on the assumption: state max_atten_db from the filter's data")
     return out
 
 

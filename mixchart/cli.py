@@ -71,7 +71,7 @@ def _text_table(frame, top: int) -> str:
     lines = [
         f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>{w_ch}} {'LO':>{w_lo}} "
         f"{'spur/input band':>{w_band}} {'level dBc':>10} {'rej. dB':>7} {'limit':>{w_lim}} {'margin':>7} "
-        f"{'need RF':>7} {'need IF':>7} drive"
+        f"{'need RF':>7} {'need IF':>7} {'drive':<12} loss limited by"
     ]
     for k, row in enumerate(shown.itertuples(index=False)):
         need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:7.1f}"
@@ -82,13 +82,15 @@ def _text_table(frame, top: int) -> str:
             f"{row.kind:<8} {row.label:<17} {row.rf_harmonic:>2} {row.lo_harmonic:>2} "
             f"{'+' if row.sign > 0 else '-':>1} {channel[k]:>{w_ch}} {lo[k]:>{w_lo}} "
             f"{band[k]:>{w_band}} {_fmt_db(row.level_dbc):>10} {rejection:>7} {limit[k]:>{w_lim}} "
-            f"{_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7} {drive}"
+            f"{_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7} {drive:<12} {row.loss_limit}".rstrip()
         )
     if len(frame) > top:
         lines.append(f"... {len(frame) - top} more rows (use --top)")
     lines.append("rej. dB: input-referred response rejection (how much stronger than the wanted an input must be "
                  "for an equal output); level dBc: at the output after the filters; drive: RF drive at the mixer, "
-                 "(!) where the level table does not hold (over 10 dB above its reference, or near the LO drive)")
+                 "(!) where the level table does not hold (over 10 dB above its reference, or near the LO drive); "
+                 "loss limited by: a filter floor (ultimate rejection; 'assumed' when not stated) or a data-span "
+                 "policy that set the row's filter loss")
     return "\n".join(lines)
 
 

@@ -170,3 +170,82 @@ def capped(atten_db: np.ndarray, field: str, f_hz: np.ndarray) -> np.ndarray:
             "check its description there (a NaN is never reported as a margin)"
         )
     return np.minimum(atten_db, MAX_FILTER_LOSS_DB)
+
+
+def loss_limits(ctx: Context, kind: np.ndarray, f_low: np.ndarray, f_high: np.ndarray,
+                channel_hz: np.ndarray) -> np.ndarray:
+    """What limited each row's filter loss, when not the filter's own response (text, '' if nothing).
+
+    A row's band takes its filter's least loss over the band (:func:`band_atten`); that loss
+    is limited by a filter's ultimate rejection where the response alone would reject more
+    (``"filters.rf floor 70 dB (assumed)"``; "assumed" when the kind's common-practice default
+    stood in for an unstated ``max_atten_db``), and follows the file's policy where measured
+    data is read outside its span (``"filters.if outside its data: end values held"``).  With
+    no filter described, the text says what was taken instead.  For a transmitter with an
+    emission mask the whole product band is looked at, not only the mask piece that limited it.
+
+    Parameters
+    ----------
+    ctx : Context
+        The evaluation's context.
+    kind : numpy.ndarray of int8
+        0 for a product of the wanted signal, 1 for a receiver response, per row.
+    f_low, f_high : numpy.ndarray of float
+        Band edges of each row, Hz.
+    channel_hz : numpy.ndarray of float
+        Each row's channel, Hz (the centre of a channel-tracking filter).
+
+    Returns
+    -------
+    numpy.ndarray of object
+        One string per row.
+    """
+    down = ctx.plan.direction == "down"
+    out = np.full(kind.shape, "", dtype=object)
+    uses = [(ctx.rf_filter, "filters.rf", kind == 1)] if down else []
+    uses.append((ctx.if_filter, "filters.if", kind == 0) if down else (ctx.rf_filter, "filters.rf", kind == 0))
+    for filt, field, rows in uses:
+        if not rows.any():
+            continue
+        if filt is None:
+            text = ("no preselector: 0 dB taken" if field == "filters.rf" and down else
+                    "no IF filter: ideal passband taken" if down else "no output filter: 0 dB taken")
+            out[rows] = _join(out[rows], text)
+            continue
+        idx = np.flatnonzero(rows)
+        low, high, ch = f_low[idx], f_high[idx], channel_hz[idx]
+        for name, stage in _with_stages(filt, field):
+            fc = ch if stage.tracks_channel else None
+            if getattr(stage, "stages", None) is not None:  # the assembly's own floor, over its floored stages
+                hit = _assembly_floored(stage, low, high, fc)
+            else:
+                hit = stage.least_atten_db(low, high, fc, floored=False) > stage.max_atten_db
+            if hit.any():
+                note = f"{name} floor {stage.max_atten_db:g} dB{' (assumed)' if stage.max_atten_is_default else ''}"
+                out[idx[hit]] = _join(out[idx[hit]], note)
+            f_hz = getattr(stage, "f_hz", None)
+            if f_hz is not None:
+                outside = (low < f_hz[0]) | (high > f_hz[-1])
+                if outside.any():
+                    policy = stage.spec.outside
+                    text = ("end values held" if policy == "hold" else
+                            f"floor {stage.spec.outside_atten_db:g} dB" if policy == "floor" else policy)
+                    out[idx[outside]] = _join(out[idx[outside]], f"{name} outside its data: {text}")
+    return out
+
+
+def _with_stages(filt: Filter, field: str):
+    """``filt`` and, for a cascade, each stage (recursively), with dotted field names."""
+    yield field, filt
+    for i, stage in enumerate(getattr(filt, "stages", None) or ()):
+        yield from _with_stages(stage, f"{field}.stages.{i}")
+
+
+def _assembly_floored(cascade: Filter, low: np.ndarray, high: np.ndarray, fc) -> np.ndarray:
+    """Where a cascade's own floor, not its stages, set the least loss over each band."""
+    stages_sum = sum(s.least_atten_db(low, high, fc if s.tracks_channel else None) for s in cascade.stages)
+    return stages_sum > cascade.max_atten_db
+
+
+def _join(texts: np.ndarray, note: str) -> np.ndarray:
+    return np.asarray([note if not t else f"{t}; {note}" for t in texts], dtype=object)
