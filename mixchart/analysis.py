@@ -61,7 +61,7 @@ from .context import Context, band_atten, band_rel_atten, build_context, capped,
 from .context import read_only as _read_only
 from .errors import AnalysisError, one_line
 from .filters import Filter
-from .levels import RF_EXTRAPOLATION_LIMIT_DB, LevelTable
+from .levels import FLOOR_DBC, RF_EXTRAPOLATION_LIMIT_DB, LevelTable
 from .plan import Plan
 from .products import (
     LABELS,
@@ -107,7 +107,8 @@ FRAME_COLUMNS: dict[str, str] = {
     "table_dbc": "mixer table level at the reference drive, dBc",
     "rf_atten_db": "RF filter loss applied (response: m·A(f_in) - A(f_wanted); up: output filter), dB",
     "if_atten_db": "IF filter loss applied relative to the wanted output, dB",
-    "level_dbc": "output level relative to the wanted output, dBc",
+    "level_dbc": "output level relative to the wanted output, dBc, floored once at -300 dBc for display "
+    "(rejection_db and margin_db come from the unfloored level; -inf: nothing reaches the output)",
     "level_dbm": "output level, dBm (level_dbc plus the wanted output level; responses at the interferer level)",
     "rejection_db": "response: how much stronger than the wanted an unwanted input must be for an equal "
     "output, (P_u - P_w) - level_dbc/m (input-referred); product: -level_dbc",
@@ -476,6 +477,18 @@ def _extra_out(margin: np.ndarray, in_band: np.ndarray) -> np.ndarray:
     return np.where((margin < 0) & ~in_band, -margin, np.nan)
 
 
+def _shown(level_dbc: np.ndarray) -> np.ndarray:
+    """The final level as shown: floored once at FLOOR_DBC (margins use the unfloored level).
+
+    ``-inf`` (nothing reaches the output: outside a receiver's ideal IF passband) stays.
+    """
+    return np.where(level_dbc == -np.inf, level_dbc, np.maximum(level_dbc, FLOOR_DBC))
+
+
+def _shown_dbm(level_dbc: np.ndarray, wanted_out_dbm: np.ndarray) -> np.ndarray:
+    return _shown(level_dbc) + wanted_out_dbm
+
+
 def _extra_rf(margin: np.ndarray, a_in: np.ndarray, m: np.ndarray) -> np.ndarray:
     """Extra preselector rejection a failing response needs, dB: its input-referred shortfall.
 
@@ -576,7 +589,8 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
     wanted_out_dbm = np.broadcast_to(wanted_out_dbm, (nb, 1))
     table_p = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_p = np.broadcast_to(table_p, shape)
-    level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive)  # (1 or Cb, K)
+    # unfloored: the -300 dBc floor applies once, to the final level shown (never to a margin)
+    level = ctx.table.level_dbc_at(pf.rf_harmonic[None, :], pf.lo_harmonic[None, :], drive, floored=False)
     if output_filter is None and not down:
         # A transmitter emits every product: with no output filter described, the loss is 0 dB
         # everywhere (never an ideal brick wall), and the summary warns about the assumption.
@@ -620,8 +634,8 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
         "table_dbc": table_p,
         "rf_atten_db": zero if down else out_atten,
         "if_atten_db": out_atten if down else zero,
-        "level_dbc": p_level,
-        "level_dbm": _Derived(np.add, p_level, np.broadcast_to(wanted_out_dbm, shape)),
+        "level_dbc": _Derived(_shown, p_level),
+        "level_dbm": _Derived(_shown_dbm, p_level, np.broadcast_to(wanted_out_dbm, shape)),
         "rejection_db": _Derived(np.negative, p_level),
         "margin_db": p_margin,
         "requirement": p_req,
@@ -659,7 +673,8 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
         mixer_drive = u_dbm - a_in
     table_r = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], ctx.table.rf_ref_dbm)
     table_r = np.broadcast_to(table_r, shape)
-    r_level = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], mixer_drive)  # (1 or Cb, K)
+    r_level = ctx.table.level_dbc_at(rfam.rf_harmonic[None, :], rfam.lo_harmonic[None, :], mixer_drive,
+                                     floored=False)  # (1 or Cb, K), floored once for display below
     r_level -= a_in
     r_level += a_w
     r_level += u_dbm - sig_dbm
@@ -702,8 +717,8 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
         # the preselector's part of the level: m·A(f_in) - A(f_wanted)
         "rf_atten_db": _Derived(lambda a, w, mm: mm * a - w, a_in, np.broadcast_to(a_w, shape), m),
         "if_atten_db": zero,
-        "level_dbc": r_level,
-        "level_dbm": _Derived(np.add, r_level, np.broadcast_to(wanted_out_dbm, shape)),
+        "level_dbc": _Derived(_shown, r_level),
+        "level_dbm": _Derived(_shown_dbm, r_level, np.broadcast_to(wanted_out_dbm, shape)),
         "rejection_db": _Derived(lambda level, mm: (u_dbm - sig_dbm) - level / mm, r_level, m),
         "margin_db": r_margin,
         "requirement": np.broadcast_to(np.int8(0), shape),

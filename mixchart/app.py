@@ -255,7 +255,9 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         value=plan.mixer.table, description="level table", layout=_row(), style=style, continuous_update=False,
         placeholder="builtin or a .csv path",
     )
-    c["rf_ref"] = w.FloatText(value=plan.mixer.rf_ref_dbm, description="table ref (dBm)", layout=_row(), style=style)
+    c["rf_ref"] = w.Text(value="" if plan.mixer.rf_ref_dbm is None else f"{plan.mixer.rf_ref_dbm:g}",
+                         description="table ref (dBm)", layout=_row(), style=style, continuous_update=False,
+                         placeholder="blank: LO drive - 10 dB")
     c["lo_drive"] = w.FloatText(value=plan.mixer.lo_drive_dbm, description="LO drive (dBm)", layout=_row(), style=style)
     errors["mixer"] = w.HTML(value="", layout=w.Layout(width="300px"))
     errors["plan"] = w.HTML(value="", layout=w.Layout(width="300px"))
@@ -505,7 +507,6 @@ class PlannerApp:
             ("sig_level", "signal.level_dbm", 1),
             ("requirement", "requirement.min_rejection_db", 1),
             ("balance", "mixer.balance_db", 1),
-            ("rf_ref", "mixer.rf_ref_dbm", 2),
             ("lo_drive", "mixer.lo_drive_dbm", 2),
         ):
             c.__dict__[key].observe(self._float_handler(path, digits), names="value")
@@ -513,6 +514,7 @@ class PlannerApp:
             for widget in (fc.kind, fc.order, fc.centre, fc.bandwidth, fc.q, fc.ripple, fc.stop):
                 widget.observe(self._filter_handler(name, fc), names="value")
             fc.spec_json.observe(self._filter_json_handler(name, fc), names="value")
+        c.rf_ref.observe(self._optional_float_handler("mixer.rf_ref_dbm", "mixer"), names="value")
         c.channel.observe(self._on_channel, names="value")
         c.normalised.observe(lambda ch: self._view(normalised=bool(ch["new"])), names="value")
         c.show_clear.observe(lambda ch: self._view(show_clear=bool(ch["new"])), names="value")
@@ -556,18 +558,25 @@ class PlannerApp:
         return handler
 
     def _interferer_handler(self, change: dict) -> None:
-        if self._syncing:
-            return
-        text = str(change["new"]).strip()
-        try:
-            value = None if text == "" else round(float(text), 2)
-        except ValueError:
-            self.controls.errors["plan"].value = _error_html(
-                f"signal.interferer_level_dbm: {text!r} is invalid; give a level in dBm, or leave it blank"
-            )
-            return
-        error = self.state.try_update({"signal.interferer_level_dbm": value})
-        self.controls.errors["plan"].value = _error_html(error or "")
+        self._optional_float_handler("signal.interferer_level_dbm", "plan")(change)
+
+    def _optional_float_handler(self, path: str, box: str) -> Callable[[dict], None]:
+        """A text field holding a level in dBm, or blank for the model's default (None)."""
+        def handler(change: dict) -> None:
+            if self._syncing:
+                return
+            text = str(change["new"]).strip()
+            try:
+                value = None if text == "" else round(float(text), 2)
+            except ValueError:
+                self.controls.errors[box].value = _error_html(
+                    f"{path}: {text!r} is invalid; give a level in dBm, or leave it blank"
+                )
+                return
+            error = self.state.try_update({path: value})
+            self.controls.errors[box].value = _error_html(error or "")
+
+        return handler
 
     def _float_handler(self, path: str, digits: int) -> Callable[[dict], None]:
         def handler(change: dict) -> None:
@@ -799,7 +808,7 @@ class PlannerApp:
             c.topology.value = plan.mixer.topology
             c.balance.value = plan.mixer.balance_db
             c.table_path.value = plan.mixer.table
-            c.rf_ref.value = plan.mixer.rf_ref_dbm
+            c.rf_ref.value = "" if plan.mixer.rf_ref_dbm is None else f"{plan.mixer.rf_ref_dbm:g}"
             c.lo_drive.value = plan.mixer.lo_drive_dbm
             c.orders_shown.max = plan.max_order
             c.orders_shown.value = min(self.state.view.max_order_shown or plan.max_order, plan.max_order)

@@ -14,6 +14,7 @@ import pandas as pd
 from .context import Context, capped
 from .filters import Filter, iter_filter_stages
 from .levels import RF_EXTRAPOLATION_LIMIT_DB
+from .mixer_model import assumed_figures
 from .units import format_frequency
 
 #: A band filter wider than this fraction of its centre is warned about when it uses the
@@ -111,9 +112,29 @@ def floor_warnings(worst_by_product: pd.DataFrame) -> list[str]:
     return out
 
 
+def mixer_warnings(ctx: Context) -> list[str]:
+    """Name the mixer figures the built-in model took from its typical defaults.
+
+    Only figures the table uses are named: a CSV table's measured (0,1) or (1,0) entry needs no
+    isolation, and measured even-n entries need no LO second harmonic.
+    """
+    plan, table = ctx.plan, ctx.table
+    h = np.arange(table.max_harmonic + 1)
+    order = h[:, None] + h[None, :]
+    used = (order > 0) & (order <= plan.max_order) & ~table.measured
+    needs = {"lo_if_isolation_db": bool(used[0, 1]), "lo_rf_isolation_db": bool(used[0, 1]),
+             "rf_if_isolation_db": bool(used[1, 0]),
+             "lo_harmonic2_dbc": bool((used & (h[None, :] % 2 == 0)).any())}
+    assumed = [text for text in assumed_figures(plan.mixer, plan.direction) if needs[text.split(" ", 1)[0]]]
+    if not assumed:
+        return []
+    return [f"mixer: {', '.join(assumed)} not given, so typical {plan.mixer.topology.replace('_', '-')} values are "
+            "assumed (common practice); state them from the mixer's data sheet"]
+
+
 def plan_warnings(ctx: Context) -> list[str]:
     plan = ctx.plan
-    out: list[str] = []
+    out: list[str] = mixer_warnings(ctx)
     rf_low = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
     rf_high = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
     if plan.if_.f_low_hz <= rf_high and plan.if_.f_high_hz >= rf_low:
@@ -181,7 +202,7 @@ def plan_warnings(ctx: Context) -> list[str]:
         ("filters.if", ctx.if_filter, ctx.f_out_hz if down else ctx.f_in_hz, "the wanted signal",
          "move the filter with the plan"),
         # the tables hold at the stated LO drive: an LO on the skirt starves the mixer, and the
-        # levels are not scaled for that (the LO filter is not applied to levels)
+        # levels are not scaled for that (the LO filter enters the levels only through the LO H2 floor)
         ("filters.lo", ctx.lo_filter, ctx.lo_hz, "the LO",
          "the mixer's LO drive falls by as much and the levels, stated at the table's LO drive, do not follow"),
     )
@@ -227,7 +248,7 @@ def plan_warnings(ctx: Context) -> list[str]:
     if plan.direction == "down" and interferer is not None:
         u_mix = interferer - float(loss.min())  # pessimistic: at the preselector's least loss
         strongest = max(strongest, u_mix)
-        if abs(u_mix - ctx.table.rf_ref_dbm) > RF_EXTRAPOLATION_LIMIT_DB:
+        if u_mix - ctx.table.rf_ref_dbm > RF_EXTRAPOLATION_LIMIT_DB:  # above: optimistic (drive_warnings)
             out.append("signal.interferer_level_dbm: the interferer's " + ctx.table.drive_warnings(
                 u_mix, ctx.table.lo_ref_dbm)[0])
     # Compression: a switching mixer stays near its small-signal levels only with the RF drive

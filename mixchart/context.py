@@ -15,7 +15,8 @@ import numpy as np
 
 from .errors import AnalysisError
 from .filters import MAX_FILTER_LOSS_DB, Filter, build_filter  # the cap lives in filters (one home)
-from .levels import LevelTable, build_table
+from .levels import LevelTable
+from .mixer_model import build_table
 from .plan import Plan
 from .requirements import Limits, resolve_limits
 from .units import format_frequency
@@ -43,20 +44,21 @@ class Context:
     wanted_sign: np.ndarray
     out_low_hz: float  # output passband
     out_high_hz: float
-    lo_filter: Filter | None = None  # checked for the LO drive it takes away; not applied to levels
+    lo_filter: Filter | None = None  # its rejection of 2·f_LO lowers the even-n floor (mixer_model rule 2)
     limits: Limits | None = None  # the requirement's limits for this direction
 
 
 def build_context(plan: Plan, base_dir: Path | None) -> Context:
     channels = plan.channels_hz()
     lo = plan.lo_hz()
-    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir)
     rf_filter = (None if plan.filters.rf is None
                  else build_filter(plan.filters.rf, base_dir=base_dir, field_prefix="filters.rf."))
     if_filter = (None if plan.filters.if_ is None
                  else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if."))
     lo_filter = (None if plan.filters.lo is None
                  else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo."))
+    table = build_table(plan.mixer, plan.max_order, base_dir=base_dir, direction=plan.direction,
+                        lo_h2_rejection_db=lo_h2_rejection_db(lo_filter, lo))
     if plan.direction == "down":
         f_in = channels
         diff = np.abs(channels - lo)
@@ -87,6 +89,21 @@ def build_context(plan: Plan, base_dir: Path | None) -> Context:
     channels, lo, f_in, f_out, wanted_sign = (read_only(a) for a in (channels, lo, f_in, f_out, wanted_sign))
     return Context(plan, table, rf_filter, if_filter, channels, lo, f_in, f_out, wanted_sign, out_low, out_high,
                     lo_filter=lo_filter, limits=resolve_limits(plan.requirement, plan.direction))
+
+
+def lo_h2_rejection_db(lo_filter: Filter | None, lo_hz: np.ndarray) -> float:
+    """The LO filter's least extra rejection of the LO's second harmonic, dB, over every LO in use.
+
+    ``min over channels of A(2·f_LO) - A(f_LO)`` (0 dB without an LO filter): the least is the
+    worst case for the even-n residual floor the LO's second harmonic sets
+    (:func:`mixchart.mixer_model.builtin_table`, rule 2).  A tracking LO filter is centred on the LO.
+    """
+    if lo_filter is None or lo_hz.size == 0:
+        return 0.0
+    fc = lo_hz if lo_filter.tracks_channel else None
+    rel = (capped(lo_filter.atten_db(2.0 * lo_hz, fc), "filters.lo", 2.0 * lo_hz)
+           - capped(lo_filter.atten_db(lo_hz, fc), "filters.lo", lo_hz))
+    return float(np.min(rel))
 
 
 def band_rel_atten(ctx: Context, filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,

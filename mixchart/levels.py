@@ -4,8 +4,9 @@ A mixing product is f = |m·f_RF ± n·f_LO|: ``m`` is the RF harmonic (for an u
 harmonic of the signal at the mixer's signal input, i.e. the IF), ``n`` the LO harmonic.  A
 :class:`LevelTable` holds ``level_dbc[m, n]`` in dBc relative to the wanted (1, 1) output at a
 stated reference RF and LO drive (dBm at the mixer ports).  Tables come from the built-in model
-(:func:`builtin_table`) or a measured CSV file (:func:`read_table_csv`) whose blank cells fall
-back to the built-in model; :func:`build_table` picks from a :class:`MixerSpec`.
+(:func:`mixchart.mixer_model.builtin_table`) or a measured CSV file (:func:`read_table_csv`)
+whose blank cells fall back to the built-in model; :func:`mixchart.mixer_model.build_table`
+picks from a plan's :class:`~mixchart.mixer_model.MixerSpec`.
 
 Vanished products ((0, 0), and products cancelled by an ideal balance) sit at the finite floor
 :data:`FLOOR_DBC` = -300 dBc, never -inf, so that differences, power sums and JSON output stay
@@ -24,7 +25,6 @@ from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
-from pydantic import BaseModel, ConfigDict, Field, field_validator
 
 from .errors import LevelTableError, field_error
 from .fileio import read_regular_file
@@ -32,7 +32,7 @@ from .fileio import read_regular_file
 __all__ = [
     "Topology", "TOPOLOGIES", "FLOOR_DBC", "MAX_HARMONIC", "RF_EXTRAPOLATION_LIMIT_DB", "CSV_MAX_LEVEL_DBC",
     "LO_DRIVE_TOLERANCE_DB", "IDEAL_BALANCED_CONVERSION_LOSS_DB", "IDEAL_SINGLE_ENDED_CONVERSION_LOSS_DB",
-    "MixerSpec", "LevelTable", "default_conversion_loss_db", "builtin_table", "read_table_csv", "build_table",
+    "LevelTable", "default_conversion_loss_db", "read_table_csv", "check_topology",
 ]
 
 Topology = Literal["single_ended", "single_balanced", "double_balanced"]
@@ -53,52 +53,10 @@ _DRIVE_CLIP_DB = 1000.0
 IDEAL_BALANCED_CONVERSION_LOSS_DB = 20.0 * math.log10(math.pi / 2.0)
 #: Ideal switching mixer, 0/1 switching wave: 20·log10(pi) = 9.94 dB (derived by hand).
 IDEAL_SINGLE_ENDED_CONVERSION_LOSS_DB = 20.0 * math.log10(math.pi)
-#: Switching part of RF feedthrough (m, 0) relative to (m, 1), 0/1 switch s(t) = d + sum c_n cos(n w t):
-#: (m, 0) takes the whole DC term d = 1/2, (m, 1) one sideband's half c_1/2 = 1/pi of the fundamental,
-#: so 20·log10(pi/2) = +3.92 dB (derived by hand; checked against a simulated mixer in the tests).
-_SWITCH_FEEDTHROUGH_DB = 20.0 * math.log10(math.pi / 2.0)
 #: Highest level a CSV table entry may state, dBc: a single-ended RF feedthrough is about +4 dBc and LO
 #: leakage at a low RF reference can be well above 0 dBc; anything higher is taken as a sign slip
 #: (suppression written as a positive number).  Common practice, no source.
 CSV_MAX_LEVEL_DBC = 30.0
-
-
-class MixerSpec(BaseModel):
-    """The mixer of a plan: topology and where its spur levels come from.
-
-    Defaults are common practice, no source: a "+7 dBm LO" diode double-balanced mixer, its
-    table stated at 0 dBm RF drive, 30 dB of real balance (20-40 dB is typical), 20 dB drop per
-    extra RF harmonic order at the reference drive, 20 dB LO-to-output isolation before balance.
-    Field ranges are physical bounds, common practice, no source: drives -200 to +60 dBm (as the
-    plan's signal levels), balance and isolation 0 to 300 dB, RF harmonic step 0 to 100 dB per
-    order, conversion loss -100 to +100 dB; a table path at most 4096 characters (PATH_MAX).
-    """
-
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
-
-    topology: Topology = Field("double_balanced", description="Sets which products balance suppresses.")
-    table: Literal["builtin"] | str = Field("builtin", max_length=4096, description="'builtin' (theory) or a path to a "
-                                            "measured CSV table, relative to the plan file's folder.")
-    rf_ref_dbm: float = Field(0.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="RF drive (signal input) "
-                              "at which the built-in table is stated, dBm. A CSV table states its own.")
-    lo_drive_dbm: float = Field(7.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="LO drive at the LO port, "
-                                "dBm: the built-in table's reference; compared with a CSV table's lo_ref_dbm.")
-    balance_db: float = Field(30.0, ge=0.0, le=300.0, allow_inf_nan=False, description="How far real balance "
-                              "suppresses products that ideal balance cancels, dB.")
-    conversion_loss_db: float | None = Field(None, ge=-100.0, le=100.0, allow_inf_nan=False, description="Conversion "
-                                             "loss, dB (negative = gain); null: ideal switching value for the "
-                                             "topology.")
-    rf_harmonic_step_db: float = Field(20.0, ge=0.0, le=100.0, allow_inf_nan=False, description="Built-in model: "
-                                       "drop per extra RF harmonic order at the reference drive, dB.")
-    unbalanced_lo_isolation_db: float = Field(20.0, ge=0.0, le=300.0, allow_inf_nan=False, description="Built-in "
-                                              "model: LO-port-to-output isolation before balance, dB.")
-
-    @field_validator("table")
-    @classmethod
-    def _check_table(cls, value: str) -> str:
-        if value != "builtin" and (value != value.strip() or not value.lower().endswith(".csv") or "\0" in value):
-            raise ValueError("give 'builtin' or a path ending in .csv")
-        return value
 
 
 def default_conversion_loss_db(topology: str) -> float:
@@ -124,7 +82,7 @@ def default_conversion_loss_db(topology: str) -> float:
     3.92 dB for the ideal double-balanced switching mixer: from memory, S. A. Maas, *Microwave
     Mixers*.  The single-ended value: derived by hand from the Fourier series of a 0/1 wave.
     """
-    _check_topology(topology)
+    check_topology(topology)
     if topology == "single_ended":
         return IDEAL_SINGLE_ENDED_CONVERSION_LOSS_DB
     return IDEAL_BALANCED_CONVERSION_LOSS_DB
@@ -174,7 +132,7 @@ class LevelTable:
                               f"finite, >= {FLOOR_DBC:g} dBc")
         if level[1, 1] != 0.0:
             raise field_error(LevelTableError, "level_dbc[1, 1]", float(level[1, 1]), "0 dBc (the wanted output)")
-        _check_topology(self.topology)
+        check_topology(self.topology)
         for name in ("rf_ref_dbm", "lo_ref_dbm", "conversion_loss_db"):
             object.__setattr__(self, name, float(_drive(getattr(self, name), name, scalar=True)))
         # dB per dB of RF drive: m - 1, and 0 for vanished entries so they stay at the floor.
@@ -189,13 +147,13 @@ class LevelTable:
         """Highest harmonic index H stored, for m and for n."""
         return self.level_dbc.shape[0] - 1
 
-    def level_dbc_at(self, m: ArrayLike, n: ArrayLike, rf_drive_dbm: ArrayLike) -> np.ndarray:
+    def level_dbc_at(self, m: ArrayLike, n: ArrayLike, rf_drive_dbm: ArrayLike, *, floored: bool = True) -> np.ndarray:
         """Level of products (m, n) at an RF drive, dBc relative to the wanted output.
 
         Returns ``level_dbc[m, n] + (m - 1)·(rf_drive_dbm - rf_ref_dbm)``: the m-th RF harmonic
         grows m dB per dB of drive and the wanted output 1 dB per dB, so relative to the wanted
         output product (m, n) moves (m - 1) dB per dB (LO leakage, m = 0, falls 1 dB per dB).
-        Results never go below :data:`FLOOR_DBC`, where vanished entries stay.
+        Vanished entries stay at :data:`FLOOR_DBC`; with ``floored`` no result goes below it.
 
         Parameters
         ----------
@@ -204,6 +162,10 @@ class LevelTable:
         rf_drive_dbm : float or array_like
             RF drive at the mixer's signal input, dBm; broadcast with m and n.  -inf (no signal)
             is allowed: offsets from the reference are clipped to +/-1000 dB.
+        floored : bool
+            Limit the results to :data:`FLOOR_DBC` (a display floor).  The analysis takes the
+            unfloored level and floors only its final level, once, after the filters: a floor
+            applied to an intermediate term would decide margins it has no physics for.
 
         Returns
         -------
@@ -224,6 +186,8 @@ class LevelTable:
         delta_db = np.clip(_drive(rf_drive_dbm) - self.rf_ref_dbm, -_DRIVE_CLIP_DB, _DRIVE_CLIP_DB)
         flat = m * (self.max_harmonic + 1) + n  # one flat gather per array is ~2x faster than [m, n]
         level = self.level_dbc.ravel().take(flat) + self._slope.ravel().take(flat) * delta_db
+        if not floored:
+            return level
         return np.maximum(level, FLOOR_DBC, out=level) if isinstance(level, np.ndarray) else max(level, FLOOR_DBC)
 
     def drive_warnings(self, rf_drive_dbm: ArrayLike, lo_drive_dbm: float) -> list[str]:
@@ -240,19 +204,21 @@ class LevelTable:
         -------
         list of str
             One line per concern, empty when none: RF drive more than
-            :data:`RF_EXTRAPOLATION_LIMIT_DB` from the reference, LO drive more than
-            :data:`LO_DRIVE_TOLERANCE_DB` from the table's.
+            :data:`RF_EXTRAPOLATION_LIMIT_DB` above the reference, LO drive more than
+            :data:`LO_DRIVE_TOLERANCE_DB` from the table's.  Drives below the reference are
+            not named: there the (m - 1) dB/dB small-signal slope is the power-series result
+            itself, while above it compression and higher terms make the slope optimistic.
         """
         out: list[str] = []
         drive = _drive(rf_drive_dbm).ravel()
         drive = drive[np.isfinite(drive)]  # -inf: no signal, nothing to extrapolate
         lo_drive = float(_drive(lo_drive_dbm, "lo_drive_dbm", scalar=True))
         if drive.size:
-            worst = float(drive[np.argmax(np.abs(drive - self.rf_ref_dbm))])
-            if abs(worst - self.rf_ref_dbm) > RF_EXTRAPOLATION_LIMIT_DB:
-                out.append(f"RF drive {worst:g} dBm is {abs(worst - self.rf_ref_dbm):.1f} dB from the level "
+            worst = float(drive.max())
+            if worst - self.rf_ref_dbm > RF_EXTRAPOLATION_LIMIT_DB:
+                out.append(f"RF drive {worst:g} dBm is {worst - self.rf_ref_dbm:.1f} dB above the level "
                            f"table's reference {self.rf_ref_dbm:g} dBm; levels are extrapolated at (m-1) "
-                           "dB per dB")
+                           "dB per dB, which compression makes optimistic")
         if abs(lo_drive - self.lo_ref_dbm) > LO_DRIVE_TOLERANCE_DB:
             out.append(f"LO drive {lo_drive:g} dBm differs from the level table's {self.lo_ref_dbm:g} dBm; "
                        "levels are not scaled for LO drive")
@@ -293,115 +259,6 @@ class LevelTable:
         values = np.where(self.level_dbc <= FLOOR_DBC, np.nan, self.level_dbc)
         h = range(self.max_harmonic + 1)
         return pd.DataFrame(values, index=pd.Index(h, name="m"), columns=pd.Index(h, name="n"))
-
-
-# ---------------------------------------------------------------------------- built-in model
-def builtin_table(topology: str, max_order: int, *, balance_db: float = 30.0, rf_harmonic_step_db: float = 20.0,
-                  unbalanced_lo_isolation_db: float = 20.0, conversion_loss_db: float | None = None,
-                  rf_ref_dbm: float = 0.0, lo_ref_dbm: float = 7.0) -> LevelTable:
-    """Spur levels of a switching mixer from published theory plus stated rules of thumb.
-
-    The mixer is a memoryless RF-path nonlinearity p(x) followed by an LO-driven switch s(t):
-    y = p(x)·s(t).  Product (m, n) is the m-th RF harmonic times the n-th switching harmonic, so
-    its level relative to (1, 1), in dB, is an RF part plus a switching part:
-
-    1. Switching part, relative to n = 1, for a switch s(t) = d + sum of c_n·cos(n·w_LO·t):
-       each product (m, n >= 1) is one sideband and takes c_n/2, so n >= 1 gives
-       -20·log10(n).  Exact for odd n: the Fourier series of a square wave has only odd
-       harmonics, amplitude proportional to 1/n ((1, 3) at -9.54 dBc).  For even n the 1/n
-       envelope is the *unbalanced* level: a 0/1 switching wave of duty d has harmonics
-       proportional to |sin(n·pi·d)|/n, at worst 1/n (derived by hand).  n = 0, RF feedthrough
-       (m, 0): the product takes the whole DC term d, not half, so for a 0/1 switch at 50 %
-       duty d/(c_1/2) = (1/2)/(1/pi) = pi/2: +3.92 dB above (m, 1), for every m (derived by
-       hand; the single-ended (1, 0) is +3.92 dBc).
-    2. RF part, m >= 1: -(m - 1)·``rf_harmonic_step_db`` at the reference drive.  A diode mixer
-       has no closed form; this is a rule of thumb, 20 dB per order by default (common
-       practice, no source).
-    3. LO leakage (0, n): the LO ``unbalanced_lo_isolation_db`` below its drive (20 dB default,
-       common practice, no source) times the switching part, relative to the wanted output
-       ``rf_ref_dbm - conversion_loss_db``.  (0, 0) is never a product.
-    4. Balance: double-balanced ideally cancels products with m even or n even (so also RF
-       feedthrough (m, 0) and LO leakage (0, n)); single-balanced, taken as the signal path
-       switched by a +/-1 LO wave (no DC term), cancels n even (so also (m, 0)) but not m even;
-       single-ended cancels nothing.  From memory (e.g. S. A. Maas, *Microwave Mixers*: a double-balanced
-       mixer passes only products with m and n both odd).  Real balance leaves a cancelled
-       product at its unbalanced level minus ``balance_db`` (20-40 dB common practice, no
-       source); ``balance_db=inf`` gives the ideal table, cancelled products at :data:`FLOOR_DBC`.
-       E.g. double-balanced (1, 0) at 30 dB balance: 3.92 - 30 = -26.08 dBc.
-
-    All levels are dBc (dB relative to the wanted (1, 1) output amplitude) at the reference
-    drives; conversion loss and drives as below.
-
-    Parameters
-    ----------
-    topology : {"single_ended", "single_balanced", "double_balanced"}
-        Mixer topology.
-    max_order : int
-        Highest order m + n needed; the table holds 0 <= m, n <= max_order.
-    balance_db, rf_harmonic_step_db, unbalanced_lo_isolation_db : float
-        Real balance suppression (``math.inf``: ideal balance), drop per extra RF harmonic order
-        at the reference drive, and LO-port-to-output isolation before balance; dB, all >= 0.
-    conversion_loss_db : float, optional
-        Conversion loss, dB; default :func:`default_conversion_loss_db`.
-    rf_ref_dbm, lo_ref_dbm : float
-        Reference RF drive (signal input) and LO drive (LO port) of the table, dBm.
-
-    Returns
-    -------
-    LevelTable
-        With ``measured`` all False.
-
-    Raises
-    ------
-    LevelTableError
-        If an argument is out of range.
-
-    Examples
-    --------
-    >>> round(float(builtin_table("double_balanced", 5, balance_db=math.inf).level_dbc[1, 3]), 2)
-    -9.54
-    >>> round(float(builtin_table("single_ended", 5).level_dbc[1, 0]), 2)
-    3.92
-    """
-    _check_topology(topology)
-    whole = isinstance(max_order, (int, np.integer)) and not isinstance(max_order, bool)
-    if not whole or not 0 < max_order <= MAX_HARMONIC:
-        raise field_error(LevelTableError, "max_order", max_order, f"an integer from 1 to {MAX_HARMONIC}")
-    if not balance_db >= 0.0:  # also rejects NaN
-        raise field_error(LevelTableError, "balance_db", balance_db, ">= 0 dB (inf for ideal balance)")
-    for name, value in (("rf_harmonic_step_db", rf_harmonic_step_db),
-                        ("unbalanced_lo_isolation_db", unbalanced_lo_isolation_db)):
-        if not (math.isfinite(value) and value >= 0.0):
-            raise field_error(LevelTableError, name, value, "finite and >= 0 dB")
-    _drive(rf_ref_dbm, "rf_ref_dbm", scalar=True)
-    _drive(lo_ref_dbm, "lo_ref_dbm", scalar=True)
-    if conversion_loss_db is None:
-        conversion_loss_db = default_conversion_loss_db(topology)
-    elif not math.isfinite(conversion_loss_db):
-        raise field_error(LevelTableError, "conversion_loss_db", conversion_loss_db, "finite dB or None")
-
-    h = np.arange(int(max_order) + 1)
-    m, n = h[:, None], h[None, :]
-    switch_db = np.where(n >= 1, -20.0 * np.log10(np.maximum(n, 1)), _SWITCH_FEEDTHROUGH_DB)  # rule 1
-    unbalanced = -(m - 1.0) * rf_harmonic_step_db + switch_db
-    wanted_dbm = rf_ref_dbm - conversion_loss_db
-    unbalanced[0, :] = lo_ref_dbm - unbalanced_lo_isolation_db + switch_db[0, :] - wanted_dbm
-    level = np.maximum(np.where(_cancelled(topology, m, n), unbalanced - balance_db, unbalanced), FLOOR_DBC)
-    level[1, 1] = 0.0
-    balance_text = "ideal balance" if math.isinf(balance_db) else f"balance {balance_db:g} dB"
-    description = (f"built-in {topology.replace('_', '-')} switching-mixer model ({balance_text}, "
-                   f"{rf_harmonic_step_db:g} dB per RF harmonic order) at RF {rf_ref_dbm:g} dBm, "
-                   f"LO {lo_ref_dbm:g} dBm")
-    return LevelTable(level, np.zeros(level.shape, dtype=bool), rf_ref_dbm, lo_ref_dbm, conversion_loss_db,
-                      topology, description)
-
-
-def _cancelled(topology: str, m: np.ndarray, n: np.ndarray) -> np.ndarray:
-    """Products that an ideal balance of ``topology`` cancels (:func:`builtin_table`, rule 4)."""
-    even_m, even_n = np.broadcast_arrays(m % 2 == 0, n % 2 == 0)
-    if topology == "double_balanced":
-        return even_m | even_n
-    return even_n if topology == "single_balanced" else np.zeros(even_n.shape, dtype=bool)
 
 
 # ---------------------------------------------------------------------------- CSV tables
@@ -541,42 +398,9 @@ def read_table_csv(path: str | Path, *, fallback: LevelTable) -> LevelTable:
                       "; ".join(note for note in notes if note))
 
 
-def build_table(spec: MixerSpec, max_order: int, *, base_dir: str | Path | None = None) -> LevelTable:
-    """The level table a plan's mixer spec asks for.
-
-    Parameters
-    ----------
-    spec : MixerSpec
-        The mixer spec.
-    max_order : int
-        Highest order m + n needed.
-    base_dir : str or pathlib.Path, optional
-        Folder for a relative ``spec.table`` path (the plan file's); default: current directory.
-
-    Returns
-    -------
-    LevelTable
-        The built-in table at ``spec.rf_ref_dbm`` and ``spec.lo_drive_dbm``; or the CSV table at
-        its own stated drives, with built-in fallback (stated at the spec's drives, moved to the
-        CSV's RF reference).  :meth:`LevelTable.drive_warnings` then compares the LO drive.
-
-    Raises
-    ------
-    LevelTableError
-        If the CSV table is unreadable or invalid.
-    """
-    fallback = builtin_table(
-        spec.topology, max_order, balance_db=spec.balance_db, rf_harmonic_step_db=spec.rf_harmonic_step_db,
-        unbalanced_lo_isolation_db=spec.unbalanced_lo_isolation_db, conversion_loss_db=spec.conversion_loss_db,
-        rf_ref_dbm=spec.rf_ref_dbm, lo_ref_dbm=spec.lo_drive_dbm)
-    if spec.table == "builtin":
-        return fallback
-    # An absolute spec.table wins over base_dir under pathlib's "/".
-    return read_table_csv(Path(base_dir if base_dir is not None else ".") / spec.table, fallback=fallback)
-
-
 # ---------------------------------------------------------------------------- helpers
-def _check_topology(topology: object) -> None:
+def check_topology(topology: object) -> None:
+    """Refuse a topology that is not one of :data:`TOPOLOGIES` (LevelTableError naming the field)."""
     if topology not in TOPOLOGIES:
         raise field_error(LevelTableError, "topology", topology, f"one of {', '.join(TOPOLOGIES)}")
 

@@ -28,7 +28,7 @@ from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError,
 from .errors import PlanError, SweepTooLargeError, one_line
 from .fileio import atomic_write_text, read_regular_file
 from .filters import FilterSpec, iter_filter_stages
-from .levels import MixerSpec
+from .mixer_model import MixerSpec
 from .requirements import MaskSegment, Requirement
 from .units import FrequencyHz, SpanHz, format_frequency
 from .validation import from_validation_error

@@ -142,9 +142,14 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
     signal = f"bandwidth {format_frequency(sig.bandwidth_hz)}, level {sig.level_dbm:g} dBm ahead of the input filter"
     if sig.interferer_level_dbm is not None:
         signal += f"; unwanted inputs assumed at {sig.interferer_level_dbm:g} dBm"
-    table = "built-in level table" if mx.table == "builtin" else f"level table {mx.table!r}"
-    mixer = (f"{mx.topology.replace('_', '-')}; {table} stated at {mx.rf_ref_dbm:g} dBm RF drive; "
-             f"LO drive {mx.lo_drive_dbm:g} dBm; balance {mx.balance_db:g} dB")
+    if mx.table == "builtin":
+        table = "built-in level table"
+        ref = "" if mx.rf_ref_dbm is not None else " (10 dB under the LO drive)"
+        table += f" stated at {ev.level_table.rf_ref_dbm:g} dBm RF drive{ref}"
+    else:
+        table = f"level table {mx.table!r} stated at {ev.level_table.rf_ref_dbm:g} dBm RF drive"
+    mixer = (f"{mx.topology.replace('_', '-')}; {table}; LO drive {mx.lo_drive_dbm:g} dBm; "
+             f"balance {mx.balance_db:g} dB; {ev.level_table.description}")
     if mx.conversion_loss_db is not None:
         mixer += f"; conversion loss {mx.conversion_loss_db:g} dB"
     filters = f"RF: {_filter_words(plan.filters.rf)}. IF: {_filter_words(plan.filters.if_)}."

@@ -40,7 +40,7 @@ from reference_filters import (  # noqa: F401  (re-exported for the tests)
     chebyshev1_loss_db,
     tuned_circuit_loss_db,
 )
-from reference_levels import DRIVE_CLIP_DB, FLOOR_DBC, TableLevels  # noqa: F401
+from reference_levels import DRIVE_CLIP_DB, FLOOR_DBC, TableLevels, shown  # noqa: F401
 
 
 def product_list(f_in_hz: float, f_lo_hz: float, bw_in_hz: float, max_order: int) -> list[tuple]:
@@ -257,8 +257,9 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
     model in one page" ("dev"), not copied from the engine's code:
 
     * Table level at a drive (levels.LevelTable.level_dbc_at docstring; dev):
-      ``T(m, n) + (m - 1)·(P - P_ref)``, the offset clipped to +/-1000 dB, never
-      below the floor -300 dBc, and vanished entries (at the floor) stay there.
+      ``T(m, n) + (m - 1)·(P - P_ref)``, the offset clipped to +/-1000 dB, and vanished
+      entries (at the floor) stay there.  The final level is floored once at -300 dBc
+      for display; margins and rejections take the unfloored level (analysis FRAME_COLUMNS).
     * Products of the wanted signal (analysis; dev):
       ``level = T(m, n) + (m - 1)·(P_mix - P_ref) - [A_out(f) - A_out(f_wanted)]``
       with ``P_mix`` the signal level less the input filter's loss at the wanted
@@ -315,10 +316,19 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
         ``worst_by_product``: ``{(kind, m, n, sign): (margin_db, channel_index, label)}``
         for every product/response with a finite margin somewhere.
     """
-    from mixchart.levels import build_table  # input data only: the mixer's level table
+    from mixchart.mixer_model import build_table  # input data only: the mixer's level table
 
-    table_at = TableLevels(build_table(plan.mixer, plan.max_order, base_dir=base_dir))
     down = plan.direction == "down"
+    # The table is built for the plan's direction (which port is the output: the LO isolation it
+    # takes) and with the LO filter's least extra rejection of 2·f_LO over f_LO across the LOs in
+    # use (mixchart.mixer_model.builtin_table rule 2; mixchart.context.lo_h2_rejection_db docstring).
+    lo_h2_rejection = 0.0
+    if plan.filters.lo is not None:
+        lo_filter = FilterLoss(plan.filters.lo, base_dir)
+        los = [row["lo"] for row in sweep(plan)]  # every LO in use, as the engine takes them
+        lo_h2_rejection = min(lo_filter(2.0 * f, f) - lo_filter(f, f) for f in los)  # tracking: centred on f_LO
+    table_at = TableLevels(build_table(plan.mixer, plan.max_order, base_dir=base_dir, direction=plan.direction,
+                                       lo_h2_rejection_db=lo_h2_rejection))
     # mixchart.requirements docstring: response_rejection_db (default min_rejection_db) for responses,
     # output_spur_dbc (default -min_rejection_db) for products; a transmitter's mask segments judge the
     # parts of a product band inside them, the gaps take output_spur_dbc, and the margin is the least.
@@ -369,7 +379,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
                 pass  # the caller's: limit - level over the limiting piece of the band
             else:  # input-referred rejection (P_u - P_w) - level/m, less the requirement
                 margin = (p_u - p_w) - level / m - rejection
-            rows.append((kind, label, m, n, sign, centre, low, high, level, margin))
+            rows.append((kind, label, m, n, sign, centre, low, high, shown(level), margin))
             if margin < inf:
                 key = (margin, 0 if kind == "product" else 1, m + n, m, sign)
                 if worst_key is None or key < worst_key:

@@ -18,8 +18,8 @@ DRIVE_CLIP_DB = 1000.0
 class TableLevels:
     """``T(m, n) + (m - 1)·(P - P_ref)`` in plain floats, for a built :class:`~mixchart.levels.LevelTable`.
 
-    The offset is clipped to +/-1000 dB, the result never goes below the floor -300 dBc, and
-    vanished entries (at the floor) stay there.
+    The offset is clipped to +/-1000 dB and vanished entries (at the floor) stay there; the
+    result is not floored (the final level is, once: :func:`shown`).
     """
 
     def __init__(self, table) -> None:
@@ -28,9 +28,15 @@ class TableLevels:
         self.conversion_loss_db = float(table.conversion_loss_db)
 
     def __call__(self, m: int, n: int, drive_dbm: float) -> float:
+        """The level at a drive, unfloored: the analysis floors only the final level, once
+        (mixchart.analysis FRAME_COLUMNS "level_dbc"; levels.LevelTable.level_dbc_at ``floored``)."""
         t = self.level_table[m][n]
         if t <= FLOOR_DBC:
             return FLOOR_DBC
         offset = min(max(drive_dbm - self.rf_ref, -DRIVE_CLIP_DB), DRIVE_CLIP_DB)
-        level = t + (m - 1) * offset
-        return level if level > FLOOR_DBC else FLOOR_DBC
+        return t + (m - 1) * offset
+
+
+def shown(level_dbc: float) -> float:
+    """The final level as the analysis shows it: floored once at FLOOR_DBC, -inf kept."""
+    return level_dbc if level_dbc == float("-inf") else max(level_dbc, FLOOR_DBC)

@@ -19,7 +19,7 @@ from typing import Literal
 
 import numpy as np
 
-__all__ = ["MixerOutput", "simulate", "switching_wave"]
+__all__ = ["MixerOutput", "lo_driven_wave", "simulate", "switching_wave"]
 
 
 def switching_wave(n_samples: int, lo_cycles: int, *, kind: Literal["unipolar", "bipolar"], duty: float = 0.5
@@ -53,6 +53,19 @@ def switching_wave(n_samples: int, lo_cycles: int, *, kind: Literal["unipolar", 
     raise ValueError(f"kind: {kind!r}")
 
 
+def lo_driven_wave(n_samples: int, lo_cycles: int, *, h2_amplitude: float = 0.0, h2_phase_rad: float = 0.0,
+                   threshold: np.ndarray | float = 0.0) -> np.ndarray:
+    """+/-1 switch driven by an LO with a second harmonic: ``sign(cos θ + a·cos(2θ + φ) - threshold)``.
+
+    The switch changes state where the LO voltage crosses ``threshold`` (0: the LO's own zero
+    crossings), so a second harmonic in the LO, or an RF voltage shared with the diodes passed
+    as ``threshold``, moves the switching instants.  Samples at half-sample phase offsets.
+    """
+    theta = 2.0 * np.pi * ((lo_cycles * np.arange(n_samples)) % n_samples + 0.5) / n_samples
+    v = np.cos(theta) + h2_amplitude * np.cos(2.0 * theta + h2_phase_rad)
+    return np.where(v > threshold, 1.0, -1.0)
+
+
 @dataclass(frozen=True)
 class MixerOutput:
     """Output spectrum of a simulated mixer.
@@ -84,7 +97,8 @@ class MixerOutput:
 
 def simulate(*, switch: Literal["unipolar", "bipolar"], amplitude: float = 1.0, duty: float = 0.5,
              rf_poly: Sequence[float] = (0.0, 1.0), rf_cycles: int = 37, lo_cycles: int = 256,
-             n_samples: int = 2**18, max_m: int | None = None, max_n: int = 5) -> MixerOutput:
+             n_samples: int = 2**18, max_m: int | None = None, max_n: int = 5,
+             wave: np.ndarray | None = None) -> MixerOutput:
     """Simulate y = p(A·cos(2·pi·f_RF·t))·s(t) over a coherent record and take its spectrum.
 
     Parameters
@@ -104,6 +118,9 @@ def simulate(*, switch: Literal["unipolar", "bipolar"], amplitude: float = 1.0, 
     max_m, max_n : int
         Products 0 <= m <= max_m (default: the degree of p), 0 <= n <= max_n are checked to fall
         on distinct bins strictly between DC and Nyquist.
+    wave : numpy.ndarray, optional
+        A switching wave of ``n_samples`` samples to use instead of :func:`switching_wave`
+        (e.g. :func:`lo_driven_wave`); ``switch`` and ``duty`` are then ignored.
 
     Returns
     -------
@@ -129,7 +146,7 @@ def simulate(*, switch: Literal["unipolar", "bipolar"], amplitude: float = 1.0, 
     t = np.arange(n_samples)
     x = amplitude * np.cos(2.0 * np.pi * ((rf_cycles * t) % n_samples) / n_samples)  # exact phase
     p = np.polynomial.polynomial.polyval(x, rf_poly)
-    y = p * switching_wave(n_samples, lo_cycles, kind=switch, duty=duty)
+    y = p * (switching_wave(n_samples, lo_cycles, kind=switch, duty=duty) if wave is None else wave)
     spectrum = np.abs(np.fft.rfft(y)) * 2.0 / n_samples
     spectrum[0] /= 2.0
     return MixerOutput(spectrum, rf_cycles, lo_cycles)

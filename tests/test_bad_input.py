@@ -22,7 +22,8 @@ from mixchart.cli import example_path
 from mixchart.errors import AnalysisError, FilterError, LevelTableError, MixchartError, PlanError, UnitError
 from mixchart.fileio import read_regular_file
 from mixchart.filters import build_filter
-from mixchart.levels import builtin_table, read_table_csv
+from mixchart.levels import read_table_csv
+from mixchart.mixer_model import MixerSpec, builtin_table
 from mixchart.plan import load_plan, loads_plan, plan_json_schema
 from mixchart.units import _TEXT, MAX_FREQUENCY_TEXT, parse_frequency
 
@@ -184,7 +185,7 @@ def _fifo(tmp_path, name):
 def test_a_fifo_is_refused_without_blocking(tmp_path):
     fifo = _fifo(tmp_path, "table.csv")  # nobody ever writes to it: open() without O_NONBLOCK hangs
     with pytest.raises(LevelTableError) as info:
-        read_table_csv(fifo, fallback=builtin_table("double_balanced", 5))
+        read_table_csv(fifo, fallback=builtin_table(MixerSpec(), 5))
     assert one_line_error(info) == f"table: {str(fifo)!r} is invalid; cannot be read (not a regular file)"
     s2p = _fifo(tmp_path, "f.s2p")
     with pytest.raises(FilterError) as info:
@@ -200,7 +201,7 @@ def test_a_symlink_to_dev_zero_is_refused(tmp_path):
     link = tmp_path / "zero.csv"
     link.symlink_to("/dev/zero")  # st_size 0 and endless: once grew to 1.9 GB, then MemoryError
     with pytest.raises(LevelTableError) as info:
-        read_table_csv(link, fallback=builtin_table("double_balanced", 5))
+        read_table_csv(link, fallback=builtin_table(MixerSpec(), 5))
     assert one_line_error(info).endswith("cannot be read (not a regular file)")
     s2p = tmp_path / "zero.s2p"
     s2p.symlink_to("/dev/zero")
@@ -242,7 +243,7 @@ def test_a_file_that_is_not_a_table_is_never_quoted(tmp_path):
     link = tmp_path / "levels.csv"
     link.symlink_to(other)
     with pytest.raises(LevelTableError) as info:
-        read_table_csv(link, fallback=builtin_table("double_balanced", 5))
+        read_table_csv(link, fallback=builtin_table(MixerSpec(), 5))
     message = one_line_error(info)
     assert "root" not in message and "is this a level table?" in message
     s2p = tmp_path / "passwd.s2p"

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 
@@ -18,8 +20,10 @@ def test_moving_the_if_moves_an_if_filter_centred_on_it() -> None:
     # nothing is down a skirt; the only warnings state the assumed ultimate rejections of both filters
     # and the worst-case rows those assumptions decide
     assumed = [w for w in state.evaluation.warnings
-               if ".max_atten_db: not given" in w or ": the assumed ultimate rejection" in w]
-    assert [w[:10] for w in assumed] == ["filters.rf", "filters.if", "filters.rf", "filters.if"]
+               if ".max_atten_db: not given" in w or ": the assumed ultimate rejection" in w
+               or w.startswith("mixer: ")]
+    assert assumed[0].startswith("mixer: lo_if_isolation_db (30 dB)")
+    assert sorted(w[:10] for w in assumed[1:]) == ["filters.if", "filters.if", "filters.rf", "filters.rf"]
     assert [w for w in state.evaluation.warnings if w not in assumed] == []
 
 
@@ -90,9 +94,13 @@ def test_a_transmitter_without_an_output_filter_emits_every_product() -> None:
         "requirement": {"min_rejection_db": 60},
     }
     result = evaluate(plan_from_dict(data))
-    assert result.summary.worst_margin_db == -60.0
-    assert result.summary.worst_label == "unwanted sideband (1,1)"
-    assert result.worst_row.iloc[0]["f_center_hz"] == 300e6
+    sideband = result.worst_by_product.query("label == 'unwanted sideband'").iloc[0]
+    assert sideband["margin_db"] == -60.0 and sideband["f_center_hz"] == 300e6
+    # worse still, the LO itself: 7 dBm less the typical 35 dB LO-RF isolation of a double-balanced
+    # mixer (mixer_model, common practice) = -28 dBm, against a wanted output of -30 - 3.92 dBm:
+    # +5.92 dBc, margin -65.92 dB (data-sheet arithmetic, derived by hand)
+    assert result.summary.worst_label == "LO leakage (0,1)"
+    assert result.summary.worst_margin_db == pytest.approx(-60 - (-28 + 30 + 20 * math.log10(math.pi / 2)))
     assert any(w.startswith("filters.rf: no output filter described") for w in result.warnings)
     # with a real output filter (a 20 MHz wide brick wall with 80 dB of stopband loss) the
     # sideband is 80 dB down: margin 80 - 60 = +20 dB, and the warning is gone

@@ -25,17 +25,13 @@ from pydantic import ValidationError
 from mixchart.errors import LevelTableError
 from mixchart.levels import (
     FLOOR_DBC,
-    IDEAL_BALANCED_CONVERSION_LOSS_DB,
     LO_DRIVE_TOLERANCE_DB,
     RF_EXTRAPOLATION_LIMIT_DB,
     TOPOLOGIES,
     LevelTable,
-    MixerSpec,
-    build_table,
-    builtin_table,
-    default_conversion_loss_db,
     read_table_csv,
 )
+from mixchart.mixer_model import MixerSpec, build_table, builtin_table
 
 DATA = Path(__file__).parent / "data"
 PARTIAL_CSV = DATA / "levels_dbc_rf-10dbm_lo7dbm_partial_madeup.csv"
@@ -67,6 +63,13 @@ def _db(ratio: float) -> float:
     return 20.0 * math.log10(ratio)
 
 
+def builtin(topology: str = "double_balanced", max_order: int = 5, **fields) -> LevelTable:
+    """The built-in table of a mixer spec with these fields (``balance_db=inf``: ideal, no LO H2)."""
+    if fields.get("balance_db") == math.inf:
+        fields.update(balance_db=300.0, lo_harmonic2_dbc=-300.0)
+    return builtin_table(MixerSpec(topology=topology, **fields), max_order)
+
+
 def _write_csv(path: Path, level_dbc: np.ndarray, blank: np.ndarray, rf_ref_dbm: float, lo_ref_dbm: float):
     """Write a level table in the documented CSV layout (test-side writer, independent of the reader)."""
     size = level_dbc.shape[0]
@@ -78,188 +81,13 @@ def _write_csv(path: Path, level_dbc: np.ndarray, blank: np.ndarray, rf_ref_dbm:
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
 
 
-# ---------------------------------------------------------------------------- the built-in model
-@pytest.mark.parametrize("n", range(1, 10))
-def test_ideal_switching_table_matches_square_wave_fourier_series(n):
-    # Source: Fourier series of a square wave, s(t) = (4/pi) * sum over odd n of sin(n w t)/n:
-    # evaluated numerically here with numpy's FFT of a sampled +/-1 square wave (one period in
-    # 2**16 samples, so the discrete-time error is ~1e-8 relative).
-    spectrum = _amplitudes(_switch(2**16, 1))
-    table = builtin_table("double_balanced", 9, balance_db=math.inf)
-    if n % 2:
-        fourier_dbc = _db(spectrum[n] / spectrum[1])
-        assert table.level_dbc[1, n] == pytest.approx(fourier_dbc, abs=1e-5)
-        # Published closed form of the same series: -20*log10(n) dBc (-9.54 dB for n = 3).
-        assert table.level_dbc[1, n] == pytest.approx(-20 * math.log10(n), abs=1e-12)
-    else:
-        assert spectrum[n] / spectrum[1] < 1e-9  # even harmonics vanish
-        assert table.level_dbc[1, n] == FLOOR_DBC
-
-
-FEEDTHROUGH_DB = 20 * math.log10(math.pi / 2)  # +3.92 dB: derived by hand, 0/1 switch, (1/2)/(1/pi)
-
-
-def test_single_ended_feedthrough_matches_simulated_mixer_output():
-    # Source: time-domain simulation of the ideal single-ended mixer y = A cos(w_RF t) * s(t), s a
-    # 0/1 switch at 50 % duty, coherent FFT (tests/sim_mixer.py).  The mixer's *output* is measured,
-    # not the switching wave: (1, 0) takes the whole DC term 1/2, (1, 1) one sideband's half of the
-    # fundamental 2/pi, so (1, 0) - (1, 1) = 20 log10(pi/2) = +3.92 dB (issue 8, item 4).
-    out = sim_mixer.simulate(switch="unipolar", amplitude=0.3)
-    table = builtin_table("single_ended", 4)
-    assert out.amplitude(1, 0) == pytest.approx(0.3 / 2, rel=1e-9)  # A·d, whole DC term
-    assert out.amplitude(1, 1) == pytest.approx(0.3 / math.pi, rel=1e-4)  # A·c_1/2, one sideband
-    assert out.amplitude(1, 1, sign=+1) == pytest.approx(out.amplitude(1, 1), rel=1e-12)  # other sideband alike
-    assert out.dbc(1, 0) == pytest.approx(3.92, abs=0.01)
-    assert table.level_dbc[1, 0] == pytest.approx(out.dbc(1, 0), abs=0.01)
-    assert table.level_dbc[1, 0] == pytest.approx(FEEDTHROUGH_DB, abs=1e-12)
-    # (1, 3): -20 log10(3) = -9.54 dBc, published closed form of the square-wave series; simulated.
-    assert out.dbc(1, 3) == pytest.approx(-9.54, abs=0.01)
-    assert table.level_dbc[1, 3] == pytest.approx(out.dbc(1, 3), abs=0.01)
-
-
-def test_balanced_switch_output_has_no_feedthrough_and_the_same_lo_harmonics():
-    # Source: the same simulation with a +/-1 switch (balanced mixer, tests/sim_mixer.py): no DC
-    # term, so (1, 0) vanishes; (1, 3) is -9.54 dBc as for the 0/1 switch.  Compared with the
-    # ideal-balance tables (balance_db = inf).
-    out = sim_mixer.simulate(switch="bipolar")
-    assert out.amplitude(1, 0) < 1e-12 * out.amplitude(1, 1)
-    assert out.amplitude(1, 1) == pytest.approx(2 / math.pi, rel=1e-4)  # 4/pi fundamental, one half
-    for topology in ("single_balanced", "double_balanced"):
-        table = builtin_table(topology, 4, balance_db=math.inf)
-        assert table.level_dbc[1, 0] == FLOOR_DBC
-        assert out.dbc(1, 3) == pytest.approx(-9.54, abs=0.01)
-        assert table.level_dbc[1, 3] == pytest.approx(out.dbc(1, 3), abs=0.01)
-        # Real balance (rule 4, common practice, no source): the cancelled feedthrough sits at its
-        # unbalanced (0/1-switch, simulated above) level minus balance_db: 3.92 - 30 = -26.08 dBc.
-        real = builtin_table(topology, 4, balance_db=30.0)
-        assert real.level_dbc[1, 0] == pytest.approx(FEEDTHROUGH_DB - 30.0, abs=1e-12)
-        assert real.level_dbc[1, 0] == pytest.approx(-26.08, abs=0.005)
-
-
-@pytest.mark.parametrize("m", [1, 2, 3])
-def test_feedthrough_of_every_rf_harmonic_sits_3_92_db_above_its_first_lo_product(m):
-    # Source: simulation with an RF power series p(x) = x + 0.3 x^2 + 0.1 x^3 ahead of the 0/1
-    # switch (tests/sim_mixer.py): (m, 0) / (m, 1) is a property of the switch alone, +3.92 dB
-    # for every m.  The table's RF part (rule 2) is a rule of thumb and cancels in the difference.
-    out = sim_mixer.simulate(switch="unipolar", rf_poly=(0.0, 1.0, 0.3, 0.1))
-    simulated_db = out.dbc(m, 0) - out.dbc(m, 1)
-    assert simulated_db == pytest.approx(3.92, abs=0.01)
-    for step in (0.0, 20.0, 17.0):
-        table = builtin_table("single_ended", 4, rf_harmonic_step_db=step)
-        assert table.level_dbc[m, 0] - table.level_dbc[m, 1] == pytest.approx(simulated_db, abs=0.01)
-
-
-def test_single_ended_even_lo_envelope_matches_simulated_mixer_output():
-    # Derived by hand: a 0/1 wave of duty d has harmonic n proportional to |sin(n pi d)|/n; its
-    # worst case over d, relative to the 50 % fundamental, is 1/n.  Checked on the simulated
-    # mixer output (tests/sim_mixer.py) over a grid of duties: (1, n) at duty d against (1, 1) at 50 %.
-    def run(duty):
-        return sim_mixer.simulate(switch="unipolar", duty=duty, rf_cycles=37, lo_cycles=64, n_samples=2**16)
-
-    table = builtin_table("single_ended", 4)
-    wanted_50 = run(0.5).amplitude(1, 1)
-    outputs = [run(d) for d in np.arange(1, 64) / 64]
-    for n in (2, 4):
-        worst = max(out.amplitude(1, n) for out in outputs)
-        assert table.level_dbc[1, n] == pytest.approx(_db(worst / wanted_50), abs=1e-3)
-
-
-@pytest.mark.parametrize(
-    ("topology", "bipolar", "expected_db"),
-    [
-        # Published value 3.92 dB for the ideal double-balanced switching mixer, 20*log10(pi/2):
-        # from memory, S. A. Maas, "Microwave Mixers".  Here it is computed by simulating the switch.
-        ("double_balanced", True, 3.92),
-        ("single_balanced", True, 3.92),
-        # Derived by hand: 0/1 switch, fundamental 2/pi, IF amplitude 1/pi -> 20*log10(pi) = 9.94 dB.
-        ("single_ended", False, 9.94),
-    ],
-)
-def test_conversion_loss_of_ideal_switching_mixer(topology, bipolar, expected_db):
-    # Source: numerical simulation of y = cos(w_RF t) * s(t) (numpy FFT); IF at |k_RF - k_LO|.
-    n_samples, k_rf, k_lo = 2**16, 37, 256
-    y = _tone(n_samples, k_rf) * _switch(n_samples, k_lo, bipolar=bipolar)
-    simulated_db = -_db(_amplitudes(y)[k_lo - k_rf])
-    assert default_conversion_loss_db(topology) == pytest.approx(simulated_db, abs=2e-3)
-    assert builtin_table(topology, 3).conversion_loss_db == pytest.approx(expected_db, abs=5e-3)
-    assert IDEAL_BALANCED_CONVERSION_LOSS_DB == pytest.approx(20 * math.log10(math.pi / 2), abs=1e-15)
-
-
-@pytest.mark.parametrize(("topology", "bipolar", "duty", "odd_rf"), [
-    ("double_balanced", True, 0.5, True),   # balanced RF port: only the odd part of p(x) survives
-    ("single_balanced", True, 0.5, False),  # +/-1 LO switching, single-ended RF path
-    ("single_ended", False, 0.4, False),    # 0/1 switch; duty 0.4 so even LO harmonics appear
-])
-def test_which_products_an_ideal_topology_cancels(topology, bipolar, duty, odd_rf):
-    # Source: numerical simulation of the ideal circuit y = p(x) * s(t), p(x) = x + 0.1 x^2 + 0.05 x^3
-    # (a power series; its x^2 term also gives DC, i.e. LO feedthrough as from a bias current).
-    # A product is "present" if its FFT amplitude exceeds 1e-9 of the wanted output.  The
-    # parity rule the table encodes is from memory (S. A. Maas, "Microwave Mixers").
-    n_samples, k_rf, k_lo = 64_000, 37, 256  # 250 samples per LO period, 100 'on' at duty 0.4
-    x = _tone(n_samples, k_rf)
-    p = x + 0.1 * x**2 + 0.05 * x**3
-    if odd_rf:
-        p = (p - (-x + 0.1 * x**2 - 0.05 * x**3)) / 2
-    spectrum = _amplitudes(p * _switch(n_samples, k_lo, duty=duty, bipolar=bipolar))
-    table = builtin_table(topology, 4, balance_db=math.inf)
-    for m in range(4):
-        for n in range(5):
-            if (m, n) == (0, 0):
-                continue
-            present = spectrum[abs(n * k_lo - m * k_rf)] > 1e-9 * spectrum[k_lo - k_rf]
-            assert (table.level_dbc[m, n] > FLOOR_DBC) == present, (m, n)
-
-
-def test_switching_mixer_products_factorise_into_rf_and_lo_parts():
-    # Source: numerical simulation of y = p(x) * s(t) with a +/-1 switch: product (m, n) is the
-    # m-th RF harmonic times the n-th LO harmonic, so (3, 3)/(3, 1) = (1, 3)/(1, 1) = 1/3.
-    n_samples, k_rf, k_lo = 2**16, 37, 64  # 1024 samples per LO period: discrete error < 1e-4 dB
-    x = _tone(n_samples, k_rf)
-    spectrum = _amplitudes((x + 0.05 * x**3) * _switch(n_samples, k_lo))
-    level = {(m, n): spectrum[abs(n * k_lo - m * k_rf)] for m in (1, 3) for n in (1, 3)}
-    simulated_db = _db(level[3, 3] / level[3, 1])
-    assert simulated_db == pytest.approx(_db(level[1, 3] / level[1, 1]), abs=1e-6)
-    table = builtin_table("double_balanced", 6, rf_harmonic_step_db=17.0)
-    assert table.level_dbc[3, 3] - table.level_dbc[3, 1] == pytest.approx(simulated_db, abs=1e-3)
-
-
-@pytest.mark.parametrize("balance_db", [0.0, 20.0, 30.0, 40.0])
-def test_real_balance_suppresses_exactly_the_ideally_cancelled_products(balance_db):
-    # Rule (common practice, no source): an ideally cancelled product sits at its unbalanced
-    # level minus balance_db.  balance_db = 0 is the unbalanced level by definition.
-    for topology in TOPOLOGIES:
-        unbalanced = builtin_table(topology, 6, balance_db=0.0).level_dbc
-        ideal = builtin_table(topology, 6, balance_db=math.inf).level_dbc
-        real = builtin_table(topology, 6, balance_db=balance_db).level_dbc
-        cancelled = ideal <= FLOOR_DBC
-        cancelled[0, 0] = False
-        np.testing.assert_allclose(real[cancelled], unbalanced[cancelled] - balance_db, atol=1e-12)
-        np.testing.assert_array_equal(real[~cancelled][1:], unbalanced[~cancelled][1:])
-        if topology == "single_ended":  # nothing is suppressed
-            assert not cancelled.any()
-        if topology == "double_balanced":  # even m or even n (from memory, S. A. Maas)
-            assert cancelled[2, 1] and cancelled[1, 2] and cancelled[0, 1] and cancelled[1, 0]
-            assert not cancelled[3, 1] and not cancelled[1, 3]
-        if topology == "single_balanced":  # even n only
-            assert cancelled[1, 2] and cancelled[1, 0] and not cancelled[2, 1]
-
-
-def test_lo_leakage_follows_drive_isolation_and_conversion_loss():
-    # Derived by hand from rule 3: (0, 1) = (LO - isolation) - (RF_ref - conversion loss), single
-    # ended (no balance): 7 - 20 - (0 - 9.94) = -3.06 dBc; LO harmonics follow the 1/n envelope.
-    table = builtin_table("single_ended", 3, unbalanced_lo_isolation_db=20.0, rf_ref_dbm=0.0, lo_ref_dbm=7.0)
-    assert table.level_dbc[0, 1] == pytest.approx(7 - 20 - (0 - 20 * math.log10(math.pi)), abs=1e-12)
-    assert table.level_dbc[0, 3] - table.level_dbc[0, 1] == pytest.approx(-20 * math.log10(3), abs=1e-12)
-    assert table.level_dbc[0, 0] == FLOOR_DBC  # (0, 0) is never a product
-
-
 # ---------------------------------------------------------------------------- drive scaling
 @pytest.mark.parametrize(("m", "n", "slope"), [
     # Derived by hand from the rule: relative to the wanted output, (m, n) moves (m - 1) dB/dB.
     (2, 1, 1.0), (3, 1, 2.0), (1, 3, 0.0), (1, 5, 0.0), (5, 3, 4.0), (1, 0, 0.0), (0, 1, -1.0),
 ])
 def test_level_moves_m_minus_one_db_per_db(m, n, slope):
-    table = builtin_table("single_ended", 8)
+    table = builtin("single_ended", 8)
     for delta_db in (-20.0, -3.0, 7.5):
         moved = table.level_dbc_at(m, n, table.rf_ref_dbm + delta_db) - table.level_dbc_at(m, n, table.rf_ref_dbm)
         assert moved == pytest.approx(slope * delta_db, abs=1e-12)
@@ -280,7 +108,7 @@ def test_two_tone_power_series_products_move_one_and_two_db_per_db():
     (second_lo, third_lo), (second_hi, third_hi) = relative_db.values()
     assert (second_hi - second_lo) / 10 == pytest.approx(1.0, abs=1e-3)
     assert (third_hi - third_lo) / 10 == pytest.approx(2.0, abs=1e-3)
-    table = builtin_table("single_balanced", 4)
+    table = builtin("single_balanced", 4)
     for m, simulated in ((2, second_hi - second_lo), (3, third_hi - third_lo)):
         moved = table.level_dbc_at(m, 1, 10.0) - table.level_dbc_at(m, 1, 0.0)
         assert moved == pytest.approx(simulated, abs=1e-2)
@@ -294,7 +122,7 @@ def test_mixer_simulation_rf_harmonic_products_move_m_minus_one_db_per_db():
     for amplitude in (0.01, 0.1):  # 20 dB apart
         x = _tone(n_samples, k_rf, amplitude)
         spectra.append(_amplitudes((x + 0.3 * x**2 + 0.03 * x**3) * _switch(n_samples, k_lo)))
-    table = builtin_table("single_balanced", 5)
+    table = builtin("single_balanced", 5)
     for m, n in ((2, 1), (3, 1), (1, 3), (2, 3)):
         bin_, wanted = abs(n * k_lo - m * k_rf), k_lo - k_rf
         simulated = _db(spectra[1][bin_] / spectra[1][wanted]) - _db(spectra[0][bin_] / spectra[0][wanted])
@@ -303,7 +131,7 @@ def test_mixer_simulation_rf_harmonic_products_move_m_minus_one_db_per_db():
 
 
 def test_level_dbc_at_is_vectorised_and_vanished_entries_stay_at_floor():
-    table = builtin_table("double_balanced", 7, balance_db=math.inf)
+    table = builtin("double_balanced", 7, balance_db=math.inf)
     rng = np.random.default_rng(1)
     m, n = rng.integers(0, 8, 200_000), rng.integers(0, 8, 200_000).astype(np.uint8)
     drive = rng.uniform(-60, 20, 200_000)
@@ -328,7 +156,7 @@ def test_level_dbc_at_is_vectorised_and_vanished_entries_stay_at_floor():
     (1, 1, np.array([0.0, np.nan]), "rf_drive_dbm"),
 ])
 def test_level_dbc_at_rejects_bad_arguments(m, n, drive, field):
-    table = builtin_table("double_balanced", 7)
+    table = builtin("double_balanced", 7)
     with pytest.raises(LevelTableError, match=rf"^{field}: .* is invalid"):
         table.level_dbc_at(np.asarray(m), n, drive)
 
@@ -337,7 +165,7 @@ def test_no_signal_drive_gives_finite_levels_without_warnings():
     # A drive of -inf dBm (e.g. behind an ideal filter) must not produce NaN (0 * inf) or warnings
     # (the module runs under -W error here); derived by hand from the (m - 1) dB/dB rule:
     # m >= 2 products fall to the floor, (1, n) products do not move.
-    table = builtin_table("single_ended", 4)
+    table = builtin("single_ended", 4)
     levels = table.level_dbc_at(np.array([2, 3, 1, 1, 0]), np.array([1, 1, 1, 3, 1]), -np.inf)
     assert np.all(np.isfinite(levels))
     assert levels[0] == levels[1] == FLOOR_DBC
@@ -351,13 +179,14 @@ def test_no_signal_drive_gives_finite_levels_without_warnings():
     # Thresholds 10 dB (RF) and 0.5 dB (LO) are common practice, no source.
     (-5.0, 7.0, 0, []),
     (-10.0, 7.4, 0, []),
-    (-10.5, 7.0, 1, ["-10.5 dBm", "10.5 dB", "extrapolated"]),
+    (-30.0, 7.0, 0, []),  # below the reference: the small-signal slope is the power series itself
+    (10.5, 7.0, 1, ["10.5 dBm", "10.5 dB above", "extrapolated"]),
     (np.array([-3.0, 12.0, -8.0]), 7.0, 1, ["12 dBm"]),
     (0.0, 10.0, 1, ["LO drive 10 dBm", "7 dBm"]),
-    (-30.0, 4.0, 2, ["-30 dBm", "LO drive 4 dBm"]),
+    (13.0, 4.0, 2, ["13 dBm", "LO drive 4 dBm"]),
 ])
 def test_drive_warnings(rf_dbm, lo_dbm, count, words):
-    table = builtin_table("double_balanced", 5, rf_ref_dbm=0.0, lo_ref_dbm=7.0)
+    table = builtin("double_balanced", 5, rf_ref_dbm=0.0, lo_drive_dbm=7.0)
     assert RF_EXTRAPOLATION_LIMIT_DB == 10.0 and LO_DRIVE_TOLERANCE_DB == 0.5
     warnings = table.drive_warnings(rf_dbm, lo_dbm)
     assert len(warnings) == count
@@ -370,7 +199,7 @@ def test_drive_warnings(rf_dbm, lo_dbm, count, words):
 def test_partial_csv_reads_measured_cells_exactly_and_falls_back_for_blanks():
     # Source for the measured cells: pandas.read_csv, an independent parser of the same file.
     reference = pd.read_csv(PARTIAL_CSV, comment="#", index_col=0)
-    fallback = builtin_table("double_balanced", 5)
+    fallback = builtin("double_balanced", 5, rf_ref_dbm=0.0)
     table = read_table_csv(PARTIAL_CSV, fallback=fallback)
     assert (table.rf_ref_dbm, table.lo_ref_dbm) == (-10.0, 7.0)  # as stated in the file header
     for m in range(6):
@@ -395,7 +224,7 @@ def test_partial_csv_reads_measured_cells_exactly_and_falls_back_for_blanks():
     listed = ", ".join(f"({m},{n})" for m, n in blanks)
     assert table.fallback_note(5) == f"entries {listed} came from the built-in model"
     assert "made-up partial" in table.description and "built-in" in table.description
-    assert builtin_table("double_balanced", 5).fallback_note(5) is None
+    assert builtin("double_balanced", 5).fallback_note(5) is None
 
 
 @settings(max_examples=40, deadline=None)
@@ -408,7 +237,7 @@ def test_csv_round_trip_is_exact(levels, blanks, rf_ref):
     level = np.array(levels).reshape(6, 6)
     level[1, 1] = 0.0
     blank = np.array(blanks).reshape(6, 6)
-    fallback = builtin_table("single_balanced", 5, rf_ref_dbm=rf_ref)
+    fallback = builtin("single_balanced", 5, rf_ref_dbm=rf_ref)
     with tempfile.TemporaryDirectory() as folder:
         path = Path(folder) / "t.csv"
         _write_csv(path, level, blank, rf_ref, 7.0)
@@ -457,7 +286,7 @@ def test_malformed_csv_raises_one_line_error_naming_the_place_and_value(tmp_path
     path = tmp_path / "t.csv"
     path.write_text(text, encoding="utf-8")
     with pytest.raises(LevelTableError) as info:
-        read_table_csv(path, fallback=builtin_table("double_balanced", 3))
+        read_table_csv(path, fallback=builtin("double_balanced", 3))
     message = str(info.value)
     assert "\n" not in message and "is invalid" in message
     for fragment in fragments:
@@ -470,18 +299,18 @@ def test_csv_accepts_entries_above_0_dbc_up_to_30(tmp_path):
     out = sim_mixer.simulate(switch="unipolar")
     path = tmp_path / "t.csv"
     path.write_text("# rf_ref_dbm = 0\n# lo_ref_dbm = 7\nm\\n,0,1,3\n0,,30,\n1,+4,0,-9.5\n", encoding="utf-8")
-    table = read_table_csv(path, fallback=builtin_table("single_ended", 3))
+    table = read_table_csv(path, fallback=builtin("single_ended", 3))
     assert table.level_dbc[1, 0] == 4.0 and table.measured[1, 0]
     assert table.level_dbc[1, 0] == pytest.approx(out.dbc(1, 0), abs=0.1)
     assert table.level_dbc[0, 1] == 30.0 and table.level_dbc[1, 1] == 0.0
     for text, fragment in (("1,+4,4,-9.5", "0 dBc"), ("1,30.5,0,-9.5", "<= 30 dBc")):  # (1, 1) stays 0
         path.write_text(f"# rf_ref_dbm = 0\n# lo_ref_dbm = 7\nm\\n,0,1,3\n{text}\n", encoding="utf-8")
         with pytest.raises(LevelTableError, match=fragment):
-            read_table_csv(path, fallback=builtin_table("single_ended", 3))
+            read_table_csv(path, fallback=builtin("single_ended", 3))
 
 
 def test_csv_unreadable_files(tmp_path):
-    fallback = builtin_table("double_balanced", 3)
+    fallback = builtin("double_balanced", 3)
     with pytest.raises(LevelTableError, match=r"^table: .*missing\.csv.* is invalid"):
         read_table_csv(tmp_path / "missing.csv", fallback=fallback)
     binary = tmp_path / "binary.csv"
@@ -495,7 +324,7 @@ def test_csv_tolerates_notes_padding_short_rows_and_out_of_range_entries(tmp_pat
     path.write_text(
         "\ufeff# bench notes: T = 25 C, unit 3\n# rf_ref_dbm = 0\n# lo_ref_dbm = 7\n\n"
         "m\\n,0,1,2,9,,\n1,-20,0,,-70,,\n3,-50,-40\n9,,-95\n", encoding="utf-8")
-    fallback = builtin_table("double_balanced", 4)
+    fallback = builtin("double_balanced", 4, rf_ref_dbm=0.0)
     table = read_table_csv(path, fallback=fallback)
     assert table.max_harmonic == 4 and "2 entries beyond harmonic 4 not kept" in table.description
     assert table.level_dbc[1, 0] == -20.0 and table.level_dbc[3, 1] == -40.0 and table.measured[3, 0]
@@ -506,7 +335,8 @@ def test_csv_tolerates_notes_padding_short_rows_and_out_of_range_entries(tmp_pat
 def test_mixer_spec_defaults_json_and_strictness():
     spec = MixerSpec()
     assert (spec.topology, spec.table, spec.rf_ref_dbm, spec.lo_drive_dbm, spec.balance_db) == (
-        "double_balanced", "builtin", 0.0, 7.0, 30.0)  # documented defaults, common practice, no source
+        "double_balanced", "builtin", None, 7.0, 30.0)  # documented defaults, common practice, no source
+    assert spec.rf_ref() == 7.0 - 10.0  # the built-in rule's physical anchor: 10 dB under the LO drive
     assert MixerSpec.model_validate_json(spec.model_dump_json()) == spec
     for bad in ({"balance_db": -1}, {"extra_key": 1}, {"topology": "ring"}, {"table": "Builtin"},
                 {"table": "levels.txt"}, {"lo_drive_dbm": "7"}, {"rf_ref_dbm": True},
@@ -520,7 +350,7 @@ def test_mixer_spec_defaults_json_and_strictness():
 def test_build_table_builtin_and_relative_csv(tmp_path):
     spec = MixerSpec(topology="single_balanced", balance_db=25.0, conversion_loss_db=6.0)
     table = build_table(spec, 5)
-    expected = builtin_table("single_balanced", 5, balance_db=25.0, conversion_loss_db=6.0)
+    expected = builtin("single_balanced", 5, balance_db=25.0, conversion_loss_db=6.0)
     np.testing.assert_array_equal(table.level_dbc, expected.level_dbc)
     assert table.conversion_loss_db == 6.0 and not table.measured.any()
     (tmp_path / "tables").mkdir()
@@ -535,20 +365,14 @@ def test_build_table_builtin_and_relative_csv(tmp_path):
     assert build_table(absolute, 5, base_dir=tmp_path / "elsewhere").measured.any()
 
 
-@pytest.mark.parametrize(("kwargs", "field"), [
-    ({"max_order": 0}, "max_order"), ({"max_order": True}, "max_order"), ({"max_order": 2.0}, "max_order"),
-    ({"balance_db": -1.0}, "balance_db"), ({"balance_db": float("nan")}, "balance_db"),
-    ({"rf_harmonic_step_db": -5.0}, "rf_harmonic_step_db"), ({"topology": "ring"}, "topology"),
-    ({"conversion_loss_db": float("inf")}, "conversion_loss_db"), ({"lo_ref_dbm": float("nan")}, "lo_ref_dbm"),
-])
-def test_builtin_table_rejects_bad_arguments(kwargs, field):
-    args = {"topology": "double_balanced", "max_order": 5} | kwargs
-    with pytest.raises(LevelTableError, match=rf"^{field}: .* is invalid"):
-        builtin_table(args.pop("topology"), args.pop("max_order"), **args)
+@pytest.mark.parametrize("max_order", [0, True, 2.0, 65])
+def test_builtin_table_rejects_a_bad_order(max_order):
+    with pytest.raises(LevelTableError, match=r"^max_order: .* is invalid"):
+        builtin_table(MixerSpec(), max_order)
 
 
 def test_level_table_validates_and_is_read_only():
-    good = builtin_table("double_balanced", 3)
+    good = builtin("double_balanced", 3)
     with pytest.raises(LevelTableError, match=r"level_dbc\[1, 1\]"):
         LevelTable(good.level_dbc - 1.0, good.measured, 0.0, 7.0, 3.9, "double_balanced", "x")
     with pytest.raises(LevelTableError, match=r"level_dbc\.shape"):
@@ -574,7 +398,7 @@ def test_level_table_validates_and_is_read_only():
 def test_level_is_linear_in_drive_with_slope_m_minus_one(topology, m, n, drive_a, drive_b):
     # Rule (power-series nonlinearity, standard intermodulation result): slope m - 1 dB/dB,
     # down to the floor, where vanished products stay.
-    table = builtin_table(topology, 7)
+    table = builtin(topology, 7)
     slope = 0.0 if table.level_dbc[m, n] <= FLOOR_DBC else m - 1.0
     a, b = table.level_dbc_at(m, n, drive_a), table.level_dbc_at(m, n, drive_b)
     assert a == pytest.approx(max(table.level_dbc[m, n] + slope * (drive_a - table.rf_ref_dbm), FLOOR_DBC))
@@ -585,8 +409,8 @@ def test_level_is_linear_in_drive_with_slope_m_minus_one(topology, m, n, drive_a
 @settings(max_examples=40, deadline=None)
 @given(topology=st.sampled_from(TOPOLOGIES), low=st.floats(0, 60), extra=st.floats(0, 60))
 def test_more_balance_never_raises_a_level(topology, low, extra):
-    # Follows from the rule "cancelled product = unbalanced level - balance_db" (no source needed).
-    weak, strong = (builtin_table(topology, 6, balance_db=b).level_dbc for b in (low, low + extra))
+    # Follows from the rules (mixer_model.builtin_table): balance only ever takes away (no source needed).
+    weak, strong = (builtin(topology, 6, balance_db=b).level_dbc for b in (low, low + extra))
     assert np.all(strong <= weak) and strong[1, 1] == 0.0
 
 

@@ -101,11 +101,11 @@ def test_measured_data_read_outside_its_span_is_counted(tmp_path):
 
 
 def test_drives_are_checked_at_the_mixer_for_the_wanted_and_the_interferer():
-    # Built-in table at 0 dBm RF (MixerSpec default), +7 dBm LO.  A +20 dBm interferer reaches
-    # the mixer 13 dB above the LO drive (no preselector): compression, and 20 dB beyond the
+    # Built-in table at -3 dBm RF (10 dB under the default +7 dBm LO).  A +20 dBm interferer reaches
+    # the mixer 13 dB above the LO drive (no preselector): compression, and 23 dB beyond the
     # table's reference (> RF_EXTRAPOLATION_LIMIT_DB = 10 dB).  Derived by hand.
     found = _warnings(signal={"bandwidth_hz": "100 kHz", "level_dbm": 0, "interferer_level_dbm": 20})
-    assert any(w.startswith("signal.interferer_level_dbm: the interferer's RF drive 20 dBm is 20.0 dB")
+    assert any(w.startswith("signal.interferer_level_dbm: the interferer's RF drive 20 dBm is 23.0 dB")
                for w in found)
     assert any(w.startswith("mixer.lo_drive_dbm: an RF drive of 20.0 dBm") for w in found)
     # A 15 dB loss ahead of the mixer (a fixed band-pass far off the channels) lowers the wanted
