@@ -19,6 +19,8 @@ EXAMPLES = {
     "fm_receiver": "fm_receiver.json",
     "uplink_transmitter": "uplink_transmitter.json",
     "ku_block_converter": "ku_block_converter.json",
+    "hf_upconverting_receiver": "hf_upconverting_receiver.json",
+    "ism_transmitter": "ism_transmitter.json",
 }
 DEFAULT_EXAMPLE = "fm_receiver"
 

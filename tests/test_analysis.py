@@ -626,7 +626,8 @@ def test_evaluate_levels_and_margins_match_the_plain_python_reference(name):
     assert min(margins) < 0 < max(margins)
 
 
-@pytest.mark.parametrize("name", ["fm_receiver", "uplink_transmitter", "ku_block_converter"])
+@pytest.mark.parametrize("name", ["fm_receiver", "uplink_transmitter", "ku_block_converter", "hf_upconverting_receiver",
+                                  "ism_transmitter"])
 def test_example_plans_match_the_plain_python_reference(name):
     # the packaged example plans, every channel: worst margin and label, and the worst case of
     # every product/response, as in the test above

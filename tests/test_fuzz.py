@@ -30,7 +30,8 @@ from mixchart.analysis import evaluate
 from mixchart.errors import MixchartError
 from mixchart.plan import loads_plan
 
-EXAMPLES = ("fm_receiver.json", "ku_block_converter.json", "uplink_transmitter.json")
+EXAMPLES = ("fm_receiver.json", "ku_block_converter.json", "uplink_transmitter.json", "hf_upconverting_receiver.json",
+            "ism_transmitter.json")
 
 
 def _example(name: str) -> dict:

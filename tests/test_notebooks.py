@@ -48,8 +48,8 @@ def test_walkthrough_notebook_executes() -> None:
     outputs = _outputs(nb)
     assert not [o for o in outputs if o.output_type == "error"]
     text = "\n".join(str(o.get("text", "")) + str(o.get("data", {}).get("text/plain", "")) for o in outputs)
-    # The narrative claims: the 70 MHz IF is limited by the image; the best candidate is a
-    # 374 MHz IF, which still fails on high-order responses through the preselector's ultimate rejection.
+    # The narrative claims: the 70 MHz IF is limited by the image; the best candidate is the
+    # 374 MHz IF with a high-side LO, which passes by 4.7 dB, limited by a (5,4) response.
     assert "IF 70 MHz, high-side LO" in text and "image (1,1)" in text
-    assert "FAIL: worst margin -17.8 dB (spur (9,0)" in text
+    assert "PASS: worst margin +4.7 dB (spur (5,4)" in text
     assert "'chosen_plan.json'" in text

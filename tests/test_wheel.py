@@ -105,7 +105,7 @@ def test_wheel_holds_the_package_its_examples_and_the_license(built):
         metadata = email.parser.Parser().parsestr(zf.read(f"{dist_info}/METADATA").decode("utf-8"))
         license_text = zf.read(f"{dist_info}/licenses/LICENSE").decode("utf-8")
     assert wheel.name.startswith(f"mixchart-{mixchart.__version__}-py3-none-any")
-    assert {f"mixchart/examples/{name}" for name in EXAMPLES} <= names and len(EXAMPLES) == 3
+    assert {f"mixchart/examples/{name}" for name in EXAMPLES} <= names and len(EXAMPLES) == 5
     assert {"mixchart/__init__.py", "mixchart/cli.py", "mixchart/serve.py"} <= names
     assert not any(n.startswith(("tests/", "benchmarks/", "notebooks/", "tools/")) for n in names)
     assert metadata["Version"] == mixchart.__version__  # written once, in mixchart/__init__.py
