@@ -286,7 +286,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         value=plan.notes, description="notes", layout=w.Layout(width="300px", height="60px"), style=style,
         continuous_update=False,
     )
-    c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style)
+    c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style,
+                            placeholder="name, or a full path")
     c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
     c["upload"] = w.FileUpload(accept=".json", multiple=False, description="Open plan…", layout=w.Layout(width="146px"))
     c["load_path"] = w.Text(
@@ -417,12 +418,26 @@ def _summary_html(label: str, ev: Evaluation) -> str:
 
 
 def _download_html(plan: Plan, filename: str) -> str:
-    payload = base64.b64encode(dumps_plan(plan).encode("utf-8")).decode("ascii")
-    name = html.escape(Path(filename).name or "plan.json", quote=True)
-    return (
-        f'<a class="mixchart-download" download="{name}" href="data:application/json;base64,{payload}">'
-        f"Download {name}</a>"
-    )
+    return _download_link(dumps_plan(plan).encode("utf-8"), filename or "plan.json", "application/json")
+
+
+def _download_link(data: bytes, filename: str, mime: str) -> str:
+    """An anchor that hands ``data`` to the browser as a download named ``filename``."""
+    payload = base64.b64encode(data).decode("ascii")
+    name = html.escape(Path(filename).name, quote=True)
+    return (f'<a class="mixchart-download" download="{name}" href="data:{mime};base64,{payload}">'
+            f"Download {name}</a>")
+
+
+def _warnings_html(ev: Evaluation) -> str:
+    """Every warning the CLI and the snapshot print, as a list under the PASS/FAIL line."""
+    if not ev.warnings:
+        return "<div class='mixchart-warnings-empty' style='font-size:12px;color:#555'>No warnings.</div>"
+    items = "".join(f"<li>{html.escape(text)}</li>" for text in ev.warnings)
+    return (f"<details open class='mixchart-warnings-list' style='font-size:12px'><summary><b>"
+            f"{len(ev.warnings)} warning{'s' if len(ev.warnings) != 1 else ''}</b> (assumptions and concerns: "
+            f"check them before trusting a margin)</summary><ul style='margin:2px 0 0 0;padding-left:18px'>"
+            f"{items}</ul></details>")
 
 
 class PlannerApp:
@@ -450,6 +465,7 @@ class PlannerApp:
         self._syncing = False
         self.chart: ChartHandle = build_chart(chart_data(state.evaluation, state.view), width=chart_width, height=470)
         self.controls = build_controls(state.plan, state.evaluation.channels_hz.size)
+        self.controls.save_path.value = state.file_name  # the file-name field follows the opened plan
         from bokeh.events import Tap
 
         # before the widget is made: the browser learns which UI events to send from its first render
@@ -458,6 +474,8 @@ class PlannerApp:
         self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
         self.status = w.HTML(value="")
         self.status.add_class("mixchart-status")
+        self.warnings = w.HTML(value="", layout=w.Layout(max_height="140px", overflow="auto"))
+        self.warnings.add_class("mixchart-warnings")
         self.table = w.HTML(value="")
         self.table.add_class("mixchart-worst-table")
         self.compare = w.HTML(value="")
@@ -473,6 +491,7 @@ class PlannerApp:
             [
                 title,
                 self.status,
+                self.warnings,
                 # wraps the chart below the controls on narrow screens instead of cutting it off
                 w.HBox([self.controls.panel, self.bokeh], layout=w.Layout(flex_flow="row wrap")),
                 self.compare,
@@ -495,7 +514,6 @@ class PlannerApp:
             "name": "name",
             "notes": "notes",
             "direction": "direction",
-            "lo_mode": "lo.mode",
             "side": "lo.side",
             "max_order": "max_order",
             "topology": "mixer.topology",
@@ -515,6 +533,7 @@ class PlannerApp:
                 widget.observe(self._filter_handler(name, fc), names="value")
             fc.spec_json.observe(self._filter_json_handler(name, fc), names="value")
         c.rf_ref.observe(self._optional_float_handler("mixer.rf_ref_dbm", "mixer"), names="value")
+        c.lo_mode.observe(self._lo_mode_handler, names="value")
         c.channel.observe(self._on_channel, names="value")
         c.normalised.observe(lambda ch: self._view(normalised=bool(ch["new"])), names="value")
         c.show_clear.observe(lambda ch: self._view(show_clear=bool(ch["new"])), names="value")
@@ -522,7 +541,7 @@ class PlannerApp:
         c.keep_ref.on_click(lambda _b: self.state.keep_reference())
         c.clear_ref.on_click(lambda _b: self.state.clear_reference())
         c.save.on_click(lambda _b: self.save(c.save_path.value))
-        c.load.on_click(lambda _b: self._file_result(self.state.load_path(c.load_path.value.strip()), "loaded"))
+        c.load.on_click(lambda _b: self._load_file(c.load_path.value.strip()))
         c.snapshot.on_click(lambda _b: self.snapshot())
         c.upload.observe(self._on_upload, names="value")
         for name in ("out_output_band", "out_input_band", "rf_band"):
@@ -556,6 +575,22 @@ class PlannerApp:
             self.controls.errors[error_key].value = _error_html(error or "")
 
         return handler
+
+    def _lo_mode_handler(self, change: dict) -> None:
+        """Switch the LO mode both ways: "fixed" takes the current channel's LO as its value,
+        "tracking" drops the fixed value and keeps the injection side last used."""
+        if self._syncing:
+            return
+        if change["new"] == "fixed":
+            lo_hz = float(self.state.evaluation.lo_hz[self.state.channel_index])
+            changes = {"lo.mode": "fixed", "lo.fixed_hz": lo_hz}
+        else:
+            changes = {"lo.mode": "tracking", "lo.fixed_hz": None}
+        error = self.state.try_update(changes)
+        self.controls.errors["plan"].value = _error_html(error or "")
+        if error:
+            with self._sync():
+                self.controls.lo_mode.value = self.state.plan.lo.mode
 
     def _interferer_handler(self, change: dict) -> None:
         self._optional_float_handler("signal.interferer_level_dbm", "plan")(change)
@@ -678,39 +713,54 @@ class PlannerApp:
         item = value[0] if isinstance(value, (list, tuple)) else next(iter(value.values()))
         content = item["content"]
         data = bytes(content) if not isinstance(content, bytes) else content
-        self._file_result(self.state.load_text(data), f"opened {item.get('name', 'plan')}")
+        name = str(item.get("name", "plan.json"))
+        self._file_result(self.state.load_text(data, name), f"opened {name}; saves go to {self.state.save_dir}")
+
+    def _load_file(self, path: str) -> None:
+        error = self.state.load_path(path)
+        self._file_result(error, f"loaded {self.state.save_dir / self.state.file_name}")
 
     def _file_result(self, error: str | None, done: str) -> None:
+        if error is None:
+            with self._sync():
+                self.controls.save_path.value = self.state.file_name  # the file-name field follows the plan
         self.controls.file_msg.value = _error_html(error) if error else html.escape(done)
 
     # ------------------------------------------------------------ actions
-    def save(self, path: str) -> Path | None:
-        """Save the plan atomically and offer it as a download."""
+    def save(self, path: str | None = None) -> Path | None:
+        """Save the plan atomically next to the opened plan (or in the working directory) and offer it
+        as a download; a relative ``path`` is taken in that folder, an absolute one as given."""
         try:
-            written = self.state.save(path)
+            written = self.state.save(path or self.controls.save_path.value.strip() or None)
         except (MixchartError, OSError) as exc:
             self.controls.file_msg.value = _error_html(f"save: {exc}")
             return None
         self.controls.file_msg.value = (
-            f"saved {html.escape(str(written))} &nbsp; " + _download_html(self.state.plan, written.name)
+            f"saved <code class='mixchart-saved-path'>{html.escape(str(written))}</code><br>"
+            + _download_html(self.state.plan, written.name)
         )
         return written
 
     def snapshot(self, path: str | None = None) -> Path | None:
-        """Write a standalone HTML snapshot next to the plan file."""
+        """Write a standalone HTML snapshot beside where the plan is saved, and offer it as a download."""
         from .report import write_report
 
-        target = Path(path) if path else Path(self.controls.save_path.value or "plan.json").with_suffix(".html")
+        name = Path(path or self.controls.save_path.value.strip() or self.state.file_name)
+        target = self.state.resolve(name if name.suffix.lower() == ".html" else name.with_suffix(".html"))
         ref = self.state.reference
         try:
             written = write_report(
                 self.state.plan, target, base_dir=self.state.base_dir, evaluation=self.state.evaluation,
                 view=self.state.view, reference=ref,
             )
+            data = written.read_bytes()
         except (MixchartError, OSError) as exc:
             self.controls.file_msg.value = _error_html(f"snapshot: {exc}")
             return None
-        self.controls.file_msg.value = f"wrote {html.escape(str(written))}"
+        self.controls.file_msg.value = (
+            f"wrote <code class='mixchart-saved-path'>{html.escape(str(written))}</code><br>"
+            + _download_link(data, written.name, "text/html")
+        )
         return written
 
     # ------------------------------------------------------------ refresh
@@ -748,6 +798,7 @@ class PlannerApp:
     def _refresh_all(self) -> None:
         ev = self.state.evaluation
         self.status.value = _summary_html("Plan", ev)
+        self.warnings.value = _warnings_html(ev)
         self.table.value = _table_html(ev)
         self._sync_widgets()
         self._refresh_chart()
@@ -882,11 +933,13 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
     """
     if plan is None:
         loaded, folder = example_plan()
+        state = PlanState(loaded, folder, file_name="fm_receiver.json")  # saved to the working directory
     elif isinstance(plan, Plan):
-        loaded, folder = plan, None
+        state = PlanState(plan, None)
     else:
-        loaded, folder = load_plan(plan), Path(plan).resolve().parent
+        path = Path(plan).resolve()
+        state = PlanState(load_plan(path), path.parent, save_dir=path.parent, file_name=path.name)
     _load_bokehjs()
-    app = PlannerApp(PlanState(loaded, folder), chart_width=chart_width)
+    app = PlannerApp(state, chart_width=chart_width)
     app.widget.app = app
     return app.widget

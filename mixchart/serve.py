@@ -113,6 +113,7 @@ def serve(plan_path: str | os.PathLike[str] | None, *, port: int = 0) -> int:
     notebook = folder / "planner.ipynb"
     notebook.write_text(json.dumps(planner_notebook(), indent=1), encoding="utf-8")
     env = dict(os.environ)
+    env["MIXCHART_CWD"] = os.getcwd()  # saves without a plan file land where the user started us
     if plan_path is not None:
         env["MIXCHART_PLAN"] = str(Path(plan_path).resolve())
     process = subprocess.Popen(voila_command(notebook, port), env=env, cwd=folder, start_new_session=True)

@@ -23,9 +23,18 @@ from .errors import MixchartError
 from .plan import Plan, load_plan, loads_plan, save_plan
 from .units import parse_frequency
 
-__all__ = ["PlanState", "example_plan", "Listener"]
+__all__ = ["PlanState", "example_plan", "default_save_dir", "Listener"]
 
 Listener = Callable[["PlanState", str], None]
+
+
+def default_save_dir() -> Path:
+    """Where a plan that came from no file is saved: the user's working directory.
+
+    ``mixchart serve`` runs its notebook in a temporary folder, so it passes the folder the
+    user started it from as ``MIXCHART_CWD``; elsewhere it is the current directory.
+    """
+    return Path(os.environ.get("MIXCHART_CWD") or os.getcwd())
 
 
 def example_plan(name: str = "fm_receiver") -> tuple[Plan, Path]:
@@ -45,6 +54,11 @@ class PlanState:
         The plan to start from.
     base_dir : path-like, optional
         Folder for relative file paths inside the plan.
+    save_dir : path-like, optional
+        Where saves and snapshots go unless given an absolute path: the opened plan's
+        folder, else the working directory (never a server's temporary folder).
+    file_name : str
+        The file name saves default to: the opened plan's name.
 
     Attributes
     ----------
@@ -58,8 +72,11 @@ class PlanState:
         Channel, normalisation and shown orders.
     """
 
-    def __init__(self, plan: Plan, base_dir: str | os.PathLike[str] | None = None) -> None:
+    def __init__(self, plan: Plan, base_dir: str | os.PathLike[str] | None = None, *,
+                 save_dir: str | os.PathLike[str] | None = None, file_name: str = "plan.json") -> None:
         self.base_dir = None if base_dir is None else Path(base_dir)
+        self.save_dir = Path(save_dir if save_dir is not None else default_save_dir()).resolve()
+        self.file_name = file_name
         self.plan = plan
         self.evaluation = evaluate(plan, base_dir=self.base_dir)
         self.reference: tuple[Plan, Evaluation] | None = None
@@ -114,25 +131,37 @@ class PlanState:
         self._notify("plan")
         return None
 
-    def load_text(self, text: str | bytes) -> str | None:
-        """Load a plan from JSON text (e.g. an uploaded file).  Returns an error text or None."""
+    def load_text(self, text: str | bytes, name: str | None = None) -> str | None:
+        """Load a plan from JSON text (e.g. an uploaded file named ``name``).  Returns an error text or None."""
         try:
             plan = loads_plan(text)
         except MixchartError as exc:
             return str(exc)
-        return self.replace_plan(plan)
+        error = self.replace_plan(plan)
+        if error is None and name:
+            self.file_name = Path(name).name
+        return error
 
     def load_path(self, path: str | os.PathLike[str]) -> str | None:
-        """Load a plan file.  Returns an error text or None."""
+        """Load a plan file; later saves go next to it, under its name.  Returns an error text or None."""
         try:
-            plan = load_plan(path)
+            plan = load_plan(self.resolve(path))
         except MixchartError as exc:
             return str(exc)
-        return self.replace_plan(plan, Path(path).resolve().parent)
+        resolved = self.resolve(path)
+        error = self.replace_plan(plan, resolved.parent)
+        if error is None:
+            self.save_dir, self.file_name = resolved.parent, resolved.name
+        return error
 
-    def save(self, path: str | os.PathLike[str]) -> Path:
-        """Save the current plan atomically; re-loading it re-evaluates to what is shown."""
-        return save_plan(self.plan, path)
+    def resolve(self, path: str | os.PathLike[str]) -> Path:
+        """``path`` as the user means it: absolute as given, relative to :attr:`save_dir` otherwise."""
+        path = Path(os.path.expanduser(str(path)))
+        return path if path.is_absolute() else self.save_dir / path
+
+    def save(self, path: str | os.PathLike[str] | None = None) -> Path:
+        """Save the current plan atomically (at :meth:`resolve` of ``path``, default :attr:`file_name`)."""
+        return save_plan(self.plan, self.resolve(path or self.file_name))
 
     # --------------------------------------------------------------- view
     def set_view(self, **changes: Any) -> None:

@@ -264,3 +264,77 @@ def test_snapshot_from_the_app_writes_an_offline_report(app: PlannerApp, tmp_pat
     assert "tuner &lt;draft&gt;" in text and "tuner <draft>" not in text  # user text escaped
     assert 'id="reference-json"' in text  # the kept reference travels with the snapshot
     assert "<script src=\"http" not in text  # BokehJS inline: opens offline
+
+
+# ---------------------------------------------------------------- files stay where the user expects
+def test_saves_and_snapshots_land_next_to_the_opened_plan_with_the_full_path_and_a_download(tmp_path) -> None:
+    from mixchart.app import planner
+
+    folder = tmp_path / "project"
+    folder.mkdir()
+    plan, _ = example_plan("uplink_transmitter")
+    source = folder / "link_tx.json"
+    source.write_text(json.dumps(plan.to_dict()), encoding="utf-8")
+    app = planner(str(source)).app
+    assert app.controls.save_path.value == "link_tx.json"  # the file-name field follows the opened plan
+    app.controls.save_path.value = "link_tx_option_b.json"
+    app.controls.save.click()
+    written = folder / "link_tx_option_b.json"
+    assert written.is_file() and load_plan(written) == app.state.plan
+    msg = app.controls.file_msg.value
+    assert str(written) in msg and 'download="link_tx_option_b.json"' in msg
+    app.controls.snapshot.click()
+    html_file = folder / "link_tx_option_b.html"
+    assert html_file.is_file() and str(html_file) in app.controls.file_msg.value
+    assert 'download="link_tx_option_b.html"' in app.controls.file_msg.value
+    assert "data:text/html;base64," in app.controls.file_msg.value
+
+
+def test_a_built_in_example_saves_into_the_working_directory(tmp_path, monkeypatch) -> None:
+    from mixchart.app import planner
+
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.delenv("MIXCHART_CWD", raising=False)
+    app = planner().app
+    assert app.state.save_dir == tmp_path.resolve()
+    path = app.save()
+    assert path == tmp_path.resolve() / "fm_receiver.json" and path.is_file()
+    # mixchart serve runs its notebook in a temporary folder and passes the user's folder on
+    elsewhere = tmp_path / "where_the_user_ran_serve"
+    elsewhere.mkdir()
+    monkeypatch.setenv("MIXCHART_CWD", str(elsewhere))
+    assert planner().app.save() == elsewhere.resolve() / "fm_receiver.json"
+
+
+def test_loading_a_plan_moves_the_save_folder_and_the_file_name(app: PlannerApp, tmp_path) -> None:
+    other = tmp_path / "other"
+    other.mkdir()
+    (other / "ku.json").write_text(json.dumps(example_plan("ku_block_converter")[0].to_dict()), encoding="utf-8")
+    app.controls.load_path.value = str(other / "ku.json")
+    app.controls.load.click()
+    assert app.state.save_dir == other.resolve() and app.controls.save_path.value == "ku.json"
+    assert app.save() == other.resolve() / "ku.json"
+
+
+def test_every_warning_is_on_screen_and_follows_the_plan(app: PlannerApp) -> None:
+    import html as html_lib
+
+    warnings = app.state.evaluation.warnings
+    assert warnings
+    for text in warnings:
+        assert html_lib.escape(text) in app.warnings.value
+    # a plan change that adds a warning shows it: the IF moved into the RF band
+    assert app.state.try_update({"if.center_hz": "100 MHz", "if.bandwidth_hz": "230 kHz"}) is None
+    new = [w for w in app.state.evaluation.warnings if w.startswith("IF passband")]
+    assert new and html_lib.escape(new[0]) in app.warnings.value
+
+
+def test_lo_mode_switches_both_ways(app: PlannerApp) -> None:
+    app.state.set_view(channel_hz=98e6)
+    lo_here = float(app.state.evaluation.lo_hz[app.state.channel_index])
+    app.controls.lo_mode.value = "fixed"
+    assert app.state.plan.lo.mode == "fixed" and app.state.plan.lo.fixed_hz == lo_here
+    assert not app.controls.lo_fixed.disabled and app.controls.errors["plan"].value == ""
+    app.controls.lo_mode.value = "tracking"
+    assert app.state.plan.lo.mode == "tracking" and app.state.plan.lo.fixed_hz is None
+    assert app.state.plan.lo.side == "high" and app.controls.errors["plan"].value == ""
