@@ -500,3 +500,73 @@ def test_keep_as_reference_then_low_side_shows_both_plans(app):
     page.locator(".mixchart-side").locator("button", has_text="high side").click()
     _wait_until(lambda: _status_line(page) == status_high, "the high-side plan again")
     _assert_clean(page)
+
+
+def test_a_bare_file_name_saves_next_to_the_opened_plan_and_the_snapshot_too(app):
+    # Issue "a planner you can drive", item 1: the file-name field follows the opened plan, a bare
+    # name lands in the plan's folder (never the server's temporary folder), the message shows the
+    # full path, and both the plan and the HTML snapshot offer a download.
+    page = app.page
+    _open_tab(page, "File")
+    path_field = page.locator(".mixchart-save-path input")
+    assert path_field.input_value() == app.plan_path.name
+    target = app.root / "option b.json"
+    target.unlink(missing_ok=True)
+    path_field.fill(target.name)
+    path_field.press("Tab")
+    page.locator("button.mixchart-save").click()
+    msg = page.locator(".mixchart-file-msg")
+    _wait_until(lambda: f"saved {target}" in msg.inner_text(), "the full path of the saved plan")
+    assert target.is_file() and msg.locator("a.mixchart-download").get_attribute("download") == target.name
+    page.locator("button.mixchart-snapshot").click()
+    snapshot = target.with_suffix(".html")
+    _wait_until(lambda: f"wrote {snapshot}" in msg.inner_text(), "the full path of the snapshot", 90.0)
+    assert snapshot.is_file() and "<html" in snapshot.read_text(encoding="utf-8")[:400].lower()
+    link = msg.locator("a.mixchart-download")
+    assert link.get_attribute("download") == snapshot.name
+    assert link.get_attribute("href").startswith("data:text/html;base64,")
+    page.screenshot(path=str(app.shots / "planner_saved_next_to_plan.png"))
+    _assert_clean(page)
+
+
+def test_every_warning_is_on_screen_under_the_verdict_and_follows_the_plan(app):
+    # Item 2: each warning the CLI and the snapshot print is in the box under the PASS/FAIL line.
+    page = app.page
+    box = page.locator(".mixchart-warnings")
+    shown = box.inner_text()
+    for text in ("mixer: lo_if_isolation_db", "max_atten_db: not given"):
+        assert text in shown, shown
+    _open_tab(page, "Plan")
+    field = page.locator(".mixchart-if-center input")
+    good = field.input_value()
+    field.fill("98 MHz")  # the IF inside the RF band: a new warning appears
+    field.press("Enter")
+    _wait_until(lambda: "overlaps the RF band" in box.inner_text(), "the IF-in-band warning on screen")
+    box.screenshot(path=str(app.shots / "planner_warnings_box.png"))
+    field.fill(good)
+    field.press("Enter")
+    _wait_until(lambda: "overlaps the RF band" not in box.inner_text(), "the warning gone again")
+    _assert_clean(page)
+
+
+def test_lo_mode_switches_to_fixed_and_back_without_an_error(app):
+    # Item 4: "fixed" enables the fixed-LO field and fills it with the current channel's LO;
+    # "tracking" drops the fixed value and keeps the injection side.
+    page = app.page
+    _open_tab(page, "Plan")
+    mode = page.locator(".mixchart-lo-mode")
+    fixed_field = page.locator(".mixchart-lo-fixed input")
+    assert fixed_field.is_disabled()
+    channel_text = page.locator(".mixchart-channel-text").first.text_content()  # in the View tab
+    lo_shown = re.search(r"LO ([\d.]+ [kMG]?Hz)", channel_text).group(1)
+    mode.locator("button", has_text="fixed").click()
+    _wait_until(lambda: not fixed_field.is_disabled(), "the fixed-LO field enabled")
+    _wait_until(lambda: parse_frequency(fixed_field.input_value()) == parse_frequency(lo_shown),
+                "the current channel's LO in the field")
+    _wait_until(lambda: "fixed LO" in _status(page), "a fixed LO in the status")
+    assert page.locator(".mixchart-app .mixchart-error").count() == 0
+    mode.locator("button", has_text="tracking").click()
+    _wait_until(lambda: fixed_field.is_disabled(), "the fixed-LO field disabled again")
+    _wait_until(lambda: "high-side" in _status(page), "tracking, high side, in the status")
+    assert page.locator(".mixchart-app .mixchart-error").count() == 0
+    _assert_clean(page)
