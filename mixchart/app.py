@@ -94,6 +94,8 @@ class Controls:
     keep_ref: Any
     clear_ref: Any
     save_path: Any
+    undo: Any
+    redo: Any
     save: Any
     upload: Any
     load_path: Any
@@ -286,6 +288,10 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         value=plan.notes, description="notes", layout=w.Layout(width="300px", height="60px"), style=style,
         continuous_update=False,
     )
+    c["undo"] = w.Button(description="Undo", tooltip="Undo the last plan change", disabled=True,
+                         layout=w.Layout(width="146px"))
+    c["redo"] = w.Button(description="Redo", tooltip="Redo the change last undone", disabled=True,
+                         layout=w.Layout(width="146px"))
     c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style,
                             placeholder="name, or a full path")
     c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
@@ -333,7 +339,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     tabs.layout.width = "340px"
     # Compare sits under the tabs, always in view: it is what a design meeting reaches for.
     compare = w.HBox([c["keep_ref"], c["clear_ref"]], layout=w.Layout(margin="6px 0 0 0"))
-    panel = w.VBox([tabs, compare], layout=w.Layout(width="340px"))
+    history = w.HBox([c["undo"], c["redo"]], layout=w.Layout(margin="4px 0 0 0"))
+    panel = w.VBox([tabs, compare, history], layout=w.Layout(width="340px"))
     return Controls(rf_filter=rf_filter, if_filter=if_filter, errors=errors, panel=panel, **c)
 
 
@@ -538,6 +545,8 @@ class PlannerApp:
         c.normalised.observe(lambda ch: self._view(normalised=bool(ch["new"])), names="value")
         c.show_clear.observe(lambda ch: self._view(show_clear=bool(ch["new"])), names="value")
         c.orders_shown.observe(lambda ch: self._view(max_order_shown=int(ch["new"])), names="value")
+        c.undo.on_click(lambda _b: self._history_result(self.state.undo()))
+        c.redo.on_click(lambda _b: self._history_result(self.state.redo()))
         c.keep_ref.on_click(lambda _b: self.state.keep_reference())
         c.clear_ref.on_click(lambda _b: self.state.clear_reference())
         c.save.on_click(lambda _b: self.save(c.save_path.value))
@@ -716,6 +725,9 @@ class PlannerApp:
         name = str(item.get("name", "plan.json"))
         self._file_result(self.state.load_text(data, name), f"opened {name}; saves go to {self.state.save_dir}")
 
+    def _history_result(self, error: str | None) -> None:
+        self.controls.errors["plan"].value = _error_html(error or "")
+
     def _load_file(self, path: str) -> None:
         error = self.state.load_path(path)
         self._file_result(error, f"loaded {self.state.save_dir / self.state.file_name}")
@@ -799,6 +811,8 @@ class PlannerApp:
         ev = self.state.evaluation
         self.status.value = _summary_html("Plan", ev)
         self.warnings.value = _warnings_html(ev)
+        self.controls.undo.disabled = not self.state.can_undo
+        self.controls.redo.disabled = not self.state.can_redo
         self.table.value = _table_html(ev)
         self._sync_widgets()
         self._refresh_chart()

@@ -27,6 +27,9 @@ __all__ = ["PlanState", "example_plan", "default_save_dir", "Listener"]
 
 Listener = Callable[["PlanState", str], None]
 
+#: Plan changes kept for undo.
+MAX_UNDO = 200
+
 
 def default_save_dir() -> Path:
     """Where a plan that came from no file is saved: the user's working directory.
@@ -82,6 +85,9 @@ class PlanState:
         self.reference: tuple[Plan, Evaluation] | None = None
         self.view = ViewOptions()
         self._listeners: list[Listener] = []
+        # every plan change can be undone and redone: (plan, base_dir) before each change
+        self._undo: list[tuple[Plan, Path | None]] = []
+        self._redo: list[tuple[Plan, Path | None]] = []
 
     def observe(self, listener: Listener) -> None:
         """Call ``listener(state, what)`` after each change; ``what`` is
@@ -115,7 +121,54 @@ class PlanState:
             result = evaluate(new, base_dir=self.base_dir)
         except MixchartError as exc:
             return str(exc)
+        self._remember()
         self.plan, self.evaluation = new, result
+        self._notify("plan")
+        return None
+
+    # --------------------------------------------------------------- undo / redo
+    def _remember(self) -> None:
+        """Keep the plan as it is now for :meth:`undo`; a new change forgets what could be redone."""
+        self._undo.append((self.plan, self.base_dir))
+        del self._undo[:-MAX_UNDO]
+        self._redo.clear()
+
+    @property
+    def can_undo(self) -> bool:
+        """Whether a plan change can be undone."""
+        return bool(self._undo)
+
+    @property
+    def can_redo(self) -> bool:
+        """Whether an undone change can be redone."""
+        return bool(self._redo)
+
+    def undo(self) -> str | None:
+        """Go back to the plan before the last change (a field, a drag, a button or a load).
+
+        Returns
+        -------
+        str or None
+            An error text if that plan no longer evaluates (e.g. a file it names was removed;
+            nothing changes then), else None.  Nothing to undo is not an error.
+        """
+        return self._step(self._undo, self._redo)
+
+    def redo(self) -> str | None:
+        """Re-apply the change last undone.  Returns an error text or None, as :meth:`undo`."""
+        return self._step(self._redo, self._undo)
+
+    def _step(self, source: list, target: list) -> str | None:
+        if not source:
+            return None
+        plan, folder = source[-1]
+        try:
+            result = evaluate(plan, base_dir=folder)
+        except MixchartError as exc:
+            return str(exc)
+        source.pop()
+        target.append((self.plan, self.base_dir))
+        self.plan, self.evaluation, self.base_dir = plan, result, folder
         self._notify("plan")
         return None
 
@@ -126,6 +179,7 @@ class PlanState:
             result = evaluate(plan, base_dir=folder)
         except MixchartError as exc:
             return str(exc)
+        self._remember()
         self.plan, self.evaluation, self.base_dir = plan, result, folder
         self.view = replace(self.view, channel_hz=None)
         self._notify("plan")
@@ -199,9 +253,10 @@ class PlanState:
         band : {"rf", "if"}
             Which band was dragged.
         low, high : float
-            New edges, Hz (any order).  The RF band keeps its raster; a band is
-            moved to the dragged centre and, if its width changed by more than
-            1 %, resized.
+            New edges, Hz (any order).  A band is moved to the dragged centre and,
+            if its width changed by more than 1 %, resized.  The RF band snaps to its
+            channel raster (nearest, ties up) and a move keeps its channel count; the
+            IF snaps to a grid of a hundredth of its passband's decade.
 
         Returns
         -------
@@ -214,20 +269,26 @@ class PlanState:
         centre, width = 0.5 * (low + high), high - low
         plan = self.plan
         if band == "if":
+            # a grid a hundredth of the passband's decade (230 kHz -> 1 kHz, 1 GHz -> 10 MHz)
             old_w = plan.if_.bandwidth_hz
-            new_w = width if abs(width - old_w) > 0.01 * old_w else old_w
+            grid = 10.0 ** (math.floor(math.log10(old_w)) - 2)
+            new_w = max(round(width / grid), 1) * grid if abs(width - old_w) > 0.01 * old_w else old_w
+            centre = math.floor(centre / grid + 0.5) * grid
             return self.try_update({"if.center_hz": _snap(centre), "if.bandwidth_hz": _snap(new_w)})
         half_sig = plan.signal.bandwidth_hz / 2
         old_lo, old_hi = plan.rf.start_hz - half_sig, plan.rf.stop_hz + half_sig
         old_w = old_hi - old_lo
         shift = centre - 0.5 * (old_lo + old_hi)
         start, stop = plan.rf.start_hz + shift, plan.rf.stop_hz + shift
-        if abs(width - old_w) > 0.01 * max(old_w, 1.0):
+        resized = abs(width - old_w) > 0.01 * max(old_w, 1.0)
+        if resized:
             start, stop = low + half_sig, max(high - half_sig, low + half_sig)
         step = plan.rf.step_hz
         if step:
-            start = round(start / step) * step
-            stop = start + math.floor((stop - start) / step + 1e-9) * step
+            # on the channel raster (nearest, ties up); a move keeps the channel count exactly
+            start = math.floor(start / step + 0.5) * step
+            count = (plan.rf.n_channels - 1) if not resized else math.floor((stop - start) / step + 0.5)
+            stop = start + max(count, 0) * step
         return self.try_update({"rf.start_hz": _snap(start), "rf.stop_hz": _snap(stop)})
 
 

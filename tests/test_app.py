@@ -338,3 +338,65 @@ def test_lo_mode_switches_both_ways(app: PlannerApp) -> None:
     app.controls.lo_mode.value = "tracking"
     assert app.state.plan.lo.mode == "tracking" and app.state.plan.lo.fixed_hz is None
     assert app.state.plan.lo.side == "high" and app.controls.errors["plan"].value == ""
+
+
+# ---------------------------------------------------------------- safe gestures and undo
+def test_a_moved_rf_band_keeps_its_channel_count_and_snaps_to_the_raster(app: PlannerApp) -> None:
+    # Four drags of the FM band by odd amounts: 201 channels before and after each (derived by
+    # hand: a move keeps the count; the start lands on the 100 kHz raster, nearest, ties up).
+    n0 = app.state.plan.rf.n_channels
+    half = app.state.plan.signal.bandwidth_hz / 2
+    for shift in (0.43e6, -1.27e6, 2.05e6, 0.3333e6):
+        plan = app.state.plan
+        low, high = plan.rf.start_hz - half + shift, plan.rf.stop_hz + half + shift
+        assert app.state.apply_band_drag("rf", low, high) is None
+        assert app.state.plan.rf.n_channels == n0
+        assert app.state.plan.rf.start_hz / 100e3 == pytest.approx(round(app.state.plan.rf.start_hz / 100e3), abs=1e-9)
+    # ties go up: a start of 88.05 MHz on a 100 kHz raster is 88.1 MHz
+    plan = app.state.plan
+    shift = 88.05e6 - plan.rf.start_hz
+    app.state.apply_band_drag("rf", plan.rf.start_hz - half + shift, plan.rf.stop_hz + half + shift)
+    assert app.state.plan.rf.start_hz == pytest.approx(88.1e6)
+
+
+def test_a_dragged_if_band_snaps_to_a_grid_of_its_decade(app: PlannerApp) -> None:
+    # 230 kHz passband: grid 10^(5 - 2) = 1 kHz; a drag to 10.7234 MHz gives 10.723 MHz
+    w_if = app.state.plan.if_.bandwidth_hz
+    assert app.state.apply_band_drag("if", 10.7234e6 - w_if / 2, 10.7234e6 + w_if / 2) is None
+    assert app.state.plan.if_.center_hz == pytest.approx(10.723e6)
+    assert app.state.plan.if_.bandwidth_hz == w_if
+
+
+def test_every_plan_change_can_be_undone_and_redone(app: PlannerApp, tmp_path) -> None:
+    start = app.state.plan
+    assert not app.state.can_undo and app.controls.undo.disabled and app.controls.redo.disabled
+    app.controls.if_center.value = "10.8 MHz"  # a field
+    after_field = app.state.plan
+    w_if = after_field.if_.bandwidth_hz
+    app.state.apply_band_drag("if", 11.0e6 - w_if / 2, 11.0e6 + w_if / 2)  # a drag
+    after_drag = app.state.plan
+    app.controls.side.value = "low"  # a button
+    assert app.state.plan.lo.side == "low" and not app.controls.undo.disabled
+    app.controls.undo.click()
+    assert app.state.plan == after_drag and not app.controls.redo.disabled
+    app.controls.undo.click()
+    assert app.state.plan == after_field
+    app.controls.undo.click()
+    assert app.state.plan == start and app.controls.undo.disabled
+    assert app.controls.if_center.value == "10.7 MHz"  # the widgets show the plan undone to
+    app.controls.redo.click()
+    app.controls.redo.click()
+    assert app.state.plan == after_drag
+    app.controls.redo.click()
+    assert app.state.plan.lo.side == "low" and app.controls.redo.disabled
+    # a new change after an undo forgets the redo
+    app.controls.undo.click()
+    app.controls.interferer.value = "-20"
+    assert not app.state.can_redo
+    # a load is undone too
+    other = tmp_path / "ku.json"
+    other.write_text(json.dumps(example_plan("ku_block_converter")[0].to_dict()), encoding="utf-8")
+    before_load = app.state.plan
+    assert app.state.load_path(other) is None
+    app.controls.undo.click()
+    assert app.state.plan == before_load

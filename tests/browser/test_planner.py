@@ -183,6 +183,8 @@ def test_page_loads_and_draws_the_plan(app):
     assert len(rows) >= 3, rows
     assert all(re.fullmatch(r"[+-]\d+\.\d", r[5]) for r in rows), rows
     assert _margins(rows) == sorted(_margins(rows))  # worst first
+    # the File tab's name field follows the opened plan (saves go next to it)
+    assert page.locator(".mixchart-save-path input").input_value() == app.plan_path.name
     shot = bh.screenshot(page, app.shots / "planner-initial.png")
     assert shot.stat().st_size > 50_000
     _assert_clean(page)
@@ -508,8 +510,7 @@ def test_a_bare_file_name_saves_next_to_the_opened_plan_and_the_snapshot_too(app
     # full path, and both the plan and the HTML snapshot offer a download.
     page = app.page
     _open_tab(page, "File")
-    path_field = page.locator(".mixchart-save-path input")
-    assert path_field.input_value() == app.plan_path.name
+    path_field = page.locator(".mixchart-save-path input")  # (its initial value: test_page_loads...)
     target = app.root / "option b.json"
     target.unlink(missing_ok=True)
     path_field.fill(target.name)
