@@ -101,6 +101,37 @@ class ChartData:
     meta: dict[str, Any] = field(default_factory=dict)
 
 
+def _worst_product_margins(ev, m: np.ndarray, n: np.ndarray, sign: np.ndarray) -> np.ndarray:
+    """Worst margin over the tuning range of each product (m, n, sign) of the wanted signal, dB (+inf if none)."""
+    wbp = ev.worst_by_product
+    rows = wbp[wbp["kind"] == "product"]
+    best = {(int(a), int(b), int(c)): float(d) for a, b, c, d in
+            zip(rows["rf_harmonic"], rows["lo_harmonic"], rows["sign"], rows["margin_db"], strict=True)}
+    return np.array([best.get((int(a), int(b), int(c)), np.inf) for a, b, c in zip(m, n, sign, strict=True)],
+                    dtype=float)
+
+
+def _worst_label_margin(ev, label: str) -> float:
+    """Worst margin over the tuning range of the rows labelled ``label``, dB (+inf if none)."""
+    wbp = ev.worst_by_product
+    margins = wbp.loc[wbp["label"] == label, "margin_db"].to_numpy(dtype=float)
+    return float(margins.min()) if margins.size else float("inf")
+
+
+def _line_margins(frame, m: np.ndarray, n: np.ndarray, sign: np.ndarray, down: bool) -> np.ndarray:
+    """Worst margin at one channel of what each output-plane line |m·x ± n·f_LO| carries, dB (+inf if none)."""
+    worst: dict[tuple, float] = {}
+    for kind, a, b, c, d in zip(frame["kind"], frame["rf_harmonic"], frame["lo_harmonic"], frame["sign"],
+                                frame["margin_db"], strict=True):
+        # a product lies on its own line; a response to (n·LO ± IF)/m on the difference line (m, n)
+        key = (int(a), int(b), int(c)) if kind == "product" else (int(a), int(b), -1)
+        if kind == "response" and not down:
+            continue
+        worst[key] = min(worst.get(key, np.inf), float(d))
+    return np.array([worst.get((int(a), int(b), int(c)), np.inf) for a, b, c in zip(m, n, sign, strict=True)],
+                    dtype=float)
+
+
 def _category(margin_db: np.ndarray) -> np.ndarray:
     margin_db = np.asarray(margin_db, dtype=float)
     return np.where(margin_db < 0, "violates", np.where(margin_db < CLOSE_DB, "close", "clear"))
@@ -209,7 +240,10 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     # --------------------------------------------------------- tuning plane
     strips = tuning_plane_strips(plan.direction, max_shown, plan.if_.f_low_hz, plan.if_.f_high_hz, tuning_win)
     intrinsic = table.level_dbc_at(strips.rf_harmonic, strips.lo_harmonic, plan.signal.level_dbm)
-    cats = _category(-intrinsic - req).astype(object)
+    # One story: a strip takes the after-filter verdict of its product, the worst margin over
+    # the tuning range (the table's row); a product with no finite margin is drawn clear.
+    strip_margin = _worst_product_margins(ev, strips.rf_harmonic, strips.lo_harmonic, strips.sign)
+    cats = _category(strip_margin).astype(object)
     # the strip holding the plan line is the wanted conversion
     mid = len(ev.channels_hz) // 2
     xm, ym = ev.channels_hz[mid], ev.lo_hz[mid]
@@ -225,6 +259,9 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
                 text = "wanted (1,1)"
             elif down:
                 text = "image (1,1)" if strips.sign[k] < 0 else "sum (1,1)"
+                if strips.sign[k] < 0:  # the mirror branch of the wanted conversion: the image's verdict
+                    strip_margin[k] = _worst_label_margin(ev, "image")
+                    cats[k] = _category(strip_margin[k:k + 1])[0]
         labels.append(text)
     vanish = intrinsic <= FLOOR_DBC + 1
     show = ~vanish & ((cats != "clear") | opts.show_clear)
@@ -237,6 +274,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "n": strips.lo_harmonic[idx].astype(np.int32),
         "label": [labels[k] for k in idx],
         "level": intrinsic[idx].astype(float),
+        "margin": np.where(np.isfinite(strip_margin[idx]), strip_margin[idx], np.nan).astype(float),
         **style,
         "fill_alpha": np.array([_STRIP_ALPHA[c] for c in cats[idx]], dtype=float),
     }
@@ -301,7 +339,11 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     o_win = tuple(v / o_scale for v in out_win)
     lines = output_plane_loci(max_shown, lo_now / o_scale, o_win)
     line_level = table.level_dbc_at(lines.rf_harmonic, lines.lo_harmonic, plan.signal.level_dbm)
-    line_cat = _category(-line_level - req).astype(object)
+    # a line takes the worst after-filter margin of what it carries at this channel: the wanted
+    # signal's product on it and, for a receiver's difference lines, the responses where it
+    # crosses the IF (the same verdict as its dots and the table)
+    line_margin = _line_margins(frame, lines.rf_harmonic, lines.lo_harmonic, lines.sign, down)
+    line_cat = _category(line_margin).astype(object)
     wanted_sign = int(ev.wanted_sign[index])  # the engine's choice, never re-derived here
     is_wanted = (lines.rf_harmonic == 1) & (lines.lo_harmonic == 1) & (lines.sign == wanted_sign)
     # The difference is a V of two arms; only the arm through the wanted input is the wanted conversion.
@@ -326,6 +368,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
             )
         ],
         "level": line_level[k].astype(float),
+        "margin": np.where(np.isfinite(line_margin[k]), line_margin[k], np.nan).astype(float),
         **_style(line_cat[k]),
     }
     # actual products of the current channel and responses, after the filters
@@ -463,7 +506,8 @@ def legend_html() -> str:
         'background:linear-gradient(90deg,rgba(86,180,233,0),rgba(86,180,233,.45),rgba(86,180,233,0))"></span>'
         "filter passband, fading through its skirts (input side blue, output side green)"
     )
-    return "<b>Level against the requirement:</b>" + "".join(parts) + "<br><b>Shading:</b>" + tint
+    head = "<b>Margin after the filters (lines, strips, dots and table alike):</b>"
+    return head + "".join(parts) + "<br><b>Shading:</b>" + tint
 
 
 _HOVER_POINTS = [
@@ -553,7 +597,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         line_color="#1A1A1A", line_width=2.5, name="current_channel",
     )
     tuning.add_tools(
-        HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("level in IF", "@level{0.0} dBc")]),
+        HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("table level", "@level{0.0} dBc"),
+                                                ("worst margin after the filters", "@margin{+0.0} dB")]),
         HoverTool(
             renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]
         ),
@@ -592,7 +637,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     output.add_tools(
         HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
         HoverTool(
-            renderers=[segs], tooltips=[("product", "@label"), ("level in band", "@level{0.0} dBc")],
+            renderers=[segs], tooltips=[("product", "@label"), ("table level", "@level{0.0} dBc"),
+                                        ("worst margin here, after the filters", "@margin{+0.0} dB")],
             line_policy="nearest",
         ),
     )

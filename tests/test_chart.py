@@ -147,24 +147,38 @@ def test_the_current_channel_and_the_bands(fm):
     assert x0 < 87.9 and x1 > 108.1 and y0 < 98.7 and y1 > 118.7
 
 
-def test_strip_colours_follow_their_level_against_the_requirement(fm):
+def test_strip_colours_tell_the_same_story_as_the_table(fm):
+    # One verdict (issue "a planner you can drive", item 5): a strip takes its product's worst margin
+    # across the tuning range after the filters, the table's row; the image strip takes the image's.
     ev, data = fm
     strips = data.sources["tuning_strips"]
-    req = ev.plan.requirement.min_rejection_db
-    for level, category, label in zip(strips["level"], strips["category"], strips["label"], strict=True):
+    wbp = ev.worst_by_product
+    for label, category, m, n, margin in zip(strips["label"], strips["category"], strips["m"], strips["n"],
+                                             strips["margin"], strict=True):
         if label.startswith("wanted"):
             assert category == "wanted"
             continue
-        margin = -level - req  # margin = rejection - requirement (chart.py's strip rule)
-        want = "violates" if margin < 0 else "close" if margin < CLOSE_DB else "clear"
-        assert category == want, (label, level)
-    # the (2,2) level is the built-in table's (mixer_model rules 2-3): one RF order step (20 dB) and
-    # the even-n residual, the amplitude sum of the 30 dB balance and the -20 dBc LO second harmonic,
-    # at the table's -3 dBm reference (LO drive 7 dBm less 10 dB), moved 1 dB per dB to the plan's
-    # -30 dBm drive: -20 + 20·log10(10^(-30/20) + 10^(-20/20)) - 27 = -64.61 dBc (derived by hand)
-    twos = [lv for lv, lb in zip(strips["level"], strips["label"], strict=True) if lb.startswith("(2,2)")]
+        if label.startswith("image"):
+            rows = wbp[wbp["label"] == "image"]
+        else:
+            sign = 1 if "sum" in label else -1
+            rows = wbp[(wbp["kind"] == "product") & (wbp["rf_harmonic"] == m) & (wbp["lo_harmonic"] == n)
+                       & (wbp["sign"] == sign)]
+        worst = float(rows["margin_db"].min()) if len(rows) else math.inf
+        assert (margin == worst) or (math.isnan(margin) and math.isinf(worst)), label
+        want = "violates" if worst < 0 else "close" if worst < CLOSE_DB else "clear"
+        assert category == want, (label, worst)
+    # The (2,2) difference strip: its table level violates the requirement before the filters
+    # (-64.61 dBc against 70 dB: one RF order step, the even-n residual of the 30 dB balance and
+    # the -20 dBc LO second harmonic at -3 dBm, moved 1 dB per dB to -30 dBm, derived by hand),
+    # but after the IF filter it is clear, and so is its colour now.
+    k = strips["label"].index("(2,2) difference")
     residual = 20 * math.log10(10 ** (-30 / 20) + 10 ** (-20 / 20))
-    assert twos and all(lv == pytest.approx(-20 + residual - 27) for lv in twos)
+    assert strips["level"][k] == pytest.approx(-20 + residual - 27)
+    assert -strips["level"][k] - 70 < 0 and strips["category"][k] == "clear"
+    # the image is the plan's real weak point at 108 MHz: the strip and the table agree it fails
+    k = strips["label"].index("image (1,1)")
+    assert strips["category"][k] == "violates" and strips["margin"][k] < 0
 
 
 def test_hiding_orders_and_clear_products_removes_them(fm):
@@ -309,21 +323,24 @@ def test_strip_category_colour_and_style_follow_the_requirement(down):
     s = data.sources["tuning_strips"]
     req = ev.plan.requirement.min_rejection_db
     widths, alphas = {}, {}
-    for label, level, cat, colour, width, alpha in zip(s["label"], s["level"], s["category"], s["color"],
-                                                         s["width"], s["alpha"], strict=True):
+    for label, cat, colour, width, alpha in zip(s["label"], s["category"], s["color"], s["width"], s["alpha"],
+                                                strict=True):
         assert colour == CATEGORIES[cat][1]  # the legend's colour for the category
         widths.setdefault(cat, set()).add(float(width))
         alphas.setdefault(cat, set()).add(float(alpha))
         if cat == "wanted":
             continue
-        # product rule (analysis docstring): margin = -level - requirement; < 0 violates,
+        # the strip's after-filter margin (its product's worst across the range): < 0 violates,
         # < CLOSE_DB close, else clear
-        margin = -level - req
-        assert cat == ("violates" if margin < 0 else "close" if margin < CLOSE_DB else "clear"), label
+        margin = s["margin"][s["label"].index(label)]
+        want = ("clear" if math.isnan(margin) else "violates" if margin < 0
+                else "close" if margin < CLOSE_DB else "clear")
+        assert cat == want, label
     # the image is the (1,1) conversion itself, 0 dBc by definition of dBc, with no preselector:
-    # margin -60 dB, violates
+    # its response margin is 0 - 60 = -60 dB (derived by hand), violates
     k = s["label"].index("image (1,1)")
     assert s["level"][k] == pytest.approx(0.0) and s["category"][k] == "violates"
+    assert s["margin"][k] == pytest.approx(-req)
     # one style per category (a violation is drawn no thinner than a clear product)
     assert all(len(v) == 1 for v in widths.values()) and all(len(v) == 1 for v in alphas.values())
     if "violates" in widths and "clear" in widths:
@@ -516,6 +533,12 @@ def test_every_column_has_one_length_and_finite_numbers(which, down, up):
             arr = np.asarray(values)
             if arr.dtype.kind not in "fiu":
                 continue
+            if key == "margin" and name in ("tuning_strips", "out_lines"):
+                # chart: a locus with no finite margin (the wanted conversion, a product never
+                # evaluated at this order) is NaN, drawn as wanted or clear, never as a violation
+                nan = np.isnan(arr)
+                assert all(c in ("wanted", "clear") for c in np.asarray(columns["category"])[nan]), name
+                continue
             if key == "margin" and "label" in columns:
                 # chart._point_columns: the wanted row and co-channel responses have no margin, shown
                 # as NaN; nothing else is NaN
@@ -549,3 +572,26 @@ def test_low_side_receiver_with_the_lo_below_the_if_marks_the_difference_arm_wan
     k = wanted[0]
     x0, y0, x1, y1 = lines["x0"][k], lines["y0"][k], lines["x1"][k], lines["y1"][k]
     assert y0 + (105 - x0) * (y1 - y0) / (x1 - x0) == pytest.approx(70.0)
+
+
+def test_output_plane_lines_take_the_verdict_of_what_they_carry(fm):
+    # A line is coloured by the worst margin at this channel of the rows on it: the wanted signal's
+    # product (m, n, sign) and, for a receiver's difference line, the responses (m, n) where it
+    # crosses the IF; with clear products hidden, no red line is left where nothing fails.
+    ev, _ = fm
+    channel = 108e6
+    data = chart_data(ev, ViewOptions(channel_hz=channel, show_clear=False))
+    frame = ev.channel_frame(ev.nearest_channel(channel))
+    lines = data.sources["out_lines"]
+    assert lines["label"], "some lines are shown"
+    for label, m, n, cat, margin in zip(lines["label"], lines["m"], lines["n"], lines["category"], lines["margin"],
+                                        strict=True):
+        if cat == "wanted":
+            continue
+        assert cat in ("violates", "close")  # clear ones are hidden
+        sign = 1 if "sum" in label else -1
+        on_line = frame[(frame["rf_harmonic"] == m) & (frame["lo_harmonic"] == n)
+                        & (((frame["kind"] == "product") & (frame["sign"] == sign))
+                           | ((frame["kind"] == "response") & (sign == -1)))]
+        assert margin == pytest.approx(on_line["margin_db"].min()), label
+        assert (cat == "violates") == (on_line["margin_db"].min() < 0), label
