@@ -68,6 +68,7 @@ _TINT_OUT = "#009E73"  # output-side filter / band
 _TINT_MAX_ALPHA = 0.30
 _MAX_PLAN_POINTS = 2000
 _EMPTY_SKIRT: dict[str, Any] = {"x0": np.zeros(0), "x1": np.zeros(0), "alpha": np.zeros(0), "atten_db": np.zeros(0)}
+_EMPTY_TRACK: dict[str, Any] = {"xs": [], "ys": [], "alpha": np.zeros(0), "atten_db": np.zeros(0)}
 
 
 @dataclass(frozen=True)
@@ -203,6 +204,41 @@ def _skirt(
     }
 
 
+#: Loss levels of a tracking filter's shading along the plan, as fractions of the requirement.
+_TRACK_LEVELS = (0.05, 0.15, 0.3, 0.5, 0.75)
+#: Plan points the tracking shading follows (the plan line is smooth).
+_TRACK_POINTS = 60
+
+
+def _tracking_skirt(filt, channels_hz: np.ndarray, lo_hz: np.ndarray, window: tuple, req_db: float,
+                    scale: float) -> dict[str, Any]:
+    """Nested bands along the plan line where a tracking filter loses less than each level.
+
+    For each of a few plan points (channel c, LO) the frequencies around c whose loss, with the
+    filter centred on c, is below ``level·req_db`` are found on a grid 1.2 % apart in offset; the band edges of
+    all points make one polygon per level, drawn with the alpha of the level (lower loss darker).
+    """
+    pick = np.unique(np.linspace(0, channels_hz.size - 1, min(_TRACK_POINTS, channels_hz.size)).astype(int))
+    c, y = channels_hz[pick], lo_hz[pick]
+    span = max(window[1] - window[0], 1e-9)
+    # offsets from the channel, 1.2 % apart (geometric), from 1e-4 to 1 of the window's span
+    offsets = np.concatenate([-np.geomspace(span, 1e-4 * span, 800), [0.0], np.geomspace(1e-4 * span, span, 800)])
+    f = np.maximum(c[:, None] + offsets[None, :], 1e-3)
+    atten = np.asarray(filt.atten_db(f, np.broadcast_to(c[:, None], f.shape)), dtype=float)
+    xs, ys, alphas, losses = [], [], [], []
+    for level in _TRACK_LEVELS:
+        inside = atten <= level * max(req_db, 1.0)
+        if not inside.any(axis=1).all():
+            continue
+        lo_edge = np.array([f[i][inside[i]].min() for i in range(len(c))])
+        hi_edge = np.array([f[i][inside[i]].max() for i in range(len(c))])
+        xs.append(np.concatenate([lo_edge, hi_edge[::-1]]) / scale)
+        ys.append(np.concatenate([y, y[::-1]]) / scale)
+        alphas.append(_TINT_MAX_ALPHA * (1.0 - level) / len(_TRACK_LEVELS) * 2.0)
+        losses.append(round(level * max(req_db, 1.0), 1))
+    return {"xs": xs, "ys": ys, "alpha": np.asarray(alphas, dtype=float), "atten_db": np.asarray(losses, dtype=float)}
+
+
 def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     """Everything the chart draws, as plain column dicts (no Bokeh objects).
 
@@ -325,14 +361,21 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     band = (plan.rf.start_hz - plan.signal.bandwidth_hz / 2, plan.rf.stop_hz + plan.signal.bandwidth_hz / 2)
     sources["rf_band"] = {"x0": [band[0] / scale], "x1": [band[1] / scale]}
     rf_pass = band if ctx_rf is None else ctx_rf.passband_hz(ch if ctx_rf.tracks_channel else None)
-    if down:
-        sources["tuning_skirt"] = (
-            _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
-            if ctx_rf is not None
-            else _EMPTY_SKIRT
-        )
+    if ctx_rf is not None and ctx_rf.tracks_channel:
+        # a filter that tracks the channel is shaded where it is: along the plan line, each
+        # channel's own passband and skirt at that channel's LO (never a fixed band at one channel)
+        sources["tuning_skirt"] = _EMPTY_SKIRT
+        sources["tuning_track"] = _tracking_skirt(ctx_rf, ev.channels_hz, ev.lo_hz, tuning_win, req, scale)
     else:
-        sources["tuning_skirt"] = _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
+        sources["tuning_track"] = _EMPTY_TRACK
+        if down:
+            sources["tuning_skirt"] = (
+                _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
+                if ctx_rf is not None
+                else _EMPTY_SKIRT
+            )
+        else:
+            sources["tuning_skirt"] = _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
 
     # --------------------------------------------------------- output plane
     o_scale, o_unit = (lo_now, "× LO") if opts.normalised else engineering_scale(max(out_win[1], out_win[3]))
@@ -574,6 +617,10 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     tuning.vstrip(
         x0="x0", x1="x1", source=src["tuning_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
         name="tuning_skirt",
+    )
+    tuning.patches(
+        xs="xs", ys="ys", source=src["tuning_track"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
+        name="tuning_track",
     )
     band_t = tuning.vstrip(
         x0="x0", x1="x1", source=src["rf_band"], fill_color=_TINT_IN, fill_alpha=0.10,

@@ -30,8 +30,12 @@ def app() -> PlannerApp:
 
 
 def _data(app: PlannerApp) -> dict[str, dict]:
-    return {name: {k: list(np.asarray(v).ravel()) if not isinstance(v, list) else v for k, v in src.data.items()}
-            for name, src in app.chart.sources.items()}
+    def plain(v):
+        if isinstance(v, list):  # e.g. patches' xs: a list of arrays
+            return [np.asarray(x).tolist() if isinstance(x, np.ndarray) else x for x in v]
+        return list(np.asarray(v).ravel())
+
+    return {name: {k: plain(v) for k, v in src.data.items()} for name, src in app.chart.sources.items()}
 
 
 def _browser_edit(app: PlannerApp, source_name: str, new_data: dict) -> None:

@@ -595,3 +595,25 @@ def test_output_plane_lines_take_the_verdict_of_what_they_carry(fm):
                            | ((frame["kind"] == "response") & (sign == -1)))]
         assert margin == pytest.approx(on_line["margin_db"].min()), label
         assert (cat == "violates") == (on_line["margin_db"].min() < 0), label
+
+
+def test_a_tracking_preselector_is_shaded_along_the_plan_line(fm):
+    # Issue "a planner you can drive", item 6.  The FM example's three tuned circuits (Q 40) track the
+    # channel: no fixed band at the current channel; instead nested bands follow the plan line, each
+    # edge where the tuned-circuit loss centred on that point's channel reaches its level
+    # (textbook formula, tests/reference_filters.py tuned_circuit_loss_db; the grid steps 1.2 % in offset).
+    from reference_filters import tuned_circuit_loss_db
+
+    ev, data = fm
+    assert len(data.sources["tuning_skirt"]["x0"]) == 0
+    track = data.sources["tuning_track"]
+    assert len(track["xs"]) >= 3 and list(track["alpha"]) == sorted(track["alpha"], reverse=True)
+    lo_of = dict(zip(np.round(ev.lo_hz / MHz, 6), ev.channels_hz, strict=False))
+    for xs, ys, level in zip(track["xs"], track["ys"], track["atten_db"], strict=True):
+        for x, y in zip(xs, ys, strict=True):
+            channel = lo_of[round(y, 6)]
+            loss = tuned_circuit_loss_db(x * MHz, channel, 40, 3)
+            assert loss <= level + 1e-9
+            # one grid step (1.2 % of the offset from the channel) further out the loss is above it
+            beyond = channel + (x * MHz - channel) * 1.0117 + (1.0 if x * MHz >= channel else -1.0)
+            assert tuned_circuit_loss_db(beyond, channel, 40, 3) > level
