@@ -58,8 +58,11 @@ def test_plan_change_updates_every_source_and_the_table(app: PlannerApp) -> None
     assert app.state.try_update({"if.center_hz": "21.4 MHz", "lo.side": "low"}) is None
     after = _data(app)
     changed = {name for name in before if before[name] != after[name]}
-    # Every source that depends on the IF or the LO must change (the RF band does not).
-    assert changed >= set(before) - {"rf_band", "out_input_band"}, set(before) - changed
+    # Every source that depends on the IF or the LO must change (the RF band does not, and the
+    # FM example's tracking preselector is shaded along the plan, tuning_track, its fixed-band
+    # source tuning_skirt staying empty).
+    assert before["tuning_skirt"]["x0"] == [] and after["tuning_skirt"]["x0"] == []
+    assert changed >= set(before) - {"rf_band", "out_input_band", "tuning_skirt"}, set(before) - changed
     assert app.table.value != table_before
     assert "21.4 MHz" in app.status.value
     assert app.controls.if_center.value == "21.4 MHz"
