@@ -576,3 +576,16 @@ def test_lo_mode_switches_to_fixed_and_back_without_an_error(app):
     _wait_until(lambda: "high-side" in _status(page), "tracking, high side, in the status")
     assert page.locator(".mixchart-app .mixchart-error").count() == 0
     _assert_clean(page)
+
+
+def test_a_tracking_preselector_is_shaded_along_the_plan_line(app):
+    # Item 6: the FM example's tuned circuits track the channel; the tuning plane shades them along
+    # the plan line (nested bands at each channel's own LO), with no fixed band at one channel.
+    page = app.page
+    track = bh.source_data(page, "tuning_track")
+    plan = bh.source_data(page, "tuning_plan")
+    assert len(track["xs"]) >= 3 and bh.source_data(page, "tuning_skirt")["x0"] == []
+    for ys in track["ys"]:  # each band runs the length of the plan line
+        assert min(ys) == pytest.approx(min(plan["y"]), abs=0.2) and max(ys) == pytest.approx(max(plan["y"]), abs=0.2)
+    page.locator(".mixchart-app .bk-Canvas").first.screenshot(path=str(app.shots / "planner_tracking_shading.png"))
+    _assert_clean(page)
