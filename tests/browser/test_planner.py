@@ -587,5 +587,5 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(app):
     assert len(track["xs"]) >= 3 and bh.source_data(page, "tuning_skirt")["x0"] == []
     for ys in track["ys"]:  # each band runs the length of the plan line
         assert min(ys) == pytest.approx(min(plan["y"]), abs=0.2) and max(ys) == pytest.approx(max(plan["y"]), abs=0.2)
-    page.locator(".mixchart-app .bk-Canvas").first.screenshot(path=str(app.shots / "planner_tracking_shading.png"))
+    bh.screenshot(page, app.shots / "planner_tracking_shading.png", full_page=False)
     _assert_clean(page)
