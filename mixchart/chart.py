@@ -355,7 +355,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     sources["tuning_points"] = {
         "x": rows["f_center_hz"].to_numpy() / scale,
         "y": np.full(len(rows), lo_now / scale),
-        **_point_columns(rows),
+        **_point_columns(rows, down),
         **_style(cats_pts),
     }
     band = (plan.rf.start_hz - plan.signal.bandwidth_hz / 2, plan.rf.stop_hz + plan.signal.bandwidth_hz / 2)
@@ -430,7 +430,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     sources["out_points"] = {
         "x": px / o_scale,
         "y": py / o_scale,
-        **_point_columns(prod),
+        **_point_columns(prod, down),
         **_style(p_cat),
         "size": np.array(
             [14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat], dtype=float
@@ -488,8 +488,18 @@ def _point_in_convex(xs: np.ndarray, ys: np.ndarray, x: float, y: float) -> bool
     return bool(np.all(cross >= -1e-9 * np.abs(cross).max()) or np.all(cross <= 1e-9 * np.abs(cross).max()))
 
 
-def _point_columns(rows) -> dict[str, list]:
+def _point_columns(rows, down: bool = True) -> dict[str, list]:
+    margin = rows["margin_db"].to_numpy(float)
+    rejection = rows["rejection_db"].to_numpy(float)
+    is_response = rows["kind"].to_numpy() == "response"
+    port = "IF" if down else "RF"
     return {
+        # hover texts: a dash where a row has no number (the wanted row's margin, a product's
+        # input-referred rejection), and the level said where it is, by direction
+        "margin_text": [f"{v:+.1f} dB" if np.isfinite(v) else "—" for v in margin],
+        "rejection_text": [f"{r:.1f} dB" if resp and np.isfinite(r) else "—"
+                           for r, resp in zip(rejection, is_response, strict=True)],
+        "level_text": [f"{v:.1f} dBc at the {port} output" for v in rows["level_dbc"].to_numpy(float)],
         "m": rows["rf_harmonic"].to_numpy(np.int32),
         "n": rows["lo_harmonic"].to_numpy(np.int32),
         "label": rows["label"].tolist(),
@@ -557,11 +567,11 @@ _HOVER_POINTS = [
     ("product", "(@m,@n) @label"),
     ("kind", "@kind"),
     ("frequency", "@freq"),
-    ("level", "@level{0.0} dBc"),
-    ("rejection (input-referred)", "@rejection{0.0} dB"),
+    ("level", "@level_text"),
+    ("rejection (input-referred)", "@rejection_text"),
     ("judged against", "@requirement"),
     ("filter loss set by", "@loss_limit"),
-    ("margin", "@margin{+0.0} dB"),
+    ("margin", "@margin_text"),
 ]
 
 

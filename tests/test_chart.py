@@ -617,3 +617,22 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(fm):
             # one grid step (1.2 % of the offset from the channel) further out the loss is above it
             beyond = channel + (x * MHz - channel) * 1.0117 + (1.0 if x * MHz >= channel else -1.0)
             assert tuned_circuit_loss_db(beyond, channel, 40, 3) > level
+
+
+@pytest.mark.parametrize("which", ["down", "up"])
+def test_hover_texts_show_a_dash_for_no_number_and_say_where_the_level_is(which, down, up):
+    # Item 9: the wanted row's margin reads "—", not NaN; a product has no input-referred rejection
+    # ("—"); the level says which port it is at (IF output for a receiver, RF output for a transmitter).
+    _, data = down if which == "down" else up
+    pts = data.sources["out_points"]
+    port = "IF" if which == "down" else "RF"
+    assert all(t.endswith(f"dBc at the {port} output") for t in pts["level_text"])
+    for label, kind, margin, text, rej in zip(pts["label"], pts["kind"], pts["margin"], pts["margin_text"],
+                                              pts["rejection_text"], strict=True):
+        if label == "wanted":
+            assert text == "—"
+        elif np.isfinite(margin):
+            assert text == f"{margin:+.1f} dB"
+        if kind == "product":
+            assert rej == "—"
+    assert "wanted" in pts["label"]
