@@ -387,7 +387,7 @@ def _table_html(
     frame = ev.to_frame().head(rows)
     head = (
         "<tr><th>response / product</th><th>(m,n)</th><th>at channel</th><th>frequency</th>"
-        "<th>level dBc</th><th>margin dB</th><th>more RF rej.</th><th>more IF rej.</th></tr>"
+        "<th>level dBc</th><th>margin dB</th><th>extra RF</th><th>extra IF</th></tr>"
     )
     body = []
     for r in frame.itertuples(index=False):

@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from .errors import MixchartError
+from .units import format_frequency
 
 EXAMPLES = {
     "fm_receiver": "fm_receiver.json",
@@ -59,8 +60,6 @@ def _limit_text(row) -> str:
 
 
 def _text_table(frame, top: int) -> str:
-    from .units import format_frequency
-
     shown = frame.head(top)
     channel = [format_frequency(f, 7) for f in shown["channel_hz"]]
     lo = [format_frequency(f, 7) for f in shown["lo_hz"]]
@@ -73,18 +72,18 @@ def _text_table(frame, top: int) -> str:
     lines = [
         f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>{w_ch}} {'LO':>{w_lo}} "
         f"{'spur/input band':>{w_band}} {'level dBc':>10} {'rej. dB':>7} {'limit':>{w_lim}} {'margin':>7} "
-        f"{'need RF':>7} {'need IF':>7} {'drive':<12} loss limited by"
+        f"{'extra RF':>8} {'extra IF':>8} {'drive':<12} loss limited by"
     ]
     for k, row in enumerate(shown.itertuples(index=False)):
-        need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:7.1f}"
-        need_if = "" if row.extra_if_db != row.extra_if_db else f"{row.extra_if_db:7.1f}"
+        need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:8.1f}"
+        need_if = "" if row.extra_if_db != row.extra_if_db else f"{row.extra_if_db:8.1f}"
         rejection = _fmt_db(row.rejection_db) if row.kind == "response" else ""
         drive = f"{row.mixer_drive_dbm:.0f} dBm{'' if row.drive_ok else ' (!)'}"
         lines.append(
             f"{row.kind:<8} {row.label:<17} {row.rf_harmonic:>2} {row.lo_harmonic:>2} "
             f"{'+' if row.sign > 0 else '-':>1} {channel[k]:>{w_ch}} {lo[k]:>{w_lo}} "
             f"{band[k]:>{w_band}} {_fmt_db(row.level_dbc):>10} {rejection:>7} {limit[k]:>{w_lim}} "
-            f"{_fmt_db(row.margin_db):>7} {need_rf:>7} {need_if:>7} {drive:<12} {row.loss_limit}".rstrip()
+            f"{_fmt_db(row.margin_db):>7} {need_rf:>8} {need_if:>8} {drive:<12} {row.loss_limit}".rstrip()
         )
     if len(frame) > top:
         lines.append(f"... {len(frame) - top} more rows (use --top)")
@@ -104,7 +103,13 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     result = evaluate(plan, base_dir=base)
     if args.channel is not None:
         f_hz = parse_frequency(args.channel, "--channel")
-        frame = result.channel_frame(result.nearest_channel(f_hz))
+        first, last = float(result.channels_hz[0]), float(result.channels_hz[-1])
+        step = plan.rf.step_hz or 0.0
+        if not first - step / 2 <= f_hz <= last + step / 2:
+            raise MixchartError(f"--channel: {args.channel!r} is invalid; the tuning range is "
+                                f"{format_frequency(first)} to {format_frequency(last)}")
+        index = result.nearest_channel(f_hz)
+        frame = result.channel_frame(index)
     elif args.rows == "hits":
         frame = result.hits
     else:
@@ -121,7 +126,12 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     elif args.format == "csv":
         frame.to_csv(out, index=False, float_format="%.9g")
     else:
-        out.write(f"{plan.name}\n{result.summary.line()}\n")
+        out.write(f"{plan.name}\n{_plan_header(plan, result)}\n")
+        if args.channel is not None:
+            margin = float(result.worst_margin_db[index])
+            out.write(f"channel {format_frequency(float(result.channels_hz[index]))}: "
+                      f"{'PASS' if margin >= 0 else 'FAIL'}, worst margin {margin:+.1f} dB; whole plan: ")
+        out.write(f"{result.summary.line()}\n")
         for warning in result.warnings:
             out.write(f"note: {warning}\n")
         out.write(_text_table(frame, args.top) + "\n")
@@ -132,6 +142,23 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     if args.fail_on_spur and not result.summary.worst_margin_db >= 0:  # a NaN never passes
         return 1
     return 0
+
+
+def _plan_header(plan, result) -> str:
+    """What was judged, in one line: the requirement and the plan's key numbers."""
+    from .requirements import resolve_limits
+
+    limits = resolve_limits(plan.requirement, plan.direction)
+    texts = limits.texts[1:] if plan.direction == "up" else limits.texts
+    given = "requirement" in plan.model_fields_set
+    req = "; ".join(texts) + ("" if given else f" (no requirement in the plan: the default min_rejection_db "
+                                              f"{plan.requirement.min_rejection_db:g} dB)")
+    lo = (f"{plan.lo.side}-side tracking LO" if plan.lo.mode == "tracking"
+          else f"fixed LO {format_frequency(float(plan.lo.fixed_hz))}")
+    return (f"judged against: {req} | {plan.direction}-conversion, {plan.rf.n_channels} channel(s) "
+            f"{format_frequency(float(result.channels_hz[0]))} to {format_frequency(float(result.channels_hz[-1]))}, "
+            f"{lo}, IF {format_frequency(plan.if_.center_hz)} ({format_frequency(plan.if_.bandwidth_hz)} wide), "
+            f"order {plan.max_order}")
 
 
 def _cmd_check(args: argparse.Namespace) -> int:

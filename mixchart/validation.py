@@ -16,6 +16,8 @@ wording, so a pydantic release that rewords its messages changes nothing here:
 
 from __future__ import annotations
 
+import difflib
+import functools
 from typing import Any
 
 from pydantic import ValidationError
@@ -118,6 +120,33 @@ def _allowed(error: dict[str, Any]) -> str:
     return str(error.get("msg", kind))
 
 
+@functools.lru_cache(maxsize=1)
+def _known_keys() -> tuple[str, ...]:
+    """Every key a plan may hold, at any depth (from the plan's own JSON Schema)."""
+    from .plan import plan_json_schema  # at call time: plan imports this module
+
+    keys: set[str] = set()
+
+    def walk(node: Any) -> None:
+        if isinstance(node, dict):
+            for name, value in node.items():
+                if name == "properties" and isinstance(value, dict):
+                    keys.update(value)
+                walk(value)
+        elif isinstance(node, list):
+            for value in node:
+                walk(value)
+
+    walk(plan_json_schema())
+    return tuple(sorted(keys))
+
+
+def _nearest_key(key: str) -> str | None:
+    """The valid key nearest a misspelt one ('centre_hz' -> 'center_hz'), if one is close."""
+    found = difflib.get_close_matches(key, _known_keys(), n=1, cutoff=0.75)
+    return found[0] if found else None
+
+
 def from_validation_error(
     exc: ValidationError, data: Any, cls: type[MixchartError], *, root: str, prefix: str = ""
 ) -> MixchartError:
@@ -154,7 +183,10 @@ def from_validation_error(
     elif first["type"] == "missing":
         text = f"{loc or root}: missing; this field is required"
     elif first["type"] == "extra_forbidden":
-        text = f"{loc or root}: unknown key (value {_shown(first.get('input'))}); remove it or check its spelling"
+        key = str(first["loc"][-1]) if first["loc"] else ""
+        guess = _nearest_key(key)
+        hint = f"did you mean {guess}?" if guess else "remove it or check its spelling"
+        text = f"{loc or root}: unknown key (value {_shown(first.get('input'))}); {hint}"
     elif first["type"] == "union_tag_invalid":
         ctx = first.get("ctx") or {}
         key = str(ctx.get("discriminator", "kind")).strip("'")

@@ -9,6 +9,7 @@ from __future__ import annotations
 import io
 import json
 import os
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -57,7 +58,7 @@ def test_sweep_text(capsys, example):
     code, out, err = run(capsys, "sweep", "--example", example)
     assert code == 0 and err == ""
     lines = out.splitlines()
-    assert lines[1].startswith(("PASS: worst margin", "FAIL: worst margin"))
+    assert lines[2].startswith(("PASS: worst margin", "FAIL: worst margin"))
     assert any(line.startswith("kind ") for line in lines), "table header"
     assert "emission limits are set by local rules" in out
 
@@ -164,14 +165,14 @@ def test_fail_on_spur(capsys, tmp_path):
     failing_plan = write(tmp_path, {k: v for k, v in PASSING_PLAN.items() if k != "filters"}, "failing.json")
     failing, out, _ = run(capsys, "sweep", str(failing_plan), "--fail-on-spur")
     assert failing == 1
-    assert out.splitlines()[1].startswith("FAIL: worst margin -9.0 dB (image (1,1) at 100 MHz)")
+    assert out.splitlines()[2].startswith("FAIL: worst margin -9.0 dB (image (1,1) at 100 MHz)")
     plain, _, _ = run(capsys, "sweep", str(failing_plan))
     assert plain == 0, "without --fail-on-spur a failing plan still exits 0"
     passing, out, _ = run(capsys, "sweep", str(write(tmp_path, PASSING_PLAN)), "--fail-on-spur")
     assert passing == 0
     # the worst is now the (3,1) response: -40 dBc in the built-in table (2 RF orders of 20 dB,
     # n = 1), input-referred rejection 40/3 = 13.3 dB, margin 13.3 - 9 = +4.3 dB (derived by hand)
-    assert out.splitlines()[1].startswith("PASS: worst margin +4.3 dB (spur (3,1)")
+    assert out.splitlines()[2].startswith("PASS: worst margin +4.3 dB (spur (3,1)")
 
 
 def test_python_m_mixchart_runs(tmp_path):
@@ -187,3 +188,39 @@ def test_python_m_mixchart_runs(tmp_path):
         cwd=REPO, env=env, capture_output=True, text=True, timeout=120,
     )
     assert bad.returncode == 2 and "Traceback" not in bad.stderr and bad.stderr.count("\n") == 1
+
+
+# ---------------------------------------------------------------- the command line says what it judged
+def test_text_header_states_the_requirement_and_the_plans_key_numbers(capsys):
+    code, out, _ = run(capsys, "sweep", "--top", "1")
+    assert code == 0
+    header = out.splitlines()[1]
+    assert header.startswith("judged against: response rejection >= 70 dB; output spur <= -70 dBc | ")
+    assert "201 channel(s) 88 MHz to 108 MHz" in header and "high-side tracking LO" in header
+    assert "IF 10.7 MHz (230 kHz wide)" in header and "order 7" in header
+    assert "extra RF" in out and "need RF" not in out  # one column name everywhere
+
+
+def test_a_plan_without_a_requirement_says_which_default_it_used(capsys, tmp_path):
+    data = {k: v for k, v in PASSING_PLAN.items() if k != "requirement"}
+    code, out, _ = run(capsys, "sweep", str(write(tmp_path, data)), "--top", "1")
+    assert code == 0 and "(no requirement in the plan: the default min_rejection_db 60 dB)" in out
+
+
+def test_channel_outside_the_tuning_range_is_refused_and_a_channel_has_its_own_verdict(capsys):
+    code, out, err = run(capsys, "sweep", "--channel", "500 MHz")
+    assert code == 2 and out == ""
+    assert err.strip() == ("mixchart: error: --channel: '500 MHz' is invalid; the tuning range is 88 MHz to 108 MHz")
+    code, out, _ = run(capsys, "sweep", "--channel", "98.1 MHz", "--top", "1")
+    assert code == 0 and re.search(r"^channel 98\.1 MHz: (PASS|FAIL), worst margin [+-]\d+\.\d dB; whole plan: ",
+                                   out.splitlines()[2])
+
+
+@pytest.mark.parametrize(("where", "typo", "suggestion"), [
+    ("if", "centre_hz", "center_hz"), ("mixer", "lo_if_isolaton_db", "lo_if_isolation_db"),
+])
+def test_a_misspelt_key_suggests_the_nearest_valid_one(capsys, tmp_path, where, typo, suggestion):
+    data = json.loads(json.dumps(PASSING_PLAN))
+    data[where][typo] = data[where].get("center_hz", 30) if where == "if" else 30
+    code, _, err = run(capsys, "check", str(write(tmp_path, data)))
+    assert code == 2 and f"{where}.{typo}: unknown key" in err and f"did you mean {suggestion}?" in err

@@ -303,7 +303,7 @@ BAD_FIELDS = [
     ("direction", "sideways", "direction: 'sideways' is invalid; must be 'down' or 'up'"),
     ("colour", "red", "colour: unknown key (value 'red'); remove it or check its spelling"),
     ("rf.colour", "red", "rf.colour: unknown key (value 'red'); remove it or check its spelling"),
-    ("if_", {"center_hz": 1e6}, "if_: unknown key (value {...}); remove it or check its spelling"),
+    ("if_", {"center_hz": 1e6}, "if_: unknown key (value {...}); did you mean if?"),
     ("filters.rf", {"kind": "tuned", "q_loaded": -1, "tracks_channel": True},
      "filters.rf.q_loaded: -1 is invalid; must be >= 0.5"),
     ("filters.if", {"kind": "chebyshev1", "response": "bandpass", "order": 3, "f_center_hz": "10.7 MHz",

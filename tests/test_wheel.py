@@ -131,7 +131,7 @@ def test_installed_sweep_runs_a_built_in_example(built, example):
     done = _run([str(venv / "bin" / "mixchart"), "sweep", "--example", example], cwd=work, venv=venv)
     assert done.returncode == 0, done.stderr
     lines = done.stdout.splitlines()
-    assert lines[1].startswith(("PASS: worst margin", "FAIL: worst margin")), done.stdout
+    assert lines[2].startswith(("PASS: worst margin", "FAIL: worst margin")), done.stdout
     assert any(line.startswith("kind ") for line in lines)
 
 
