@@ -102,6 +102,32 @@ class ChartData:
     meta: dict[str, Any] = field(default_factory=dict)
 
 
+def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, scale: float) -> dict[str, Any]:
+    """Edge markers for rows outside the window: clipped into it, with a text naming what and where."""
+    order = np.argsort(rows["margin_db"].to_numpy(float), kind="stable")[:_MAX_OFFCHART]
+    rows, px, py = rows.iloc[order], px[order], py[order]
+    pad_x, pad_y = 0.02 * (window[1] - window[0]), 0.03 * (window[3] - window[2])
+    x = np.clip(px, window[0] + pad_x, window[1] - pad_x)
+    y = np.clip(py, window[2] + pad_y, window[3] - pad_y)
+    # markers at the same edge point are stacked inwards, worst at the edge, so their texts stay legible
+    step = 0.06 * (window[3] - window[2])
+    seen: dict[tuple, int] = {}
+    for i in range(len(x)):
+        key = (round(float(x[i]), 6), round(float(y[i]), 6))
+        k = seen.get(key, 0)
+        seen[key] = k + 1
+        y[i] += -k * step if py[i] > window[3] else k * step
+    # the marker points the way to the row: up, down, right or left of the window
+    angle = np.where(py > window[3], 0.0, np.where(py < window[2], np.pi, np.where(px > window[1], -np.pi / 2,
+                                                                                      np.pi / 2)))
+    margins = rows["margin_db"].to_numpy(float)
+    text = [f"{lb} ({m},{n}) at {format_frequency(f)}, off the chart: {mg:+.1f} dB"
+            for lb, m, n, f, mg in zip(rows["label"], rows["rf_harmonic"], rows["lo_harmonic"],
+                                       np.where(rows["kind"] == "product", py, px), margins, strict=True)]
+    return {"x": x / scale, "y": y / scale, "angle": angle.astype(float), "text": text, "margin": margins,
+            **_style(_category(margins).astype(object))}
+
+
 def _worst_product_margins(ev, m: np.ndarray, n: np.ndarray, sign: np.ndarray) -> np.ndarray:
     """Worst margin over the tuning range of each product (m, n, sign) of the wanted signal, dB (+inf if none)."""
     wbp = ev.worst_by_product
@@ -204,6 +230,8 @@ def _skirt(
     }
 
 
+#: At most this many off-chart rows are marked at the edge of the output plane (the worst first).
+_MAX_OFFCHART = 5
 #: Loss levels of a tracking filter's shading along the plan, as fractions of the requirement.
 _TRACK_LEVELS = (0.05, 0.15, 0.3, 0.5, 0.75)
 #: Plan points the tracking shading follows (the plan line is smooth).
@@ -423,6 +451,10 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         prod = prod[prod["kind"] == "product"]
         px, py = np.full(len(prod), f_in_wanted), prod["f_center_hz"].to_numpy()
     inside = (px >= out_win[0]) & (px <= out_win[1]) & (py >= out_win[2]) & (py <= out_win[3])
+    # The limiting rows are never off the chart unseen: a row within CLOSE_DB of its requirement (or
+    # past it) outside the window is marked at the window's edge, with its label and where it is.
+    off = ~inside & (prod["margin_db"].to_numpy(float) < CLOSE_DB) & (prod["label"].to_numpy() != "wanted")
+    sources["out_offchart"] = _offchart(prod[off], px[off], py[off], out_win, o_scale)
     prod, px, py = prod[inside], px[inside], py[inside]
     p_cat = np.where(prod["label"] == "wanted", "wanted", _category(prod["margin_db"].to_numpy())).astype(object)
     keep = (p_cat != "clear") | opts.show_clear
@@ -691,8 +723,17 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         x="x", y="y", source=src["out_points"], size="size", fill_color="color", line_color="#1A1A1A",
         line_width=0.6, name="product_points",
     )
+    off = output.scatter(
+        x="x", y="y", source=src["out_offchart"], marker="triangle", angle="angle", size=13,
+        fill_color="color", line_color="#1A1A1A", line_width=0.6, name="offchart_marks",
+    )
+    output.text(
+        x="x", y="y", text="text", source=src["out_offchart"], text_font_size="10px", text_color="#1A1A1A",
+        x_offset=9, y_offset=-4, text_baseline="middle", name="offchart_text",
+    )
     output.add_tools(
         HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
+        HoverTool(renderers=[off], tooltips=[("off the chart", "@text")]),
         HoverTool(
             renderers=[segs], tooltips=[("product", "@label"), ("table level", "@level{0.0} dBc"),
                                         ("worst margin here, after the filters", "@margin{+0.0} dB")],

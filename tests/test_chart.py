@@ -19,6 +19,7 @@ from mixchart.chart import CATEGORIES, CLOSE_DB, ChartData, ViewOptions, chart_d
 from mixchart.cli import example_path
 from mixchart.plan import load_plan, plan_from_dict
 from mixchart.products import tuning_plane_strips
+from mixchart.units import format_frequency
 
 MHz = 1e6
 
@@ -636,3 +637,25 @@ def test_hover_texts_show_a_dash_for_no_number_and_say_where_the_level_is(which,
         if kind == "product":
             assert rej == "—"
     assert "wanted" in pts["label"]
+
+
+def test_the_limiting_rows_are_never_off_the_chart_unseen():
+    # Item 7: the Ku converter's LO leakage (9.75 GHz, -16.5 dB) and LO harmonics sit far above the
+    # output plane's IF window; each within CLOSE_DB of its requirement is marked at the edge (the
+    # worst first, at most five), inside the window, its text naming it, where it is and its margin.
+    ev = evaluate(load_plan(example_path("ku_block_converter")))
+    data = chart_data(ev)
+    x0, x1, y0, y1 = data.meta["output_window"]
+    off = data.sources["out_offchart"]
+    frame = ev.channel_frame(data.meta["channel_index"])
+    scale = data.meta["out_scale"]
+    outside = frame[(frame["kind"] == "product") & (frame["label"] != "wanted") & (frame["margin_db"] < CLOSE_DB)
+                    & ((frame["f_center_hz"] / scale > y1) | (frame["f_center_hz"] / scale < y0))]
+    assert len(outside) >= 5
+    want = outside.sort_values("margin_db", kind="stable").head(5)
+    assert list(off["margin"]) == pytest.approx(list(want["margin_db"]))
+    assert all(x0 <= x <= x1 and y0 <= y <= y1 for x, y in zip(off["x"], off["y"], strict=True))
+    first = want.iloc[0]
+    assert off["text"][0] == (f"{first['label']} ({first['rf_harmonic']},{first['lo_harmonic']}) at "
+                              f"{format_frequency(first['f_center_hz'])}, off the chart: {first['margin_db']:+.1f} dB")
+    assert off["category"][0] == "violates"

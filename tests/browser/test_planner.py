@@ -589,3 +589,14 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(app):
         assert min(ys) == pytest.approx(min(plan["y"]), abs=0.2) and max(ys) == pytest.approx(max(plan["y"]), abs=0.2)
     bh.screenshot(page, app.shots / "planner_tracking_shading.png", full_page=False)
     _assert_clean(page)
+
+
+def test_a_limiting_row_off_the_output_plane_is_marked_at_its_edge(app):
+    # Item 7: rows within 10 dB of their requirement that lie outside the output plane are drawn
+    # as edge markers with their label; the page's BokehJS holds them inside the plot's ranges.
+    page = app.page
+    off = _wait_until(lambda: (d := bh.source_data(page, "out_offchart")) and d["text"] and d, "edge markers")
+    assert all("off the chart" in t for t in off["text"])
+    assert any(t.startswith("LO leakage (0,1)") for t in off["text"]), off["text"]
+    bh.screenshot(page, app.shots / "planner_offchart_markers.png", full_page=False)
+    _assert_clean(page)
