@@ -662,7 +662,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     )
     tuning.patches(
         xs="xs", ys="ys", source=src["tuning_track"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
-        name="tuning_track",
+        name="tracking_shading",
     )
     band_t = tuning.vstrip(
         x0="x0", x1="x1", source=src["rf_band"], fill_color=_TINT_IN, fill_alpha=0.10,
