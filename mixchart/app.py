@@ -508,6 +508,8 @@ class PlannerApp:
         )
         self.widget.add_class("mixchart-app")
         self._wire()
+        for box in self.controls.errors.values():
+            box.observe(lambda _change: self._mark_stale(), names="value")
         state.observe(self._on_state)
         self._refresh_all()
 
@@ -725,6 +727,26 @@ class PlannerApp:
         name = str(item.get("name", "plan.json"))
         self._file_result(self.state.load_text(data, name), f"opened {name}; saves go to {self.state.save_dir}")
 
+    #: The mark the banner and both chart titles carry while a field holds an invalid entry.
+    STALE_MARK = "showing the last valid plan: an entry is invalid"
+
+    def _mark_stale(self) -> None:
+        """While any field holds an invalid entry, say on the banner and on the charts that they show
+        the last valid plan; clear the mark when every entry is valid again."""
+        stale = any(box.value for box in self.controls.errors.values())
+        mark = f" — {self.STALE_MARK}"
+        for title in (self.chart.tuning.title, self.chart.output.title):
+            base = title.text.split(mark)[0]
+            text = base + mark if stale else base
+            if title.text != text:
+                with self.bokeh.batch():
+                    title.text = text
+        status = self.status.value.split("<div class='mixchart-stale'")[0]
+        if stale:
+            status += (f"<div class='mixchart-stale' style='color:#8A5A00;font-weight:bold'>&#9888; "
+                       f"{html.escape(self.STALE_MARK)} (see the message under it)</div>")
+        self.status.value = status
+
     def _history_result(self, error: str | None) -> None:
         self.controls.errors["plan"].value = _error_html(error or "")
 
@@ -797,6 +819,7 @@ class PlannerApp:
         self._last_meta = data.meta
         with self._sync(), self.bokeh.batch():
             update_chart(self.chart, data)
+            self._mark_stale()  # the titles were just reset from the data
         ev = self.state.evaluation
         i = data.meta["channel_index"]
         with self._sync():

@@ -407,3 +407,17 @@ def test_every_plan_change_can_be_undone_and_redone(app: PlannerApp, tmp_path) -
     assert app.state.load_path(other) is None
     app.controls.undo.click()
     assert app.state.plan == before_load
+
+
+def test_an_invalid_entry_marks_the_banner_and_the_charts_until_it_is_corrected(app: PlannerApp) -> None:
+    # Item 10: while a field holds an invalid entry the chart and the banner say they show the last
+    # valid plan; correcting it clears the mark.
+    mark = PlannerApp.STALE_MARK
+    assert mark not in app.status.value and mark not in app.chart.tuning.title.text
+    app.controls.if_center.value = "banana"
+    assert mark in app.status.value
+    assert app.chart.tuning.title.text.endswith(mark) and app.chart.output.title.text.endswith(mark)
+    app.state.set_view(channel_hz=100e6)  # a redraw keeps the mark while the entry is still bad
+    assert app.chart.output.title.text.endswith(mark)
+    app.controls.if_center.value = "10.7 MHz"
+    assert mark not in app.status.value and mark not in app.chart.output.title.text

@@ -393,13 +393,16 @@ def test_bad_entry_shows_a_message_and_keeps_the_chart(app):
     text = error.inner_text()
     assert "banana" in text and "IF centre" in text, text
     assert "Traceback" not in text
-    # The handler answered (the message is there): the chart and the plan are untouched.
+    # The handler answered (the message is there): the chart and the plan are untouched, and the
+    # banner says it shows the last valid plan (item 10 of the planner issue).
     assert _canon(_sources(page)) == _canon(before)
-    assert _status(page) == status0
+    _wait_until(lambda: "showing the last valid plan" in _status(page), "the last-valid-plan mark")
+    assert _status(page).startswith(status0)
 
-    field.fill(good)  # the user corrects the entry: the message goes, nothing else changes
+    field.fill(good)  # the user corrects the entry: the message and the mark go, nothing else changes
     field.press("Enter")
     error.wait_for(state="detached")
+    _wait_until(lambda: _status(page) == status0, "the banner without the mark")
     assert _canon(_sources(page)) == _canon(before)
     _assert_clean(page)
 
