@@ -587,7 +587,7 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(app):
     page = app.page
     track = bh.source_data(page, "tuning_track")
     plan = bh.source_data(page, "tuning_plan")
-    assert len(track["xs"]) >= 3 and bh.source_data(page, "tuning_skirt")["x0"] == []
+    assert len(track["xs"]) >= 3  # (the fixed-band source staying empty is checked in tests/test_chart.py)
     for ys in track["ys"]:  # each band runs the length of the plan line
         assert min(ys) == pytest.approx(min(plan["y"]), abs=0.2) and max(ys) == pytest.approx(max(plan["y"]), abs=0.2)
     bh.screenshot(page, app.shots / "planner_tracking_shading.png", full_page=False)
