@@ -635,10 +635,34 @@ class PlannerApp:
 
         return handler
 
+    def _filter_defaults(self, name: str, fc: FilterControls) -> None:
+        """Fill the empty fields a newly chosen filter kind needs with values derived from the plan.
+
+        The IF filter sits on the IF passband, 1.2 times as wide; a receiver's preselector tracks
+        the channel (10 % of the top channel wide); a transmitter's output filter sits on the RF
+        band, 1.2 times as wide.  Fields the user filled keep their values.
+        """
+        plan = self.state.plan
+        rf_low = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
+        rf_high = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
+        if name == "if":
+            centre, width = format_frequency(plan.if_.center_hz), 1.2 * plan.if_.bandwidth_hz
+        elif plan.direction == "down":
+            centre, width = "track", 0.1 * plan.rf.stop_hz
+        else:
+            centre, width = format_frequency(0.5 * (rf_low + rf_high)), 1.2 * (rf_high - rf_low)
+        with self._sync():
+            if not fc.centre.value.strip():
+                fc.centre.value = centre
+            if not fc.bandwidth.value.strip():
+                fc.bandwidth.value = format_frequency(width)
+
     def _filter_handler(self, name: str, fc: FilterControls) -> Callable[[dict], None]:
         def handler(change: dict) -> None:
             if self._syncing:
                 return
+            if change.get("owner") is fc.kind and change["new"] not in ("none", "custom"):
+                self._filter_defaults(name, fc)
             spec = _filter_spec_from_controls(fc, tracking_allowed=(name == "rf"))
             if spec == "custom":
                 return

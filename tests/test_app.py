@@ -421,3 +421,21 @@ def test_an_invalid_entry_marks_the_banner_and_the_charts_until_it_is_corrected(
     assert app.chart.output.title.text.endswith(mark)
     app.controls.if_center.value = "10.7 MHz"
     assert mark not in app.status.value and mark not in app.chart.output.title.text
+
+
+def test_choosing_a_filter_kind_fills_the_fields_it_needs_from_the_plan(app: PlannerApp) -> None:
+    # Item 10: a new filter kind gets a centre and a bandwidth derived from the plan (the IF filter
+    # on the IF passband, 1.2 times as wide: 10.7 MHz, 1.2 x 230 kHz = 276 kHz), not an error.
+    fc = app.controls.if_filter
+    fc.kind.value = "none"
+    assert app.state.plan.filters.if_ is None
+    fc.centre.value, fc.bandwidth.value = "", ""
+    fc.kind.value = "chebyshev1"
+    spec = app.state.plan.filters.if_
+    assert spec is not None and spec.kind == "chebyshev1" and fc.error.value == ""
+    assert spec.f_center_hz == 10.7e6 and spec.bandwidth_hz == pytest.approx(276e3)
+    # a field the user filled keeps its value
+    fc.kind.value = "none"
+    fc.bandwidth.value = "300 kHz"
+    fc.kind.value = "butterworth"
+    assert app.state.plan.filters.if_.bandwidth_hz == 300e3
