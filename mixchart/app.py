@@ -236,9 +236,11 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         value=plan.signal.level_dbm, min=-120, max=20, step=1, description="signal (dBm)", layout=_row(), style=style,
         continuous_update=False, readout_format=".0f",
     )
-    c["max_order"] = w.IntSlider(
-        value=plan.max_order, min=2, max=MAX_ORDER, description="max order", layout=_row(), style=style,
-        continuous_update=False,
+    # a plain number field, not a slider: a value beyond the limits (max order 999) is refused with
+    # the plan's message, never silently clamped by the widget
+    c["max_order"] = w.IntText(
+        value=plan.max_order, description="max order", layout=_row(), style=style, continuous_update=False,
+        tooltip=f"2 to {MAX_ORDER}",
     )
     c["requirement"] = w.FloatSlider(
         value=plan.requirement.min_rejection_db, min=0, max=150, step=1, description="required (dB)", layout=_row(),

@@ -439,3 +439,13 @@ def test_choosing_a_filter_kind_fills_the_fields_it_needs_from_the_plan(app: Pla
     fc.bandwidth.value = "300 kHz"
     fc.kind.value = "butterworth"
     assert app.state.plan.filters.if_.bandwidth_hz == 300e3
+
+
+def test_a_max_order_beyond_its_limit_is_refused_with_a_message_not_clamped(app: PlannerApp) -> None:
+    before = app.state.plan
+    app.controls.max_order.value = 999
+    assert app.state.plan == before  # refused: the last valid plan stays
+    message = app.controls.errors["plan"].value
+    assert "max_order: 999 is invalid" in message and "25" in message
+    app.controls.max_order.value = 9
+    assert app.state.plan.max_order == 9 and app.controls.errors["plan"].value == ""
