@@ -603,3 +603,26 @@ def test_a_limiting_row_off_the_output_plane_is_marked_at_its_edge(app):
     assert any(t.startswith("LO leakage (0,1)") for t in off["text"]), off["text"]
     bh.screenshot(page, app.shots / "planner_offchart_markers.png", full_page=False)
     _assert_clean(page)
+
+
+def test_undo_and_redo_buttons_step_through_plan_changes(app):
+    # Item 3 (part): every plan change can be undone and redone with the buttons.
+    page = app.page
+    _open_tab(page, "Plan")
+    side = page.locator(".mixchart-side")
+    start = side.locator("button.mod-active").inner_text().strip()
+    other = "low side" if start == "high side" else "high side"
+    side.locator("button", has_text=other).click()
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == other, "the other side chosen")
+    undo, redo = page.locator("button.mixchart-undo"), page.locator("button.mixchart-redo")
+    _wait_until(lambda: undo.is_enabled(), "Undo enabled")
+    undo.click()
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == start, "the side undone")
+    _wait_until(lambda: start.split()[0] + "-side" in _status(page), "the status back")
+    _wait_until(lambda: redo.is_enabled(), "Redo enabled")
+    redo.click()
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == other, "the side redone")
+    undo.click()  # leave the page as it was
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == start, "the side undone again")
+    bh.screenshot(page, app.shots / "planner_undo_redo.png", full_page=False)
+    _assert_clean(page)
