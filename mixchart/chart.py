@@ -124,7 +124,9 @@ def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, scale: float)
     text = [f"{lb} ({m},{n}) at {format_frequency(f)}, off the chart: {mg:+.1f} dB"
             for lb, m, n, f, mg in zip(rows["label"], rows["rf_harmonic"], rows["lo_harmonic"],
                                        np.where(rows["kind"] == "product", py, px), margins, strict=True)]
+    right = px > window[1] - pad_x  # a text at the right edge reads leftwards, so it stays on the plot
     return {"x": x / scale, "y": y / scale, "angle": angle.astype(float), "text": text, "margin": margins,
+            "align": np.where(right, "right", "left").tolist(), "dx": np.where(right, -9.0, 9.0),
             **_style(_category(margins).astype(object))}
 
 
@@ -729,7 +731,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     )
     output.text(
         x="x", y="y", text="text", source=src["out_offchart"], text_font_size="10px", text_color="#1A1A1A",
-        x_offset=9, y_offset=-4, text_baseline="middle", name="offchart_text",
+        x_offset="dx", y_offset=-4, text_align="align", text_baseline="middle", name="offchart_text",
     )
     output.add_tools(
         HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
