@@ -412,6 +412,37 @@ def _table_html(
     )
 
 
+def _channel_table_html(ev: Evaluation, index: int) -> str:
+    """Every product and response of one channel, worst first, with the filter losses behind each level."""
+    from .chart import CATEGORIES, CLOSE_DB
+
+    frame = ev.channel_frame(index).sort_values("margin_db", kind="stable")
+    frame = frame[frame["label"] != "wanted"]
+    head = ("<tr><th>response / product</th><th>(m,n) ±</th><th>band</th><th>table dBc</th><th>RF filter dB</th>"
+            "<th>IF filter dB</th><th>level dBc</th><th>rejection dB</th><th>judged against</th><th>margin dB</th>"
+            "<th>filter loss set by</th></tr>")
+    body = []
+    for r in frame.itertuples(index=False):
+        colour = CATEGORIES["violates" if r.margin_db < 0 else "close" if r.margin_db < CLOSE_DB else "clear"][1]
+        margin = f"{r.margin_db:+.1f}" if math.isfinite(r.margin_db) else "—"
+        rejection = f"{r.rejection_db:.1f}" if r.kind == "response" else "—"
+        band = f"{format_frequency(r.f_low_hz, 7)} – {format_frequency(r.f_high_hz, 7)}"
+        body.append(
+            f"<tr><td>{html.escape(r.kind)}: {html.escape(r.label)}</td>"
+            f"<td>({r.rf_harmonic},{r.lo_harmonic}) {'+' if r.sign > 0 else '−'}</td><td>{html.escape(band)}</td>"
+            f"<td>{r.table_dbc:.1f}</td><td>{r.rf_atten_db:.1f}</td><td>{r.if_atten_db:.1f}</td>"
+            f"<td>{r.level_dbc:.1f}</td><td>{rejection}</td><td>{html.escape(r.requirement)}</td>"
+            f'<td style="color:{colour};font-weight:bold">{margin}</td><td>{html.escape(r.loss_limit)}</td></tr>'
+        )
+    channel, lo = format_frequency(float(ev.channels_hz[index])), format_frequency(float(ev.lo_hz[index]))
+    caption = f"Channel {channel} (LO {lo}): every product and response, worst first ({len(frame)} rows)"
+    return (
+        '<table class="mixchart-table" style="border-collapse:collapse;font-size:12px">'
+        f"<caption style='text-align:left;font-weight:bold'>{html.escape(caption)}</caption>"
+        f"{head}{''.join(body)}</table>"
+    )
+
+
 def _summary_html(label: str, ev: Evaluation) -> str:
     s = ev.summary
     colour = "#B33000" if s.worst_margin_db < 0 else "#006B4F"
@@ -479,6 +510,7 @@ class PlannerApp:
 
         # before the widget is made: the browser learns which UI events to send from its first render
         self.chart.tuning.on_event(Tap, self._on_tap)
+        self.chart.margin.on_event(Tap, self._on_tap)  # the margin plot shares the tuning plane's RF axis
         self.bokeh = BatchedBokehModel(self.chart.layout)
         self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
         self.status = w.HTML(value="")
@@ -487,6 +519,8 @@ class PlannerApp:
         self.warnings.add_class("mixchart-warnings")
         self.table = w.HTML(value="")
         self.table.add_class("mixchart-worst-table")
+        self.channel_table = w.HTML(value="", layout=w.Layout(max_height="360px", overflow="auto"))
+        self.channel_table.add_class("mixchart-channel-table")
         self.compare = w.HTML(value="")
         self.compare.add_class("mixchart-compare")
         self.reference_chart: ChartHandle | None = None
@@ -505,6 +539,7 @@ class PlannerApp:
                 w.HBox([self.controls.panel, self.bokeh], layout=w.Layout(flex_flow="row wrap")),
                 self.compare,
                 self.table,
+                self.channel_table,
                 self.reference_box,
             ]
         )
@@ -851,6 +886,7 @@ class PlannerApp:
         with self._sync():
             self.controls.channel.value = i
         margin = ev.worst_margin_db[i]
+        self.channel_table.value = _channel_table_html(ev, i)
         self.controls.channel_text.value = (
             f"<span class='mixchart-channel-text'>channel {html.escape(format_frequency(ev.channels_hz[i]))}, "
             f"LO {html.escape(format_frequency(ev.lo_hz[i]))}, worst margin {margin:+.1f} dB</span>"

@@ -367,6 +367,22 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "margin": ev.worst_margin_db[bad].astype(float),
         **_style(worst_cat[bad]),
     }
+    # margin against channel: where in the band the plan is weak (infinite margins shown at the top)
+    step_m = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
+    worst = ev.worst_margin_db[::step_m]
+    finite = np.isfinite(worst)
+    top = float(np.max(worst[finite])) if finite.any() else CLOSE_DB
+    labels_m = ev.worst_row["label"].to_numpy()[::step_m]
+    sources["margin_channels"] = {
+        "x": ev.channels_hz[::step_m] / scale,
+        "y": np.where(finite, worst, max(top, CLOSE_DB) + 5.0).astype(float),
+        "margin": np.where(finite, worst, np.nan).astype(float),
+        "channel": [format_frequency(f) for f in ev.channels_hz[::step_m]],
+        "label": [str(lb) for lb in labels_m],
+        **_style(_category(worst).astype(object)),
+    }
+    m_now = float(ev.worst_margin_db[index])
+    sources["margin_now"] = {"x": [ch / scale], "y": [m_now if math.isfinite(m_now) else max(top, CLOSE_DB) + 5.0]}
     sources["tuning_now"] = {
         "x": [ch / scale],
         "y": [lo_now / scale],
@@ -563,6 +579,8 @@ class ChartHandle:
         What to show.
     tuning, output : bokeh.plotting.figure
         The two planes (named ``"tuning_plane"`` and ``"output_plane"``).
+    margin : bokeh.plotting.figure
+        Worst margin against channel (``"margin_plot"``), sharing the tuning plane's RF axis.
     sources : dict of str to ColumnDataSource
         Every source by name; updates assign ``.data``.
     band_edit : BoxEditTool
@@ -579,6 +597,7 @@ class ChartHandle:
     band_edit_tuning: Any
     windows: dict[str, tuple[float, ...]] = field(default_factory=dict)
     last: dict[str, dict[str, Any]] = field(default_factory=dict)
+    margin: Any = None  # the margin-against-channel plot
 
 
 def legend_html() -> str:
@@ -624,7 +643,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     ChartHandle
     """
     from bokeh.layouts import column, row
-    from bokeh.models import BoxEditTool, ColumnDataSource, Div, HoverTool, Range1d
+    from bokeh.models import BoxEditTool, ColumnDataSource, Div, HoverTool, Range1d, Span
     from bokeh.plotting import figure
 
     src = {name: ColumnDataSource(data=dict(cols), name=name) for name, cols in data.sources.items()}
@@ -750,10 +769,31 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     output.toolbar.active_drag = edit
     tuning.toolbar.active_drag = edit_t
 
+    # worst margin against channel, on the tuning plane's RF axis (zooming one zooms both); a click picks
+    margin_fig = figure(
+        name="margin_plot", title="Worst margin against channel (click to pick a channel)", width=2 * width,
+        height=190, x_range=tuning.x_range, tools="pan,box_zoom,reset,save", toolbar_location="right",
+        background_fill_color="#FFFFFF", border_fill_color="#FFFFFF", output_backend="canvas",
+    )
+    margin_fig.xaxis.axis_label = meta["tuning_x_label"]
+    margin_fig.yaxis.axis_label = "worst margin (dB)"
+    margin_fig.grid.grid_line_color = "#E4E4E4"
+    margin_fig.add_layout(Span(location=0.0, dimension="width", line_color=CATEGORIES["violates"][1],
+                               line_width=2, line_dash="dashed"))
+    margin_fig.add_layout(Span(location=CLOSE_DB, dimension="width", line_color=CATEGORIES["close"][1],
+                               line_width=1, line_dash="dotted"))
+    margin_fig.line(x="x", y="y", source=src["margin_channels"], line_color="#9AA5B1", line_width=1)
+    m_pts = margin_fig.scatter(x="x", y="y", source=src["margin_channels"], size=5, fill_color="color",
+                               line_color="color", name="margin_points")
+    margin_fig.scatter(x="x", y="y", source=src["margin_now"], size=13, marker="circle_cross", fill_alpha=0,
+                       line_color="#1A1A1A", line_width=2, name="margin_now_mark")
+    margin_fig.add_tools(HoverTool(renderers=[m_pts], tooltips=[("channel", "@channel"), ("worst", "@label"),
+                                                                  ("margin", "@margin{+0.0} dB")]))
     legend = Div(text=legend_html(), name="chart_legend", styles={"font-size": "13px"})
-    layout = column(legend, row(tuning, output), name="mixchart_chart")
+    layout = column(legend, row(tuning, output), margin_fig, name="mixchart_chart")
     handle = ChartHandle(
-        layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t
+        layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t,
+        margin=margin_fig,
     )
     handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
     handle.last = dict(data.sources)

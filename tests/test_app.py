@@ -449,3 +449,28 @@ def test_a_max_order_beyond_its_limit_is_refused_with_a_message_not_clamped(app:
     assert "max_order: 999 is invalid" in message and "25" in message
     app.controls.max_order.value = 9
     assert app.state.plan.max_order == 9 and app.controls.errors["plan"].value == ""
+
+
+def test_one_channel_in_full_lists_every_row_with_the_filter_losses_behind_it(app: PlannerApp) -> None:
+    # Item 15: the selected channel's products and responses, worst first, with the table level, the
+    # RF and IF filter losses and the level they give, the requirement and what set a filter's loss.
+    import html as html_lib
+
+    app.state.set_view(channel_hz=98e6)
+    frame = app.state.evaluation.channel_frame(app.state.evaluation.nearest_channel(98e6))
+    rows = frame[frame["label"] != "wanted"].sort_values("margin_db", kind="stable")
+    text = app.channel_table.value
+    assert "Channel 98 MHz (LO 108.7 MHz)" in text and f"({len(rows)} rows)" in text
+    assert text.count("<tr>") == len(rows) + 1  # the head row and one per product or response
+    first = rows.iloc[0]
+    assert html_lib.escape(f"{first['kind']}: {first['label']}") in text and f"{first['margin_db']:+.1f}" in text
+    assert text.index(f"{first['margin_db']:+.1f}") < text.index(f"{rows.iloc[-1]['margin_db']:+.1f}")
+    app.state.set_view(channel_hz=88e6)  # it follows the channel
+    assert "Channel 88 MHz" in app.channel_table.value
+
+
+def test_clicking_the_margin_plot_picks_the_channel(app: PlannerApp) -> None:
+    from bokeh.events import Tap
+
+    app.chart.margin._trigger_event(Tap(app.chart.margin, x=95.04, y=0.0))
+    assert app.state.view.channel_hz == pytest.approx(95.0e6)  # nearest channel on the 100 kHz raster

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from mixchart.analysis import evaluate
-from mixchart.chart import CATEGORIES, CLOSE_DB, ChartData, ViewOptions, chart_data
+from mixchart.chart import CATEGORIES, CLOSE_DB, ChartData, ViewOptions, build_chart, chart_data
 from mixchart.cli import example_path
 from mixchart.plan import load_plan, plan_from_dict
 from mixchart.products import tuning_plane_strips
@@ -659,3 +659,19 @@ def test_the_limiting_rows_are_never_off_the_chart_unseen():
     assert off["text"][0] == (f"{first['label']} ({first['rf_harmonic']},{first['lo_harmonic']}) at "
                               f"{format_frequency(first['f_center_hz'])}, off the chart: {first['margin_db']:+.1f} dB")
     assert off["category"][0] == "violates"
+
+
+def test_margin_against_channel_is_every_channels_worst_margin(fm):
+    # Item 14: a plot of worst margin against channel, on the tuning plane's RF axis, with the
+    # current channel marked; it is the evaluation's per-channel worst margin, coloured alike.
+    ev, data = fm
+    src = data.sources["margin_channels"]
+    np.testing.assert_allclose(src["x"], ev.channels_hz / MHz)
+    np.testing.assert_allclose(src["margin"], ev.worst_margin_db)
+    assert all(c == ("violates" if m < 0 else "close" if m < CLOSE_DB else "clear")
+               for c, m in zip(src["category"], src["margin"], strict=True))
+    now = data.sources["margin_now"]
+    i = ev.nearest_channel(98e6)
+    assert now["x"] == [pytest.approx(ev.channels_hz[i] / MHz)] and now["y"] == [pytest.approx(ev.worst_margin_db[i])]
+    handle = build_chart(data)
+    assert handle.margin.x_range is handle.tuning.x_range  # zoom one, zoom both
