@@ -626,3 +626,23 @@ def test_undo_and_redo_buttons_step_through_plan_changes(app):
     _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == start, "the side undone again")
     bh.screenshot(page, app.shots / "planner_undo_redo.png", full_page=False)
     _assert_clean(page)
+
+
+def test_the_margin_plot_shows_every_channel_and_a_click_picks_one(app):
+    # Item 14: worst margin against channel under the planes; a click picks the channel, and the
+    # one-channel table (item 15) follows with every row of that channel.
+    page = app.page
+    pts = bh.source_data(page, "margin_channels")
+    assert len(pts["x"]) == len(set(pts["x"])) >= 100
+    now = bh.source_data(page, "tuning_now")
+    target = 95.03 if abs(now["x"][0] - 95.0) > 1 else 101.03
+    i = min(range(len(pts["x"])), key=lambda k: abs(pts["x"][k] - target))
+    (x, y), = bh.data_to_screen(page, "margin_plot", [(pts["x"][i], pts["y"][i])])
+    page.mouse.click(x, y)
+    expected = round(target * 10) / 10
+    _wait_until(lambda: abs(bh.source_data(page, "tuning_now")["x"][0] - expected) < 0.051, "the clicked channel")
+    table = page.locator(".mixchart-channel-table")
+    _wait_until(lambda: f"Channel {format_frequency(expected * MHZ)}" in table.inner_text(), "the channel's table")
+    assert "every product and response" in table.inner_text()
+    bh.screenshot(page, app.shots / "planner_margin_plot.png")
+    _assert_clean(page)
