@@ -924,7 +924,7 @@ class PlannerApp:
 
             data = chart_data(ref[1], ViewOptions(normalised=self.state.view.normalised))
             if self.reference_chart is None:
-                self.reference_chart = build_chart(data, width=600, height=400)
+                self.reference_chart = build_chart(data, width=600, height=400, prefix="reference_")
                 self._reference_widget = BatchedBokehModel(self.reference_chart.layout)
             else:
                 with self._reference_widget.batch():

@@ -628,8 +628,8 @@ _HOVER_POINTS = [
 ]
 
 
-def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> ChartHandle:
-    """Build the two figures once, around named sources filled from ``data``.
+def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix: str = "") -> ChartHandle:
+    """Build the figures once, around named sources filled from ``data``.
 
     Parameters
     ----------
@@ -637,6 +637,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         From :func:`chart_data`.
     width, height : int
         Size of each plane, screen pixels.
+    prefix : str
+        Put before every figure's and source's Bokeh ``name`` (e.g. ``"reference_"`` for a
+        second chart on the same page, so that each name finds one model).
 
     Returns
     -------
@@ -646,7 +649,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     from bokeh.models import BoxEditTool, ColumnDataSource, Div, HoverTool, Range1d, Span
     from bokeh.plotting import figure
 
-    src = {name: ColumnDataSource(data=dict(cols), name=name) for name, cols in data.sources.items()}
+    src = {name: ColumnDataSource(data=dict(cols), name=prefix + name) for name, cols in data.sources.items()}
     meta = data.meta
     tw, ow = meta["tuning_window"], meta["output_window"]
 
@@ -673,7 +676,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
         fig.grid.grid_line_color = "#E4E4E4"
         return fig
 
-    tuning = make("tuning_plane", meta["tuning_title"], tw)
+    tuning = make(prefix + "tuning_plane", meta["tuning_title"], tw)
     tuning.xaxis.axis_label = meta["tuning_x_label"]
     tuning.yaxis.axis_label = meta["tuning_y_label"]
     # shading first, then strips, the plan, marks and points on top
@@ -717,7 +720,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
     edit_t = BoxEditTool(renderers=[band_t], dimensions="width", num_objects=1, description="Drag the RF band")
     tuning.add_tools(edit_t)
 
-    output = make("output_plane", meta["output_title"], ow)
+    output = make(prefix + "output_plane", meta["output_title"], ow)
     output.xaxis.axis_label = meta["output_x_label"]
     output.yaxis.axis_label = meta["output_y_label"]
     output.vstrip(
@@ -771,9 +774,10 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480) -> Char
 
     # worst margin against channel, on the tuning plane's RF axis (zooming one zooms both); a click picks
     margin_fig = figure(
-        name="margin_plot", title="Worst margin against channel (click to pick a channel)", width=2 * width,
+        name=prefix + "margin_plot", title="Worst margin against channel (click to pick a channel)", width=2 * width,
         height=190, x_range=tuning.x_range, tools="pan,box_zoom,reset,save", toolbar_location="right",
         background_fill_color="#FFFFFF", border_fill_color="#FFFFFF", output_backend="canvas",
+        active_drag=None,  # a click is a tap that picks a channel, not the start of a pan
     )
     margin_fig.xaxis.axis_label = meta["tuning_x_label"]
     margin_fig.yaxis.axis_label = "worst margin (dB)"
