@@ -237,7 +237,42 @@ _MAX_OFFCHART = 5
 #: Loss levels of a tracking filter's shading along the plan, as fractions of the requirement.
 _TRACK_LEVELS = (0.05, 0.15, 0.3, 0.5, 0.75)
 #: Plan points the tracking shading follows (the plan line is smooth).
-_TRACK_POINTS = 60
+_TRACK_POINTS = 40
+#: Sources that depend on the plan but not on the channel shown (the tracking shading, the plan
+#: line's marks), kept with the last evaluation they belong to; a new evaluation empties it.
+_PLAN_CACHE: dict[str, Any] = {"ev": None, "values": {}}
+
+
+def _plan_cached(ev, key: tuple, make) -> Any:
+    """``make()`` once per evaluation (compared by identity) and ``key``."""
+    if _PLAN_CACHE["ev"] is not ev:
+        _PLAN_CACHE["ev"], _PLAN_CACHE["values"] = ev, {}
+    values = _PLAN_CACHE["values"]
+    if key not in values:
+        values[key] = make()
+    return values[key]
+
+
+def _tuning_marks(ev, scale: float) -> dict[str, Any]:
+    """The plan line recoloured where a channel's worst margin is not clear: one short segment per such
+    channel, from the midpoint with its left neighbour to the right one."""
+    worst_cat = _category(ev.worst_margin_db).astype(object)
+    bad = np.flatnonzero(worst_cat != "clear")[:: max(1, int(np.sum(worst_cat != "clear")) // _MAX_PLAN_POINTS)]
+    px, py = ev.channels_hz / scale, ev.lo_hz / scale
+    left = np.maximum(bad - 1, 0)
+    right = np.minimum(bad + 1, px.size - 1)
+    wr = ev.worst_row.iloc[bad]
+    return {
+        "x0": 0.5 * (px[left] + px[bad]),
+        "y0": 0.5 * (py[left] + py[bad]),
+        "x1": 0.5 * (px[right] + px[bad]),
+        "y1": 0.5 * (py[right] + py[bad]),
+        "label": [f"{lb} ({m},{n})" for lb, m, n in zip(wr["label"], wr["rf_harmonic"], wr["lo_harmonic"],
+                                                          strict=True)],
+        "channel": [format_frequency(f) for f in ev.channels_hz[bad]],
+        "margin": ev.worst_margin_db[bad].astype(float),
+        **_style(worst_cat[bad]),
+    }
 
 
 def _tracking_skirt(filt, channels_hz: np.ndarray, lo_hz: np.ndarray, window: tuple, req_db: float,
@@ -245,14 +280,14 @@ def _tracking_skirt(filt, channels_hz: np.ndarray, lo_hz: np.ndarray, window: tu
     """Nested bands along the plan line where a tracking filter loses less than each level.
 
     For each of a few plan points (channel c, LO) the frequencies around c whose loss, with the
-    filter centred on c, is below ``level·req_db`` are found on a grid 1.2 % apart in offset; the band edges of
+    filter centred on c, is below ``level·req_db`` are found on a grid 2.3 % apart in offset; the band edges of
     all points make one polygon per level, drawn with the alpha of the level (lower loss darker).
     """
     pick = np.unique(np.linspace(0, channels_hz.size - 1, min(_TRACK_POINTS, channels_hz.size)).astype(int))
     c, y = channels_hz[pick], lo_hz[pick]
     span = max(window[1] - window[0], 1e-9)
-    # offsets from the channel, 1.2 % apart (geometric), from 1e-4 to 1 of the window's span
-    offsets = np.concatenate([-np.geomspace(span, 1e-4 * span, 800), [0.0], np.geomspace(1e-4 * span, span, 800)])
+    # offsets from the channel, 2.3 % apart (geometric), from 1e-4 to 1 of the window's span
+    offsets = np.concatenate([-np.geomspace(span, 1e-4 * span, 400), [0.0], np.geomspace(1e-4 * span, span, 400)])
     f = np.maximum(c[:, None] + offsets[None, :], 1e-3)
     atten = np.asarray(filt.atten_db(f, np.broadcast_to(c[:, None], f.shape)), dtype=float)
     xs, ys, alphas, losses = [], [], [], []
@@ -260,8 +295,8 @@ def _tracking_skirt(filt, channels_hz: np.ndarray, lo_hz: np.ndarray, window: tu
         inside = atten <= level * max(req_db, 1.0)
         if not inside.any(axis=1).all():
             continue
-        lo_edge = np.array([f[i][inside[i]].min() for i in range(len(c))])
-        hi_edge = np.array([f[i][inside[i]].max() for i in range(len(c))])
+        lo_edge = np.where(inside, f, np.inf).min(axis=1)
+        hi_edge = np.where(inside, f, -np.inf).max(axis=1)
         xs.append(np.concatenate([lo_edge, hi_edge[::-1]]) / scale)
         ys.append(np.concatenate([y, y[::-1]]) / scale)
         alphas.append(_TINT_MAX_ALPHA * (1.0 - level) / len(_TRACK_LEVELS) * 2.0)
@@ -308,7 +343,8 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     intrinsic = table.level_dbc_at(strips.rf_harmonic, strips.lo_harmonic, plan.signal.level_dbm)
     # One story: a strip takes the after-filter verdict of its product, the worst margin over
     # the tuning range (the table's row); a product with no finite margin is drawn clear.
-    strip_margin = _worst_product_margins(ev, strips.rf_harmonic, strips.lo_harmonic, strips.sign)
+    strip_margin = _plan_cached(ev, ("strip_margin", tuning_win, max_shown), lambda: _worst_product_margins(
+        ev, strips.rf_harmonic, strips.lo_harmonic, strips.sign)).copy()  # (the image's is set below)
     cats = _category(strip_margin).astype(object)
     # the strip holding the plan line is the wanted conversion
     mid = len(ev.channels_hz) // 2
@@ -326,7 +362,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
             elif down:
                 text = "image (1,1)" if strips.sign[k] < 0 else "sum (1,1)"
                 if strips.sign[k] < 0:  # the mirror branch of the wanted conversion: the image's verdict
-                    strip_margin[k] = _worst_label_margin(ev, "image")
+                    strip_margin[k] = _plan_cached(ev, ("image",), lambda: _worst_label_margin(ev, "image"))
                     cats[k] = _category(strip_margin[k:k + 1])[0]
         labels.append(text)
     vanish = intrinsic <= FLOOR_DBC + 1
@@ -351,34 +387,17 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     }
     # The plan line is recoloured where a channel's worst margin is not clear: one short
     # segment per such channel, from the midpoint with its left neighbour to the right one.
-    worst_cat = _category(ev.worst_margin_db).astype(object)
-    bad = np.flatnonzero(worst_cat != "clear")[:: max(1, int(np.sum(worst_cat != "clear")) // _MAX_PLAN_POINTS)]
-    px, py = ev.channels_hz / scale, ev.lo_hz / scale
-    left = np.maximum(bad - 1, 0)
-    right = np.minimum(bad + 1, px.size - 1)
-    wr = ev.worst_row.iloc[bad]
-    sources["tuning_marks"] = {
-        "x0": 0.5 * (px[left] + px[bad]),
-        "y0": 0.5 * (py[left] + py[bad]),
-        "x1": 0.5 * (px[right] + px[bad]),
-        "y1": 0.5 * (py[right] + py[bad]),
-        "label": [f"{r.label} ({r.rf_harmonic},{r.lo_harmonic})" for r in wr.itertuples()],
-        "channel": [format_frequency(f) for f in ev.channels_hz[bad]],
-        "margin": ev.worst_margin_db[bad].astype(float),
-        **_style(worst_cat[bad]),
-    }
+    sources["tuning_marks"] = _plan_cached(ev, ("tuning_marks", scale), lambda: _tuning_marks(ev, scale))
     # margin against channel: where in the band the plan is weak (infinite margins shown at the top)
     step_m = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
     worst = ev.worst_margin_db[::step_m]
     finite = np.isfinite(worst)
     top = float(np.max(worst[finite])) if finite.any() else CLOSE_DB
-    labels_m = ev.worst_row["label"].to_numpy()[::step_m]
     sources["margin_channels"] = {
         "x": ev.channels_hz[::step_m] / scale,
         "y": np.where(finite, worst, max(top, CLOSE_DB) + 5.0).astype(float),
         "margin": np.where(finite, worst, np.nan).astype(float),
-        "channel": [format_frequency(f) for f in ev.channels_hz[::step_m]],
-        "label": [str(lb) for lb in labels_m],
+        "label": ev.worst_row["label"].to_numpy()[::step_m].tolist(),
         **_style(_category(worst).astype(object)),
     }
     m_now = float(ev.worst_margin_db[index])
@@ -411,7 +430,10 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         # a filter that tracks the channel is shaded where it is: along the plan line, each
         # channel's own passband and skirt at that channel's LO (never a fixed band at one channel)
         sources["tuning_skirt"] = _EMPTY_SKIRT
-        sources["tuning_track"] = _tracking_skirt(ctx_rf, ev.channels_hz, ev.lo_hz, tuning_win, req, scale)
+        # the shading follows the plan, not the view: worked out once per evaluation and window
+        sources["tuning_track"] = _plan_cached(
+            ev, ("tuning_track", tuning_win, req, scale),
+            lambda: _tracking_skirt(ctx_rf, ev.channels_hz, ev.lo_hz, tuning_win, req, scale))
     else:
         sources["tuning_track"] = _EMPTY_TRACK
         if down:
@@ -791,7 +813,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
                                line_color="color", name="margin_points")
     margin_fig.scatter(x="x", y="y", source=src["margin_now"], size=13, marker="circle_cross", fill_alpha=0,
                        line_color="#1A1A1A", line_width=2, name="margin_now_mark")
-    margin_fig.add_tools(HoverTool(renderers=[m_pts], tooltips=[("channel", "@channel"), ("worst", "@label"),
+    margin_fig.add_tools(HoverTool(renderers=[m_pts], tooltips=[("channel", "@x{0.000[000]}"), ("worst", "@label"),
                                                                   ("margin", "@margin{+0.0} dB")]))
     legend = Div(text=legend_html(), name="chart_legend", styles={"font-size": "13px"})
     layout = column(legend, row(tuning, output), margin_fig, name="mixchart_chart")

@@ -602,7 +602,7 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(fm):
     # Issue "a planner you can drive", item 6.  The FM example's three tuned circuits (Q 40) track the
     # channel: no fixed band at the current channel; instead nested bands follow the plan line, each
     # edge where the tuned-circuit loss centred on that point's channel reaches its level
-    # (textbook formula, tests/reference_filters.py tuned_circuit_loss_db; the grid steps 1.2 % in offset).
+    # (textbook formula, tests/reference_filters.py tuned_circuit_loss_db; the grid steps 2.3 % in offset).
     from reference_filters import tuned_circuit_loss_db
 
     ev, data = fm
@@ -615,8 +615,8 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(fm):
             channel = lo_of[round(y, 6)]
             loss = tuned_circuit_loss_db(x * MHz, channel, 40, 3)
             assert loss <= level + 1e-9
-            # one grid step (1.2 % of the offset from the channel) further out the loss is above it
-            beyond = channel + (x * MHz - channel) * 1.0117 + (1.0 if x * MHz >= channel else -1.0)
+            # one grid step (2.3 % of the offset from the channel) further out the loss is above it
+            beyond = channel + (x * MHz - channel) * 1.0233 + (1.0 if x * MHz >= channel else -1.0)
             assert tuned_circuit_loss_db(beyond, channel, 40, 3) > level
 
 
