@@ -205,7 +205,7 @@ def point_rule():
     import mixchart.analysis as analysis
     import mixchart.context as context
 
-    def band_atten(filt, f_low, f_high, centre, field, *, floored=True):
+    def band_atten(filt, f_low, f_high, centre, field):
         if filt.tracks_channel and centre is not None:
             shape = np.broadcast_shapes(f_low.shape, f_high.shape)
             fc = np.broadcast_to(np.asarray(centre, dtype=float)[:, None], shape)
@@ -213,7 +213,7 @@ def point_rule():
         else:
             fc = None
             point = np.clip(0.5 * sum(filt.passband_hz()), f_low, f_high)
-        return context.capped(filt.atten_db(point, fc, floored=floored), field, point)
+        return context.capped(filt.atten_db(point, fc), field, point)
 
     saved = analysis.band_atten, context.band_atten
     analysis.band_atten = context.band_atten = band_atten

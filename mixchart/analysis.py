@@ -603,7 +603,7 @@ def _evaluate_block(ctx: Context, rows: slice) -> _Block:
         out_atten = _Derived(_brick_wall_db, in_band)
         p_level = np.where(in_band, level, -np.inf)
     else:
-        out_atten = band_rel_atten(ctx, output_filter, p_low, p_high, f_out, out_filter_centre, out_field)
+        out_atten = band_rel_atten(output_filter, p_low, p_high, f_out, out_filter_centre, out_field)
         p_level = level - out_atten
     p_margin = margin[:, :k_p]
     if down or limits.n_pieces == 1:

@@ -106,7 +106,7 @@ def lo_h2_rejection_db(lo_filter: Filter | None, lo_hz: np.ndarray) -> float:
     return float(np.min(rel))
 
 
-def band_rel_atten(ctx: Context, filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,
+def band_rel_atten(filt: Filter, f_low: np.ndarray, f_high: np.ndarray, f_ref: np.ndarray,
                     centre: np.ndarray | None, field: str) -> np.ndarray:
     """Output-filter loss of product bands [f_low, f_high] (Cb, K) less its loss at the wanted output, dB.
 
@@ -118,13 +118,13 @@ def band_rel_atten(ctx: Context, filt: Filter, f_low: np.ndarray, f_high: np.nda
     return band_atten(filt, f_low, f_high, centre, field) - point_atten(filt, f_ref, centre, field)[:, None]
 
 
-def band_atten(filt: Filter, f_low: np.ndarray, f_high: np.ndarray, centre: np.ndarray | None, field: str,
-               *, floored: bool = True) -> np.ndarray:
+def band_atten(filt: Filter, f_low: np.ndarray, f_high: np.ndarray, centre: np.ndarray | None,
+               field: str) -> np.ndarray:
     """Least loss of ``filt`` over bands [f_low, f_high] (Cb, K), dB, capped; ``centre`` (Cb,) if it tracks."""
     fc = None
     if filt.tracks_channel and centre is not None:
         fc = np.broadcast_to(np.asarray(centre, dtype=float)[:, None], np.broadcast_shapes(f_low.shape, f_high.shape))
-    return capped(filt.least_atten_db(f_low, f_high, fc, floored=floored), field, f_low)
+    return capped(filt.least_atten_db(f_low, f_high, fc), field, f_low)
 
 
 def point_atten(filt: Filter, f_hz: np.ndarray, centre: np.ndarray | None, field: str) -> np.ndarray:
@@ -158,7 +158,7 @@ def mask_margins(ctx: Context, level: np.ndarray, filt: Filter | None, p_low: np
         if filt is None:
             atten = np.zeros(shape)
         else:
-            atten = band_rel_atten(ctx, filt, np.where(hit, low, p_low), np.where(hit, high, p_high), f_out, centre,
+            atten = band_rel_atten(filt, np.where(hit, low, p_low), np.where(hit, high, p_high), f_out, centre,
                                     field)
         piece_level = level - atten
         piece_margin = lim.pieces_limit[i] - piece_level
