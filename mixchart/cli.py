@@ -72,7 +72,7 @@ def _text_table(frame, top: int) -> str:
     lines = [
         f"{'kind':<8} {'label':<17} {'m':>2} {'n':>2} {'±':>1} {'channel':>{w_ch}} {'LO':>{w_lo}} "
         f"{'spur/input band':>{w_band}} {'level dBc':>10} {'rej. dB':>7} {'limit':>{w_lim}} {'margin':>7} "
-        f"{'extra RF':>8} {'extra IF':>8} {'drive':<12} loss limited by"
+        f"{'extra RF':>8} {'extra IF':>8} {'drive':<12} filter loss set by"
     ]
     for k, row in enumerate(shown.itertuples(index=False)):
         need_rf = "" if row.extra_rf_db != row.extra_rf_db else f"{row.extra_rf_db:8.1f}"
@@ -90,7 +90,7 @@ def _text_table(frame, top: int) -> str:
     lines.append("rej. dB: input-referred response rejection (how much stronger than the wanted an input must be "
                  "for an equal output); level dBc: at the output after the filters; drive: RF drive at the mixer, "
                  "(!) where the level table does not hold (over 10 dB above its reference, or near the LO drive); "
-                 "loss limited by: a filter floor (ultimate rejection; 'assumed' when not stated) or a data-span "
+                 "filter loss set by: a filter floor (ultimate rejection; 'assumed' when not stated) or a data-span "
                  "policy that set the row's filter loss")
     return "\n".join(lines)
 

@@ -474,3 +474,17 @@ def test_clicking_the_margin_plot_picks_the_channel(app: PlannerApp) -> None:
 
     app.chart.margin._trigger_event(Tap(app.chart.margin, x=95.04, y=0.0))
     assert app.state.view.channel_hz == pytest.approx(95.0e6)  # nearest channel on the 100 kHz raster
+
+
+def test_one_column_has_one_name_in_the_cli_the_app_the_hover_and_the_report(app: PlannerApp) -> None:
+    # Item 17: the filter-loss policy column reads the same on every surface (the report: test_report).
+    from mixchart.chart import _HOVER_POINTS
+    from mixchart.cli import _text_table
+
+    name = "filter loss set by"
+    ev = app.state.evaluation
+    assert name in app.channel_table.value
+    assert name in _text_table(ev.worst_row, 3)
+    assert any(label == name for label, _ in _HOVER_POINTS)
+    for other in ("loss limited by", "need RF", "more RF rej."):
+        assert other not in app.channel_table.value and other not in _text_table(ev.worst_row, 3)
