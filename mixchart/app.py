@@ -30,7 +30,8 @@ from pathlib import Path
 from typing import Any
 
 from .analysis import Evaluation
-from .chart import ChartHandle, ViewOptions, build_chart, chart_data, update_chart
+from .app_compare import ReferencePanel, compare_html
+from .chart import ChartHandle, build_chart, chart_data, update_chart
 from .errors import MixchartError
 from .plan import MAX_ORDER, Plan, dumps_plan, load_plan
 from .state import PlanState, example_plan
@@ -93,6 +94,8 @@ class Controls:
     show_clear: Any
     keep_ref: Any
     clear_ref: Any
+    ref_name: Any
+    ref_pick: Any
     save_path: Any
     undo: Any
     redo: Any
@@ -278,8 +281,15 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         value=plan.max_order, min=2, max=plan.max_order, description="orders shown", layout=_row(), style=style,
     )
     c["show_clear"] = w.Checkbox(value=True, description="show clear products", indent=False)
-    c["keep_ref"] = w.Button(description="Keep as reference", icon="thumb-tack", layout=w.Layout(width="146px"))
-    c["clear_ref"] = w.Button(description="Clear reference", layout=w.Layout(width="146px"))
+    c["ref_name"] = w.Text(value="", placeholder="name (blank: the plan's)", layout=w.Layout(width="170px"),
+                           continuous_update=False)
+    c["ref_name"].add_class("mixchart-ref-name")
+    c["keep_ref"] = w.Button(description="Keep as reference", layout=w.Layout(width="auto", min_width="150px"),
+                             tooltip="Keep the plan as it is now, under the name on the left, to compare with")
+    c["ref_pick"] = w.Dropdown(options=[], value=None, description="compare with", layout=w.Layout(width="334px"),
+                               style={"description_width": "90px"}, disabled=True)
+    c["clear_ref"] = w.Button(description="Drop reference", layout=w.Layout(width="auto", min_width="128px"),
+                              disabled=True, tooltip="Forget the reference shown")
     c["interferer"] = w.Text(
         value="" if plan.signal.interferer_level_dbm is None else f"{plan.signal.interferer_level_dbm:g}",
         description="interferer (dBm)", layout=_row(), style=style, continuous_update=False,
@@ -290,10 +300,10 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         value=plan.notes, description="notes", layout=w.Layout(width="300px", height="60px"), style=style,
         continuous_update=False,
     )
-    c["undo"] = w.Button(description="Undo", tooltip="Undo the last plan change", disabled=True,
-                         layout=w.Layout(width="146px"))
-    c["redo"] = w.Button(description="Redo", tooltip="Redo the change last undone", disabled=True,
-                         layout=w.Layout(width="146px"))
+    c["undo"] = w.Button(description="Undo", tooltip="Undo the last plan change (Ctrl+Z)", disabled=True,
+                         layout=w.Layout(width="100px"))
+    c["redo"] = w.Button(description="Redo", tooltip="Redo the change last undone (Ctrl+Shift+Z)", disabled=True,
+                         layout=w.Layout(width="100px"))
     c["save_path"] = w.Text(value="plan.json", description="file", layout=_row(), style=style,
                             placeholder="name, or a full path")
     c["save"] = w.Button(description="Save plan", button_style="primary", layout=w.Layout(width="146px"))
@@ -340,8 +350,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
         tabs.set_title(i, title)
     tabs.layout.width = "340px"
     # Compare sits under the tabs, always in view: it is what a design meeting reaches for.
-    compare = w.HBox([c["keep_ref"], c["clear_ref"]], layout=w.Layout(margin="6px 0 0 0"))
-    history = w.HBox([c["undo"], c["redo"]], layout=w.Layout(margin="4px 0 0 0"))
+    compare = w.VBox([w.HBox([c["ref_name"], c["keep_ref"]]), c["ref_pick"]], layout=w.Layout(margin="6px 0 0 0"))
+    history = w.HBox([c["clear_ref"], c["undo"], c["redo"]], layout=w.Layout(margin="4px 0 0 0"))
     panel = w.VBox([tabs, compare, history], layout=w.Layout(width="340px"))
     return Controls(rf_filter=rf_filter, if_filter=if_filter, errors=errors, panel=panel, **c)
 
@@ -523,7 +533,7 @@ class PlannerApp:
         self.channel_table.add_class("mixchart-channel-table")
         self.compare = w.HTML(value="")
         self.compare.add_class("mixchart-compare")
-        self.reference_chart: ChartHandle | None = None
+        self.reference_panel = ReferencePanel(self.chart, width=chart_width, height=470)
         self.reference_box = w.VBox([])
         title = w.HTML(
             "<div style='font-size:20px;font-weight:bold'>mixchart frequency planner</div>"
@@ -538,9 +548,9 @@ class PlannerApp:
                 # wraps the chart below the controls on narrow screens instead of cutting it off
                 w.HBox([self.controls.panel, self.bokeh], layout=w.Layout(flex_flow="row wrap")),
                 self.compare,
+                self.reference_box,
                 self.table,
                 self.channel_table,
-                self.reference_box,
             ]
         )
         self.widget.add_class("mixchart-app")
@@ -586,8 +596,9 @@ class PlannerApp:
         c.orders_shown.observe(lambda ch: self._view(max_order_shown=int(ch["new"])), names="value")
         c.undo.on_click(lambda _b: self._history_result(self.state.undo()))
         c.redo.on_click(lambda _b: self._history_result(self.state.redo()))
-        c.keep_ref.on_click(lambda _b: self.state.keep_reference())
+        c.keep_ref.on_click(lambda _b: self.state.keep_reference(c.ref_name.value))
         c.clear_ref.on_click(lambda _b: self.state.clear_reference())
+        c.ref_pick.observe(self._on_ref_pick, names="value")
         c.save.on_click(lambda _b: self.save(c.save_path.value))
         c.load.on_click(lambda _b: self._load_file(c.load_path.value.strip()))
         c.snapshot.on_click(lambda _b: self.snapshot())
@@ -881,6 +892,10 @@ class PlannerApp:
         with self._sync(), self.bokeh.batch():
             update_chart(self.chart, data)
             self._mark_stale()  # the titles were just reset from the data
+        if self.state.reference is not None:  # the reference follows the channel (and, by its panel, the zoom)
+            self.reference_panel.show(self.state.reference[1], self.state.view, data.meta)
+            if self.reference_box.children:
+                self.reference_box.children[0].value = self._reference_label()
         ev = self.state.evaluation
         i = data.meta["channel_index"]
         with self._sync():
@@ -904,36 +919,38 @@ class PlannerApp:
         self._refresh_compare()
 
     def _refresh_compare(self) -> None:
-        ref = self.state.reference
-        if ref is None:
-            self.compare.value = ""
-            return
-        self.compare.value = (
-            "<div style='display:flex;gap:24px'>"
-            + _summary_html("Reference", ref[1])
-            + _summary_html("Edited", self.state.evaluation)
-            + "</div>"
-        )
+        self.compare.value = compare_html(self.state.evaluation, self.state.references, self.state.reference_name)
+
+    def _on_ref_pick(self, change: dict) -> None:
+        if not self._syncing and change["new"] in self.state.references:
+            self.state.select_reference(change["new"])
+
+    def _reference_label(self) -> str:
+        name, plan = self.state.reference_name or "", self.state.reference[0]
+        return (f"<b>Reference \u201c{html.escape(name)}\u201d</b> ({html.escape(plan.name)}): "
+                f"{html.escape(self.reference_panel.note())}")
 
     def _refresh_reference(self) -> None:
-        ref = self.state.reference
+        c, state = self.controls, self.state
+        with self._sync():
+            c.ref_pick.options = list(state.references)
+            c.ref_pick.value = state.reference_name
+            c.ref_pick.disabled = c.clear_ref.disabled = not state.references
+            c.ref_name.value = ""
+        ref = state.reference
         if ref is None:
             self.reference_box.children = ()
         else:
             import ipywidgets as w
 
-            data = chart_data(ref[1], ViewOptions(normalised=self.state.view.normalised))
-            if self.reference_chart is None:
-                self.reference_chart = build_chart(data, width=600, height=400, prefix="reference_")
-                self._reference_widget = BatchedBokehModel(self.reference_chart.layout)
-            else:
-                with self._reference_widget.batch():
-                    update_chart(self.reference_chart, data, reset_ranges=True)
-            label = w.HTML(f"<b>Reference plan:</b> {html.escape(ref[0].name)}")
+            self.reference_panel.show(ref[1], state.view, self._last_meta)
+            label = w.HTML(f"<b>Reference “{html.escape(state.reference_name or '')}”</b> "
+                           f"({html.escape(ref[0].name)}): {html.escape(self.reference_panel.note())}")
+            label.add_class("mixchart-reference-label")
             table = w.HTML(_table_html(ref[1], caption="Reference: worst case of each product"),
                            layout=w.Layout(margin="0 0 0 16px"))
             table.add_class("mixchart-reference-table")
-            body = w.HBox([self._reference_widget, table], layout=w.Layout(flex_flow="row wrap"))
+            body = w.HBox([self.reference_panel.widget, table], layout=w.Layout(flex_flow="row wrap"))
             self.reference_box.children = (label, body)
         self._refresh_compare()
 

@@ -29,6 +29,8 @@ Listener = Callable[["PlanState", str], None]
 
 #: Plan changes kept for undo.
 MAX_UNDO = 200
+#: Reference plans kept for comparison (the oldest goes when one more is kept).
+MAX_REFERENCES = 8
 
 
 def default_save_dir() -> Path:
@@ -69,8 +71,10 @@ class PlanState:
         The current (always valid) plan.
     evaluation : Evaluation
         Its evaluation.
-    reference : tuple of (Plan, Evaluation) or None
-        The plan kept for comparison.
+    references : dict of str to (Plan, Evaluation)
+        The plans kept for comparison, by name, oldest first (at most :data:`MAX_REFERENCES`).
+    reference_name : str or None
+        The reference shown beside the plan (None: none kept).
     view : ViewOptions
         Channel, normalisation and shown orders.
     """
@@ -82,7 +86,8 @@ class PlanState:
         self.file_name = file_name
         self.plan = plan
         self.evaluation = evaluate(plan, base_dir=self.base_dir)
-        self.reference: tuple[Plan, Evaluation] | None = None
+        self.references: dict[str, tuple[Plan, Evaluation]] = {}
+        self.reference_name: str | None = None
         self.view = ViewOptions()
         self._listeners: list[Listener] = []
         # every plan change can be undone and redone: (plan, base_dir) before each change
@@ -233,16 +238,59 @@ class PlanState:
         return self.evaluation.nearest_channel(self.view.channel_hz)
 
     # ---------------------------------------------------------- reference
-    def keep_reference(self) -> None:
-        """Keep the current plan as the reference for comparison."""
-        self.reference = (self.plan, self.evaluation)
-        self._notify("reference")
+    @property
+    def reference(self) -> tuple[Plan, Evaluation] | None:
+        """The reference shown beside the plan, as ``(plan, evaluation)``, or None."""
+        return None if self.reference_name is None else self.references[self.reference_name]
 
-    def clear_reference(self) -> None:
-        """Forget the reference plan."""
-        if self.reference is not None:
-            self.reference = None
+    def keep_reference(self, name: str | None = None) -> str:
+        """Keep the current plan as a named reference and show it.
+
+        Parameters
+        ----------
+        name : str, optional
+            The reference's name; default the plan's name.  A name already kept
+            gets a number (``"... (2)"``); surrounding blanks are dropped.
+
+        Returns
+        -------
+        str
+            The name it was kept under.
+        """
+        base = (name or "").strip() or self.plan.name.strip() or "reference"
+        kept, k = base, 2
+        while kept in self.references:
+            kept, k = f"{base} ({k})", k + 1
+        self.references[kept] = (self.plan, self.evaluation)
+        while len(self.references) > MAX_REFERENCES:
+            del self.references[next(iter(self.references))]
+        self.reference_name = kept
+        self._notify("reference")
+        return kept
+
+    def select_reference(self, name: str | None) -> None:
+        """Show the reference kept as ``name`` (None: show none).
+
+        Raises
+        ------
+        MixchartError
+            If no reference has that name.
+        """
+        if name is not None and name not in self.references:
+            raise MixchartError(f"reference: {name!r} is not kept; kept: {', '.join(self.references) or 'none'}")
+        if name != self.reference_name:
+            self.reference_name = name
             self._notify("reference")
+
+    def clear_reference(self, name: str | None = None) -> None:
+        """Forget one reference (default: the one shown); the newest left is shown next."""
+        name = self.reference_name if name is None else name
+        if name is None or name not in self.references:
+            return
+        del self.references[name]
+        if self.reference_name == name:
+            self.reference_name = next(reversed(self.references), None)
+        self._notify("reference")
 
     # ---------------------------------------------------------- drag edits
     def apply_band_drag(self, band: str, low: float, high: float) -> str | None:

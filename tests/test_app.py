@@ -156,21 +156,77 @@ def test_filter_controls_build_a_valid_spec(app: PlannerApp) -> None:
 
 
 def test_compare_keeps_a_reference(app: PlannerApp) -> None:
-    app.state.keep_reference()
+    app.controls.ref_name.value = "high side"
+    app.controls.keep_ref.click()
     app.state.try_update({"lo.side": "low"})
-    assert "Reference" in app.compare.value and "Edited" in app.compare.value
-    assert "high-side" in app.compare.value and "low-side" in app.compare.value
+    text = app.compare.value
+    assert "edited plan" in text and "high side (shown)" in text
+    assert "high-side" in text and "low-side" in text  # each kept plan in words
+    assert "<code>lo.side</code> high \u2192 low" in text  # what changed
     _, body = app.reference_box.children
     chart, table = body.children
-    assert chart is app._reference_widget
+    assert chart is app.reference_panel.widget
     # the reference keeps its own worst-case table, led by its worst row
     reference = app.state.reference[1]
     ref_first_row = reference.to_frame().iloc[0]
     assert ref_first_row["margin_db"] == reference.summary.worst_margin_db
     assert ref_first_row["label"] in table.value and f"{ref_first_row['margin_db']:+.1f}" in table.value
     assert "Reference: worst case" in table.value
-    app.state.clear_reference()
+    app.controls.clear_ref.click()
     assert app.compare.value == "" and not app.reference_box.children
+    assert app.controls.ref_pick.disabled and app.controls.ref_pick.options == ()
+
+
+def test_several_named_references_and_the_delta_margin_table(app: PlannerApp) -> None:
+    # Item 16: several references, each named; the table lines the plans up row by row with a delta.
+    from mixchart.compare import compare_frame
+
+    c = app.controls
+    c.keep_ref.click()  # blank name: the plan's name
+    first = app.state.plan.name
+    assert list(app.state.references) == [first] and c.ref_pick.value == first
+    app.state.try_update({"if.center_hz": 21.4e6})
+    c.ref_name.value = "IF 21.4 MHz"
+    c.keep_ref.click()
+    app.state.try_update({"lo.side": "low"})
+    assert list(c.ref_pick.options) == [first, "IF 21.4 MHz"] and c.ref_pick.value == "IF 21.4 MHz"
+    assert c.ref_name.value == ""  # ready for the next name
+    c.ref_pick.value = first  # line the edited plan up against the first reference
+    assert app.state.reference_name == first
+    text = app.compare.value
+    assert "<code>if.center_hz</code> 10.7 MHz \u2192 21.4 MHz" in text and "<code>lo.side</code> high" in text
+    ref_ev, ev = app.state.reference[1], app.state.evaluation
+    delta = ev.summary.worst_margin_db - ref_ev.summary.worst_margin_db
+    assert f"\u0394 {delta:+.1f} dB".replace("-", "\u2212") in text  # the headline's answer
+    frame = compare_frame(ev, ref_ev)
+    row = frame[frame["label"] == "image"].iloc[0]
+    assert f"{row['delta_margin_db']:+.1f}" in text.split("mixchart-delta-table")[1]
+    # keeping the same name twice numbers it; dropping shows the newest left
+    c.ref_name.value = "IF 21.4 MHz"
+    c.keep_ref.click()
+    assert "IF 21.4 MHz (2)" in app.state.references and app.state.reference_name == "IF 21.4 MHz (2)"
+    c.clear_ref.click()
+    assert app.state.reference_name == "IF 21.4 MHz" and "IF 21.4 MHz (2)" not in c.ref_pick.options
+
+
+def test_the_reference_chart_follows_the_edited_channel_and_zoom(app: PlannerApp) -> None:
+    app.state.keep_reference("as it was")
+    app.state.try_update({"lo.side": "low"})
+    app.state.set_view(channel_hz=95e6)
+    ref = app.reference_panel.chart
+    assert app.reference_panel.same_zoom == {"tuning": True, "output": True}
+    assert "channel 95 MHz" in ref.output.title.text  # the same channel
+    # a zoom of the edited plane (as BokehJS reports it) moves the reference's plane with it
+    app.chart.tuning.x_range.start, app.chart.tuning.x_range.end = 90.0, 92.0
+    assert (ref.tuning.x_range.start, ref.tuning.x_range.end) == (90.0, 92.0)
+    app.chart.output.y_range.end = 11.0
+    assert ref.output.y_range.end == 11.0
+    # a reference whose output axes differ keeps its own output window, and the label says so
+    assert app.state.try_update({"if.center_hz": 455e3, "if.bandwidth_hz": 10e3, "filters.if": None}) is None
+    assert app.reference_panel.same_zoom == {"tuning": True, "output": False}
+    assert "output plane in its own window" in app.reference_box.children[0].value
+    app.chart.output.y_range.end = 0.5
+    assert ref.output.y_range.end != 0.5
 
 
 def test_save_load_reevaluates_to_what_the_screen_shows(app: PlannerApp, tmp_path) -> None:
@@ -488,3 +544,15 @@ def test_one_column_has_one_name_in_the_cli_the_app_the_hover_and_the_report(app
     assert any(label == name for label, _ in _HOVER_POINTS)
     for other in ("loss limited by", "need RF", "more RF rej."):
         assert other not in app.channel_table.value and other not in _text_table(ev.worst_row, 3)
+
+
+def test_references_are_capped_and_a_wrong_name_is_refused(app: PlannerApp) -> None:
+    from mixchart.errors import MixchartError
+    from mixchart.state import MAX_REFERENCES
+
+    names = [app.state.keep_reference(f"r{k}") for k in range(MAX_REFERENCES + 2)]
+    assert list(app.state.references) == names[2:]  # the oldest went
+    with pytest.raises(MixchartError, match=r"reference: 'nope' is not kept"):
+        app.state.select_reference("nope")
+    app.state.select_reference(None)
+    assert app.state.reference is None and not app.reference_box.children

@@ -479,15 +479,19 @@ def test_dragging_the_rf_band_moves_the_tuning_range(app):
 
 
 def test_keep_as_reference_then_low_side_shows_both_plans(app):
-    # Keep this test last in the file: the reference chart's BokehJS document stays in the page
-    # after Clear reference (the app reuses it for the next reference), and the helpers read
-    # sources from the newest document, so a test after it would read the reference's sources.
+    # Item 16: named references, the reference's chart at the same channel and zoom, a row-by-row
+    # table with a delta-margin column, and a headline that says what the edit bought.
     page = app.page
     _open_tab(page, "Plan")
     rows_high = _table_rows(page)
     status_high = _status_line(page)
-    # the compare buttons sit under the tabs, in view whatever tab is open
-    page.get_by_role("button", name="Keep as reference").click()
+    # the compare controls sit under the tabs, in view whatever tab is open; the label is whole
+    keep = page.get_by_role("button", name="Keep as reference")
+    assert keep.evaluate("(b) => b.scrollWidth <= b.clientWidth + 1")  # not truncated
+    name_field = page.locator(".mixchart-ref-name input")
+    name_field.fill("high side")
+    name_field.press("Tab")
+    keep.click()
     ref_rows = _wait_until(lambda: _table_rows(page, ".mixchart-reference-table"), "the reference table")
     assert ref_rows == rows_high  # the reference is the plan as it was kept
     _wait_until(lambda: "reference_tuning_plane" in bh.figure_names(page), "a second (reference) tuning plane")
@@ -495,18 +499,48 @@ def test_keep_as_reference_then_low_side_shows_both_plans(app):
 
     page.locator(".mixchart-side").locator("button", has_text="low side").click()
     compare = page.locator(".mixchart-compare")
-    _wait_until(lambda: "low-side" in compare.inner_text(), "the edited plan's summary")
+    _wait_until(lambda: "low-side" in compare.inner_text(), "the edited plan in the comparison")
     text = compare.inner_text()
-    # Reference (high side) and edited (low side) summaries side by side, each with its own verdict
-    assert "Reference" in text and "high-side" in text and status_high in text
-    assert "Edited" in text and _status_line(page) in text and _status_line(page) != status_high
+    assert "high side (shown)" in text and "high-side" in text and "low-side" in text
+    assert "What changed: lo.side high \u2192 low" in text
+    headline = page.locator(".mixchart-headline").inner_text()
+    assert re.match(r"Edited plan against \u201chigh side\u201d: worst margin \S+ \u2192 \S+ dB \(\u0394 \S+ dB\)",
+                    headline), headline
+    delta_rows = _table_rows(page, ".mixchart-delta")
+    assert delta_rows and all(len(r) == 7 for r in delta_rows[:-1])
+    for r in delta_rows[:-1]:  # delta = edited - reference, as shown
+        if "\u2014" not in (r[2], r[3]):
+            assert float(r[4]) == pytest.approx(float(r[3]) - float(r[2]), abs=0.11)
     assert _table_rows(page, ".mixchart-reference-table") == rows_high  # the reference does not follow the edit
     assert _table_rows(page) != rows_high
 
-    page.get_by_role("button", name="Clear reference").click()
+    # the reference shows the edited plan's channel, and follows a box zoom of the tuning plane
+    _wait_until(lambda: _figure_attr(page, "reference_output_plane", "title.text").split("(channel")[1]
+                == _figure_attr(page, "output_plane", "title.text").split("(channel")[1], "the same channel")
+    x0, x1 = _figure_attr(page, "tuning_plane", "x_range.start"), _figure_attr(page, "tuning_plane", "x_range.end")
+    y0, y1 = _figure_attr(page, "tuning_plane", "y_range.start"), _figure_attr(page, "tuning_plane", "y_range.end")
+    bh.data_to_screen(page, "tuning_plane", [(x0, y0)])  # scrolls the plane into view
+    page.locator(".bk-tool-icon-box-zoom").first.click()
+    bh.drag(page, "tuning_plane", (x0 + 0.2 * (x1 - x0), y0 + 0.2 * (y1 - y0)),
+            (x0 + 0.5 * (x1 - x0), y0 + 0.6 * (y1 - y0)))
+    zoomed = _wait_until(lambda: (z := _figure_attr(page, "tuning_plane", "x_range.end")) < x1 - 0.1 * (x1 - x0) and z,
+                         "the box zoom")
+    _wait_until(lambda: abs(_figure_attr(page, "reference_tuning_plane", "x_range.end") - zoomed) < 1e-9,
+                "the reference's tuning plane at the same zoom")
+    bh.screenshot(page, app.shots / "compare_low_vs_high.png")
+    size = page.viewport_size
+    page.set_viewport_size({"width": size["width"], "height": 4000})  # the whole app at once, for people to look at
+    bh.wait_for_bokeh_idle(page, min_roots=2)
+    page.screenshot(path=str(app.shots / "compare_whole_app.png"))
+    page.set_viewport_size(size)
+    for button in ("Keep as reference", "Drop reference"):
+        assert page.get_by_role("button", name=button).evaluate("(b) => b.scrollWidth <= b.clientWidth + 1"), button
+    page.locator(".bk-tool-icon-reset").first.click()
+
+    page.get_by_role("button", name="Drop reference").click()
     _wait_until(
         lambda: not _table_rows(page, ".mixchart-reference-table") and not compare.inner_text().strip(),
-        "the reference cleared",
+        "the reference dropped",
     )
     page.locator(".mixchart-side").locator("button", has_text="high side").click()
     _wait_until(lambda: _status_line(page) == status_high, "the high-side plan again")
