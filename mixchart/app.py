@@ -31,6 +31,7 @@ from typing import Any
 
 from .analysis import Evaluation
 from .app_compare import ReferencePanel, compare_html
+from .app_messages import on_screen, screen_labels
 from .chart import ChartHandle, build_chart, chart_data, update_chart
 from .errors import MixchartError
 from .plan import MAX_ORDER, Plan, dumps_plan, load_plan
@@ -560,6 +561,10 @@ class PlannerApp:
         state.observe(self._on_state)
         self._refresh_all()
 
+    def _error(self, text: str) -> str:
+        """A message as HTML, led by the on-screen label of the field it names."""
+        return _error_html(on_screen(text, screen_labels(self.controls)) if text else "")
+
     # ---------------------------------------------------------------- wiring
     def _wire(self) -> None:
         c = self.controls
@@ -617,10 +622,10 @@ class PlannerApp:
                 try:
                     value = parse_frequency(text, _TEXT_FIELDS[key][1])
                 except MixchartError as exc:
-                    self.controls.errors[key].value = _error_html(str(exc))
+                    self.controls.errors[key].value = self._error(str(exc))
                     return
             error = self.state.try_update({path: value})
-            self.controls.errors[key].value = _error_html(error or "")
+            self.controls.errors[key].value = self._error(error or "")
             if error is None:
                 self.controls.errors["plan"].value = ""
 
@@ -631,7 +636,7 @@ class PlannerApp:
             if self._syncing:
                 return
             error = self.state.try_update({path: change["new"]})
-            self.controls.errors[error_key].value = _error_html(error or "")
+            self.controls.errors[error_key].value = self._error(error or "")
 
         return handler
 
@@ -646,7 +651,7 @@ class PlannerApp:
         else:
             changes = {"lo.mode": "tracking", "lo.fixed_hz": None}
         error = self.state.try_update(changes)
-        self.controls.errors["plan"].value = _error_html(error or "")
+        self.controls.errors["plan"].value = self._error(error or "")
         if error:
             with self._sync():
                 self.controls.lo_mode.value = self.state.plan.lo.mode
@@ -663,12 +668,12 @@ class PlannerApp:
             try:
                 value = None if text == "" else round(float(text), 2)
             except ValueError:
-                self.controls.errors[box].value = _error_html(
+                self.controls.errors[box].value = self._error(
                     f"{path}: {text!r} is invalid; give a level in dBm, or leave it blank"
                 )
                 return
             error = self.state.try_update({path: value})
-            self.controls.errors[box].value = _error_html(error or "")
+            self.controls.errors[box].value = self._error(error or "")
 
         return handler
 
@@ -679,7 +684,7 @@ class PlannerApp:
             value = round(float(change["new"]), digits)  # sliders drift: 1.9999999999999998
             key = "mixer" if path.startswith("mixer") else "plan"
             error = self.state.try_update({path: value})
-            self.controls.errors[key].value = _error_html(error or "")
+            self.controls.errors[key].value = self._error(error or "")
 
         return handler
 
@@ -731,7 +736,7 @@ class PlannerApp:
             try:
                 spec = json.loads(text)
             except json.JSONDecodeError as exc:
-                fc.error.value = _error_html(f"filters.{name}: malformed JSON ({exc.msg} at column {exc.colno})")
+                fc.error.value = self._error(f"filters.{name}: malformed JSON ({exc.msg} at column {exc.colno})")
                 return
             self._apply_filter(name, fc, spec)
 
@@ -739,7 +744,7 @@ class PlannerApp:
 
     def _apply_filter(self, name: str, fc: FilterControls, spec: dict[str, Any] | None) -> None:
         error = self.state.try_update({f"filters.{name}": spec})
-        fc.error.value = _error_html(error or "")
+        fc.error.value = self._error(error or "")
 
     def _on_channel(self, change: dict) -> None:
         if self._syncing:
@@ -783,7 +788,7 @@ class PlannerApp:
             else:
                 band = "rf" if down else "if"
             error = self.state.apply_band_drag(band, low * scale, high * scale)
-            self.controls.errors["plan"].value = _error_html(error or "")
+            self.controls.errors["plan"].value = self._error(error or "")
             if error is not None:
                 self._refresh_chart()  # put the band back where the plan has it
 
@@ -820,7 +825,7 @@ class PlannerApp:
         self.status.value = status
 
     def _history_result(self, error: str | None) -> None:
-        self.controls.errors["plan"].value = _error_html(error or "")
+        self.controls.errors["plan"].value = self._error(error or "")
 
     def _load_file(self, path: str) -> None:
         error = self.state.load_path(path)
@@ -830,7 +835,7 @@ class PlannerApp:
         if error is None:
             with self._sync():
                 self.controls.save_path.value = self.state.file_name  # the file-name field follows the plan
-        self.controls.file_msg.value = _error_html(error) if error else html.escape(done)
+        self.controls.file_msg.value = self._error(error) if error else html.escape(done)
 
     # ------------------------------------------------------------ actions
     def save(self, path: str | None = None) -> Path | None:
@@ -839,7 +844,7 @@ class PlannerApp:
         try:
             written = self.state.save(path or self.controls.save_path.value.strip() or None)
         except (MixchartError, OSError) as exc:
-            self.controls.file_msg.value = _error_html(f"save: {exc}")
+            self.controls.file_msg.value = self._error(f"save: {exc}")
             return None
         self.controls.file_msg.value = (
             f"saved <code class='mixchart-saved-path'>{html.escape(str(written))}</code><br>"
@@ -861,7 +866,7 @@ class PlannerApp:
             )
             data = written.read_bytes()
         except (MixchartError, OSError) as exc:
-            self.controls.file_msg.value = _error_html(f"snapshot: {exc}")
+            self.controls.file_msg.value = self._error(f"snapshot: {exc}")
             return None
         self.controls.file_msg.value = (
             f"wrote <code class='mixchart-saved-path'>{html.escape(str(written))}</code><br>"

@@ -556,3 +556,22 @@ def test_references_are_capped_and_a_wrong_name_is_refused(app: PlannerApp) -> N
         app.state.select_reference("nope")
     app.state.select_reference(None)
     assert app.state.reference is None and not app.reference_box.children
+
+
+def test_messages_name_the_field_by_its_on_screen_label(app: PlannerApp) -> None:
+    # Item 10: the engine names a field by its JSON path; the screen leads with the label the user reads.
+    import html as html_lib
+
+    c = app.controls
+    c.max_order.value = 999
+    assert html_lib.escape("max order (max_order): 999 is invalid; must be <= 25") in c.errors["plan"].value
+    assert app.state.plan.max_order == 7  # refused, not clamped
+    c.rf_start.value = "120 MHz"
+    assert "RF stop (rf.stop_hz): 108 MHz is below" in c.errors["rf_start"].value
+    c.rf_start.value = "88 MHz"
+    c.if_filter.kind.value = "butterworth"
+    c.if_filter.bandwidth.value = "-5 kHz"
+    assert "IF filter bandwidth (filters.if.bandwidth_hz):" in c.if_filter.error.value
+    c.if_filter.spec_json.value = ('{"kind": "brickwall", "response": "bandpass", "f_center_hz": 10.7e6, '
+                                   '"bandwidth_hz": 2e5, "centre_hz": 1}')
+    assert "IF filter (filters.if.centre_hz): unknown key" in c.if_filter.error.value

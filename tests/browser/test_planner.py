@@ -404,6 +404,18 @@ def test_bad_entry_shows_a_message_and_keeps_the_chart(app):
     error.wait_for(state="detached")
     _wait_until(lambda: _status(page) == status0, "the banner without the mark")
     assert _canon(_sources(page)) == _canon(before)
+
+    # a value beyond a limit is refused with a message that names the field as the screen does
+    order = page.locator(".mixchart-max-order input")
+    order.fill("999")
+    order.press("Enter")
+    plan_error = page.locator(".mixchart-error", has_text="max order")
+    plan_error.wait_for()
+    assert plan_error.inner_text().startswith("max order (max_order): 999 is invalid; must be <= 25")
+    assert _canon(_sources(page)) == _canon(before)  # not clamped: the plan is as it was
+    order.fill("7")
+    order.press("Enter")
+    plan_error.wait_for(state="detached")
     _assert_clean(page)
 
 
