@@ -502,7 +502,7 @@ def test_a_max_order_beyond_its_limit_is_refused_with_a_message_not_clamped(app:
     app.controls.max_order.value = 999
     assert app.state.plan == before  # refused: the last valid plan stays
     message = app.controls.errors["plan"].value
-    assert "max_order: 999 is invalid" in message and "25" in message
+    assert "max order (max_order): 999 is invalid" in message and "25" in message
     app.controls.max_order.value = 9
     assert app.state.plan.max_order == 9 and app.controls.errors["plan"].value == ""
 
