@@ -31,6 +31,7 @@ from typing import Any
 
 from .analysis import Evaluation
 from .app_compare import ReferencePanel, compare_html
+from .app_keys import attach_keys
 from .app_messages import on_screen, screen_labels
 from .chart import ChartHandle, build_chart, chart_data, update_chart
 from .errors import MixchartError
@@ -522,6 +523,7 @@ class PlannerApp:
         # before the widget is made: the browser learns which UI events to send from its first render
         self.chart.tuning.on_event(Tap, self._on_tap)
         self.chart.margin.on_event(Tap, self._on_tap)  # the margin plot shares the tuning plane's RF axis
+        self.key_commands = attach_keys(self.chart.layout, self._on_key)
         self.bokeh = BatchedBokehModel(self.chart.layout)
         self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
         self.status = w.HTML(value="")
@@ -560,6 +562,10 @@ class PlannerApp:
             box.observe(lambda _change: self._mark_stale(), names="value")
         state.observe(self._on_state)
         self._refresh_all()
+
+    def _on_key(self, command: str) -> None:
+        """Ctrl+Z / Ctrl+Shift+Z from the page: as the Undo and Redo buttons."""
+        self._history_result(self.state.undo() if command == "undo" else self.state.redo())
 
     def _error(self, text: str) -> str:
         """A message as HTML, led by the on-screen label of the field it names."""

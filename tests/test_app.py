@@ -575,3 +575,19 @@ def test_messages_name_the_field_by_its_on_screen_label(app: PlannerApp) -> None
     c.if_filter.spec_json.value = ('{"kind": "brickwall", "response": "bandpass", "f_center_hz": 10.7e6, '
                                    '"bandwidth_hz": 2e5, "centre_hz": 1}')
     assert "IF filter (filters.if.centre_hz): unknown key" in c.if_filter.error.value
+
+
+def test_the_undo_keys_reach_the_state_once_per_press(app: PlannerApp) -> None:
+    # Item 3: Ctrl+Z / Ctrl+Shift+Z arrive as edits of the key_commands source (see mixchart/app_keys.py)
+    assert "key_commands" not in app.chart.sources and app.key_commands.name == "key_commands"
+    app.state.try_update({"lo.side": "low"})
+    source = app.key_commands
+    content = {"event": "jsevent", "kind": "ModelChanged", "model": {"id": source.id}, "attr": "data",
+               "new": Serializer().encode({"command": ["undo"], "n": [1]})}
+    app.bokeh._sync_model(app.bokeh, dict(content), [])
+    assert app.state.plan.lo.side == "high"
+    app.bokeh._sync_model(app.bokeh, dict(content), [])  # the same press again (delivered twice): no step
+    assert app.state.plan.lo.side == "high" and app.state.can_redo
+    content["new"] = Serializer().encode({"command": ["redo"], "n": [2]})
+    app.bokeh._sync_model(app.bokeh, dict(content), [])
+    assert app.state.plan.lo.side == "low"

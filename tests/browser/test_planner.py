@@ -672,6 +672,24 @@ def test_undo_and_redo_buttons_step_through_plan_changes(app):
     undo.click()  # leave the page as it was
     _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == start, "the side undone again")
     bh.screenshot(page, app.shots / "planner_undo_redo.png", full_page=False)
+
+    # the keys do the same: Ctrl+Z undoes, Ctrl+Shift+Z redoes (after a click on the page, not in a field)
+    side.locator("button", has_text=other).click()
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == other, "the other side again")
+    page.locator(".mixchart-status").click()
+    page.keyboard.press("Control+z")
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == start, "the side undone by Ctrl+Z")
+    page.keyboard.press("Control+Shift+z")
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == other, "redone by Ctrl+Shift+Z")
+    # in a text field Ctrl+Z is the field's own undo: the plan stays
+    field = page.locator(".mixchart-if-center input")
+    field.click()
+    page.keyboard.press("Control+z")
+    page.wait_for_timeout(600)
+    assert side.locator("button.mod-active").inner_text().strip() == other
+    page.locator(".mixchart-status").click()
+    page.keyboard.press("Control+z")
+    _wait_until(lambda: side.locator("button.mod-active").inner_text().strip() == start, "the page left as it was")
     _assert_clean(page)
 
 
