@@ -492,6 +492,18 @@ def _warnings_html(ev: Evaluation) -> str:
             f"{items}</ul></details>")
 
 
+#: Page styles of the app: the sticky banner (verdict and warnings).
+_APP_CSS = """<style>
+.mixchart-banner { position: sticky; top: 0; z-index: 20; background: #FFFFFF;
+                   border-bottom: 1px solid #D5DAE0; padding: 2px 0 4px 0;
+                   box-shadow: 0 -16px 0 #FFFFFF; /* covers the scroller's top padding above it */ }
+.mixchart-app, .mixchart-app > .widget-box { overflow: visible !important; }
+/* the notebook's output area scrolls its own overflow, which would hold the banner: let the page scroll */
+.jp-OutputArea:has(.mixchart-app), .jp-OutputArea-child:has(.mixchart-app),
+.jp-OutputArea-output:has(.mixchart-app) { overflow: visible !important; }
+</style>"""
+
+
 class PlannerApp:
     """Widgets and chart wired to a :class:`PlanState`.
 
@@ -528,7 +540,7 @@ class PlannerApp:
         self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
         self.status = w.HTML(value="")
         self.status.add_class("mixchart-status")
-        self.warnings = w.HTML(value="", layout=w.Layout(max_height="140px", overflow="auto"))
+        self.warnings = w.HTML(value="", layout=w.Layout(max_height="104px", overflow="auto"))
         self.warnings.add_class("mixchart-warnings")
         self.table = w.HTML(value="")
         self.table.add_class("mixchart-worst-table")
@@ -543,11 +555,15 @@ class PlannerApp:
             "<div style='font-size:12px;color:#555'>Levels are model estimates. Emission limits are set by local "
             "rules and licensed practice; check the plan against them.</div>"
         )
+        # the verdict and the warnings stay in view while the page scrolls (a sticky banner)
+        self.banner = w.VBox([self.status, self.warnings], layout=w.Layout(overflow="visible"))
+        self.banner.add_class("mixchart-banner")
+        style = w.HTML(_APP_CSS, layout=w.Layout(height="0px", overflow="hidden", margin="0"))
         self.widget = w.VBox(
             [
+                style,
                 title,
-                self.status,
-                self.warnings,
+                self.banner,
                 # wraps the chart below the controls on narrow screens instead of cutting it off
                 w.HBox([self.controls.panel, self.bokeh], layout=w.Layout(flex_flow="row wrap")),
                 self.compare,
@@ -556,6 +572,7 @@ class PlannerApp:
                 self.channel_table,
             ]
         )
+        self.widget.layout.overflow = "visible"  # so the banner sticks to the page's scrolling, not the box's
         self.widget.add_class("mixchart-app")
         self._wire()
         for box in self.controls.errors.values():

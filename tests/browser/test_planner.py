@@ -605,6 +605,33 @@ def test_every_warning_is_on_screen_under_the_verdict_and_follows_the_plan(app):
     _assert_clean(page)
 
 
+def test_the_verdict_and_warnings_stay_in_view_while_the_page_scrolls(app):
+    # Item 11: a sticky banner. Scroll down to the worst-case table: the PASS/FAIL line is still in view.
+    page = app.page
+    size = page.viewport_size
+    page.set_viewport_size({"width": 1280, "height": 720})
+    try:
+        page.locator(".mixchart-worst-table").scroll_into_view_if_needed()
+        page.mouse.wheel(0, 600)
+        page.wait_for_timeout(300)
+        table_top = page.locator(".mixchart-worst-table").evaluate("(e) => e.getBoundingClientRect().top")
+        banner = page.locator(".mixchart-banner").evaluate(
+            "(e) => { const r = e.getBoundingClientRect(); return [r.top, r.bottom]; }")
+        scrolled = page.evaluate("() => Math.max(window.scrollY, document.scrollingElement.scrollTop,"
+                                 " ...[...document.querySelectorAll('*')].map((e) => e.scrollTop))")
+        assert scrolled > 300  # the page did scroll
+        assert -1 <= banner[0] <= 16 and banner[1] < 720 * 0.35, banner  # at the top, and not a wall
+        assert table_top < 720
+        status = page.locator(".mixchart-status")
+        x, y = status.evaluate("(e) => { const r = e.getBoundingClientRect(); return [r.left + 20, r.top + 8]; }")
+        assert page.evaluate("([x, y]) => !!document.elementFromPoint(x, y).closest('.mixchart-status')", [x, y])
+        page.screenshot(path=str(app.shots / "planner_scrolled_banner_1280x720.png"))
+    finally:
+        page.evaluate("() => { window.scrollTo(0, 0);"
+                      " document.querySelectorAll('*').forEach((e) => e.scrollTop = 0); }")
+        page.set_viewport_size(size)
+
+
 def test_lo_mode_switches_to_fixed_and_back_without_an_error(app):
     # Item 4: "fixed" enables the fixed-LO field and fills it with the current channel's LO;
     # "tracking" drops the fixed value and keeps the injection side.
