@@ -316,6 +316,7 @@ def measure_key_to_repaint(
     settle_ms: float = 150.0,
     timeout_ms: float = 30_000,
     details: bool = False,
+    focus_selector: str | None = None,
 ):
     """Time slider key press -> Bokeh repaint, ``n`` times.
 
@@ -343,6 +344,9 @@ def measure_key_to_repaint(
         Per-press timeout in ms.
     details : bool
         Return dicts with the split instead of plain numbers.
+    focus_selector : str, optional
+        Click this element instead of focusing the slider (``slider_selector`` is then
+        ignored), e.g. to time Ctrl+Z on the page.
 
     Returns
     -------
@@ -355,8 +359,10 @@ def measure_key_to_repaint(
     """
     _ensure(page)
     page.evaluate("(name) => window.__mxt.hookPlot(name)", figure_name)
-    handle = slider_handle(page, slider_selector)
-    handle.focus()
+    if focus_selector is None:
+        slider_handle(page, slider_selector).focus()
+    else:
+        page.locator(focus_selector).first.click()
     out = []
     for i in range(n):
         page.evaluate("() => window.__mxt.arm()")
