@@ -32,10 +32,19 @@ from .plan import Plan, dumps_plan
 from .requirements import resolve_limits
 from .units import format_frequency
 
-__all__ = ["report_html", "write_report", "TOP_ROWS"]
+__all__ = ["report_html", "write_report", "TOP_ROWS", "DISPLAY_FLOOR_DBC", "COLLAPSE_MARGIN_DB"]
 
-#: Rows of the worst-case table.
+#: Rows of the worst-case table listed one by one, unless more rows fail or are close (those are always listed).
 TOP_ROWS = 40
+#: Levels below this are shown as "< −150 dBc", dBc.  Display only: every margin is computed from the true
+#: level.  Common practice, no source: a model's numbers far below any measurable level mean nothing more.
+DISPLAY_FLOOR_DBC = -150.0
+#: Worst-case rows clear of their requirement by this much or more are collapsed under a count, dB.
+#: (Far above :data:`~mixchart.chart.CLOSE_DB`, so a failing or close row is never collapsed.)
+COLLAPSE_MARGIN_DB = 40.0
+#: Printable width the print layout is made for: A4's 190 mm between 10 mm side margins, in CSS px
+#: (96 px/in).  US Letter's is wider (196 mm).
+PRINT_WIDTH_PX = 718
 #: Failing-channel runs listed before the rest are only counted.
 MAX_RUNS = 20
 
@@ -64,12 +73,26 @@ td.cat { border-left: 10px solid var(--cat); background: color-mix(in srgb, var(
 .key b { display: inline-block; width: 1em; height: 1em; vertical-align: -.12em; margin-right: .3em; }
 .caution { border: 3px solid var(--ink); padding: .7rem 1rem; font-weight: 600; margin: 1.5rem 0; }
 .chart { overflow-x: auto; margin: .5rem 0; }
+details.tail summary { cursor: pointer; margin: .4rem 0; font-weight: 600; }
 pre { font-size: .8rem; background: var(--zebra); border: 1px solid var(--rule); padding: .8rem;
   white-space: pre-wrap; word-break: break-all; }
 footer { margin-top: 2rem; border-top: 1px solid var(--rule); padding-top: .5rem; }
 @media print {
-  @page { size: A4 landscape; margin: 12mm; } body { font-size: 11pt; max-width: none; padding: 0; }
-  h2 { break-after: avoid; } tr, .card, .caution { break-inside: avoid; } .chart { overflow: visible; }
+  /* portrait on the paper the printer holds (A4 or US Letter); the width planned for is A4's
+     190 mm between the side margins (718 px at 96 px/in); Letter's is 196 mm */
+  @page { size: portrait; margin: 12mm 10mm; }
+  body { font-size: 10pt; max-width: none; padding: 0; } h1 { font-size: 17pt; }
+  h2 { font-size: 13pt; margin-top: 1.2rem; break-after: avoid; }
+  .card .state { font-size: 13pt; } .card .line { font-size: 10pt; } .cards { grid-template-columns: 1fr; }
+  tr, .card, .caution, li, .key, summary { break-inside: avoid; } thead { display: table-header-group; }
+  table { width: 100%; font-size: 7.5pt; } table.words { font-size: 8.5pt; }
+  th, td { padding: .15rem .3rem; overflow-wrap: break-word; } td .note { font-size: .9em; }
+  td.band { white-space: normal; } td.cat { border-left-width: 6px; }
+  .chart { overflow: visible; break-inside: avoid; } .note:has(+ .chart) { break-after: avoid; }
+  pre { font-size: 7pt; }
+  details.tail > :not(summary) { display: none; } details.tail summary { list-style: none; }
+  details.tail summary::-webkit-details-marker { display: none; }
+  details.tail summary::after { content: " (listed in the HTML file)"; color: var(--muted); }
   th, td.cat, .card, .key b { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 }
 """
@@ -79,16 +102,25 @@ def _e(text: Any) -> str:
     return html.escape(str(text), quote=True)
 
 
+def _minus(value: float) -> str:
+    """A number as the reader sees it: a real minus sign (U+2212), not a hyphen."""
+    return f"{value:g}".replace("-", "−")
+
+
 def _db(value: float, unit: str = "dB", *, sign: bool = False) -> str:
+    """A level or margin for the page; a dBc level below :data:`DISPLAY_FLOOR_DBC` as "< −150 dBc"."""
     if not math.isfinite(value):
         return ("+∞" if value > 0 else "−∞") + f" {unit}"
     if unit == "dBc" and value <= FLOOR_DBC + 1:
         return "vanishes"
+    if unit == "dBc" and value < DISPLAY_FLOOR_DBC:
+        return f"&lt; {_minus(DISPLAY_FLOOR_DBC)} dBc"
     return f"{value:+.1f} {unit}" if sign else f"{value:.1f} {unit}"
 
 
 def _band(f_low_hz: float, f_high_hz: float) -> str:
-    low, high = format_frequency(f_low_hz, 7), format_frequency(f_high_hz, 7)
+    # a no-break space inside each frequency: a narrow (printed) column breaks only around the dash
+    low, high = (format_frequency(f, 7).replace(" ", "\u00a0") for f in (f_low_hz, f_high_hz))
     return low if low == high else f"{low} – {high}"
 
 
@@ -183,32 +215,53 @@ def _summary_card(title: str | None, ev: Evaluation) -> str:
             f'<p class="line">{_e(s.line().split(": ", 1)[1])}</p></div>')  # the state is shown above it
 
 
+def _split_rows(frame: Any, top: int) -> tuple[Any, Any]:
+    """Split the worst-case rows into (listed, collapsed), each in margin order.
+
+    Collapsed: every row clear by :data:`COLLAPSE_MARGIN_DB` or more, and the clear rows beyond the
+    first ``top`` listed.  A failing or close row (margin under ``CLOSE_DB``, or not a number) is
+    always listed, however many there are.
+    """
+    margin = frame["margin_db"].to_numpy(dtype=float)
+    keep = ~(margin >= CLOSE_DB)  # failing, close or NaN: always listed
+    keep |= (margin < COLLAPSE_MARGIN_DB) & (np.cumsum(~keep) <= max(top - int(keep.sum()), 0))
+    return frame[keep], frame[~keep]
+
+
+def _row_cells(r: Any) -> str:
+    cat = _category(r.margin_db)
+    extra = ["" if not math.isfinite(v) else _db(v) for v in (r.extra_rf_db, r.extra_if_db)]
+    # responses: the input-referred rejection; products: the output level is the figure judged
+    rejection = _db(r.rejection_db) if r.kind == "response" else ""
+    drive = "" if r.drive_ok else " <span class=note>(drive beyond the table)</span>"
+    if r.loss_limit:  # a filter floor or a data-span policy set the filter loss (user text escaped)
+        drive += f" <span class=note>(loss set by {_e(r.loss_limit)})</span>"
+    cells = [
+        f"<td>{_e(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic})&nbsp;{'+' if r.sign > 0 else '−'}</td>",
+        f"<td>{_e(r.kind)}</td><td class=num>{_e(format_frequency(r.channel_hz, 7))}</td>",
+        f'<td class="num band">{_e(_band(r.f_low_hz, r.f_high_hz))}</td>',
+        f"<td class=num>{_db(r.level_dbc, 'dBc')}</td><td class=num>{rejection}</td>",
+        f"<td>{_e(r.requirement)}{drive}</td>",
+        f'<td class="num cat" style="--cat:{CATEGORIES[cat][1]}">{_db(r.margin_db, sign=True)}</td>',
+        f"<td class=num>{extra[0]}</td><td class=num>{extra[1]}</td>",
+    ]
+    return "<tr>" + "".join(cells) + "</tr>"
+
+
 def _worst_table(ev: Evaluation, top: int) -> str:
-    frame = ev.to_frame()
     head = ["label", "(m,n)", "kind", "channel", "spur / input band", "level", "rejection", "requirement",
             "margin", "extra RF", "extra IF"]
-    rows = []
-    for r in frame.head(top).itertuples(index=False):
-        cat = _category(r.margin_db)
-        extra = ["" if not math.isfinite(v) else _db(v) for v in (r.extra_rf_db, r.extra_if_db)]
-        # responses: the input-referred rejection; products: the output level is the figure judged
-        rejection = _db(r.rejection_db) if r.kind == "response" else ""
-        drive = "" if r.drive_ok else " <span class=note>(drive beyond the table)</span>"
-        if r.loss_limit:  # a filter floor or a data-span policy set the filter loss (user text escaped)
-            drive += f" <span class=note>(loss set by {_e(r.loss_limit)})</span>"
-        cells = [
-            f"<td>{_e(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic}) {'+' if r.sign > 0 else '−'}</td>",
-            f"<td>{_e(r.kind)}</td><td class=num>{_e(format_frequency(r.channel_hz, 7))}</td>",
-            f"<td class=num>{_e(_band(r.f_low_hz, r.f_high_hz))}</td>",
-            f"<td class=num>{_db(r.level_dbc, 'dBc')}</td><td class=num>{rejection}</td>",
-            f"<td>{_e(r.requirement)}{drive}</td>",
-            f'<td class="num cat" style="--cat:{CATEGORIES[cat][1]}">{_db(r.margin_db, sign=True)}</td>',
-            f"<td class=num>{extra[0]}</td><td class=num>{extra[1]}</td>",
-        ]
-        rows.append("<tr>" + "".join(cells) + "</tr>")
-    more = f"<p class=note>{len(frame) - top} more products/responses not shown.</p>" if len(frame) > top else ""
-    return ("<table><thead><tr>" + "".join(f"<th>{h}</th>" for h in head) + "</tr></thead><tbody>"
-            + "".join(rows) + "</tbody></table>" + more)
+    thead = "<thead><tr>" + "".join(f"<th>{h}</th>" for h in head) + "</tr></thead>"
+    listed, tail = _split_rows(ev.to_frame(), top)
+    page = (f"<table class=worst>{thead}<tbody>"
+            + "".join(_row_cells(r) for r in listed.itertuples(index=False)) + "</tbody></table>")
+    if len(tail):
+        # the collapsed rows are all clear by at least this (rounded down, so the words stay true)
+        bound = min(COLLAPSE_MARGIN_DB, float(np.floor(tail["margin_db"].min() * 10) / 10))
+        page += (f"<details class=tail><summary>and {len(tail)} more row{'s' if len(tail) != 1 else ''}, "
+                 f"all clear by ≥ {bound:g} dB</summary><table class=worst>{thead}<tbody>"
+                 + "".join(_row_cells(r) for r in tail.itertuples(index=False)) + "</tbody></table></details>")
+    return page
 
 
 def _failing_runs(ev: Evaluation) -> str:
@@ -238,12 +291,31 @@ def _failing_runs(ev: Evaluation) -> str:
 
 def _snapshot_chart(ev: Evaluation, view: ViewOptions) -> Any:
     """The chart's layout, with the band-editing tools removed (nothing recomputes in a static file)."""
-    from bokeh.models import BoxEditTool
+    from bokeh.models import BoxEditTool, InlineStyleSheet
 
     handle = build_chart(chart_data(ev, view))
     for fig in (handle.tuning, handle.output):
         fig.toolbar.tools = [t for t in fig.toolbar.tools if not isinstance(t, BoxEditTool)]
         fig.toolbar.active_drag = "auto"
+
+    def add(model: Any, css: str) -> None:  # a print rule inside the model's shadow root (page CSS stops outside)
+        model.stylesheets = [*model.stylesheets, InlineStyleSheet(css=f"@media print {{ {css} }}")]
+
+    # Print: the chart as drawn, scaled down to the printable width.  A transform, because BokehJS
+    # watches its boxes' sizes and redraws a plot at the size it measures, and a transform changes no
+    # box (a zoom or a changed layout would have the plots redrawn small, then shrunk again).  The
+    # negative margins hand the space the scaled chart no longer covers back to the page (the legend's
+    # few pixels excepted: its height is the browser's).  contain: (empty) overlay boxes BokehJS places
+    # off a plot (clipped on screen) would otherwise widen the printed page, so that Chromium shrinks all
+    # of it, or add blank pages at the end.  Toolbars do nothing on paper.
+    width = max(handle.tuning.width + handle.output.width, handle.margin.width)
+    height = max(handle.tuning.height, handle.output.height) + handle.margin.height
+    scale = min(1.0, PRINT_WIDTH_PX / width)
+    add(handle.layout, f":host {{ transform: scale({scale:.4f}); transform-origin: 0 0;"
+                       f" margin: 0 {(scale - 1) * width:.1f}px {(scale - 1) * height:.1f}px 0 !important; }}")
+    for fig in (handle.tuning, handle.output, handle.margin):
+        add(fig, ":host { contain: size layout; }")  # the figures' sizes are fixed: size containment changes none
+        add(fig.toolbar, ":host { visibility: hidden; }")
     return handle.layout
 
 
@@ -328,6 +400,10 @@ def report_html(plan: Plan, *, base_dir: str | os.PathLike[str] | None = None, e
     body += [f'<section class="cards">{cards}</section>', "<h2>The plan</h2>",
              f'<table class="words">{"<thead><tr><th></th>" + head + "</tr></thead>" if head else ""}'
              f"<tbody>{word_rows}</tbody></table>"]
+    rules = (f"<p class=note>Levels below {_minus(DISPLAY_FLOOR_DBC)} dBc are shown as &lt; "
+             f"{_minus(DISPLAY_FLOOR_DBC)} dBc (margins are computed from the true levels). Rows clear of "
+             f"their requirement by {COLLAPSE_MARGIN_DB:g} dB or more, and clear rows past the first {TOP_ROWS}, "
+             f"are collapsed under a count; a failing row, or one within {CLOSE_DB:g} dB, is always listed.</p>")
     for (role, p, e), div in zip(entries, divs, strict=True):
         tag = "" if reference is None else f" ({_e(role)}: {_e(p.name)})"
         warns = "".join(f"<li>{_e(w)}</li>" for w in e.warnings) or "<li>none</li>"
@@ -335,8 +411,9 @@ def report_html(plan: Plan, *, base_dir: str | os.PathLike[str] | None = None, e
                  "<p class=note>A snapshot: pan, zoom and hover work here, but nothing is recomputed. "
                  "To change the channel, the bands or the plan, use the live app (<code>mixchart serve</code>).</p>",
                  f'<div class="chart">{div}</div>',
-                 f"<h2>Worst cases{tag}</h2><p class=\"key\">{key}</p>", _worst_table(e, TOP_ROWS),
+                 f"<h2>Worst cases{tag}</h2><p class=\"key\">{key}</p>{rules}", _worst_table(e, TOP_ROWS),
                  f"<h2>Failing channels{tag}</h2>", _failing_runs(e)]
+        rules = ""  # stated once
     body.append('<p class="caution">Caution: levels here are estimates from a mixer model and the filters as '
                 "described, meant to guide spurious-emission decisions. Emission limits are set by local rules "
                 "and licensed practice; check the plan, and the built hardware, against them.</p>")

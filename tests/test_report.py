@@ -3,15 +3,22 @@
 from __future__ import annotations
 
 import html
+import io
+import json
 import os
 import re
+from contextlib import redirect_stdout
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 import pytest
 
 from mixchart import cli, report
 from mixchart.analysis import evaluate
+from mixchart.chart import CATEGORIES, CLOSE_DB
 from mixchart.errors import MixchartError
+from mixchart.levels import FLOOR_DBC
 from mixchart.plan import dumps_plan, load_plan, loads_plan
 
 CAUTION = "emission limits are set by local rules and licensed practice"
@@ -181,3 +188,157 @@ def test_a_file_name_with_markup_is_escaped(fm, tmp_path):
     page = report.report_html(hostile, base_dir=tmp_path)
     assert name not in page
     assert html.escape(name) in page
+
+
+# --- display floor, collapsed tail and print CSS --------------------------------------------------
+
+FLOOR_TEXT = "< −150 dBc"  # U+2212, as the report writes every other minus it shows in words
+ROW = re.compile(r"<tr><td>.*?</tr>", re.S)
+CAT = re.compile(r'--cat:(#[0-9A-Fa-f]{6})">([^<]*)</td>')
+
+
+def _tables(page: str) -> tuple[list[str], list[str], str | None]:
+    """(listed rows, collapsed rows, the collapsed count line) of the first worst-case table."""
+    start = page.index("<table class=worst>")
+    end = page.index("</table>", start)
+    listed = ROW.findall(page[start:end])
+    details = re.match(r"<details class=tail><summary>(.*?)</summary>(.*?)</details>", page[end + 8:], re.S)
+    if details is None:
+        return listed, [], None
+    return listed, ROW.findall(details.group(2)), details.group(1)
+
+
+@pytest.mark.parametrize(
+    ("level_dbc", "shown"),
+    [
+        (-200.0, FLOOR_TEXT),  # below the floor: the floor, never the number
+        (-150.01, FLOOR_TEXT),
+        (-150.0, "-150.0 dBc"),  # at the floor: "below" is strict
+        (-149.9, "-149.9 dBc"),  # above it: the number as before
+        (-60.0, "-60.0 dBc"),
+        (FLOOR_DBC, "vanishes"),  # the model's own floor (an ideal cancellation) keeps its word
+    ],
+)
+def test_display_floor(level_dbc, shown):
+    # the report's rule (DISPLAY_FLOOR_DBC = -150 dBc; common practice, no source)
+    assert report.DISPLAY_FLOOR_DBC == -150.0
+    assert html.unescape(report._db(level_dbc, "dBc")) == shown
+
+
+def test_the_floor_applies_to_levels_only():
+    # margins, rejections and filter losses are in dB and keep their numbers, however large
+    assert report._db(-200.0, sign=True) == "-200.0 dB"
+    assert report._db(180.0) == "180.0 dB"
+
+
+@pytest.mark.parametrize("name", sorted(cli.EXAMPLES))
+def test_levels_under_the_floor_are_shown_as_the_floor_and_margins_keep_the_true_level(name):
+    path = cli.example_path(name)
+    plan = load_plan(path)
+    ev = evaluate(plan, base_dir=path.parent)
+    page = report.report_html(plan, evaluation=ev)
+    frame = ev.to_frame()
+    assert page.count("Levels below −150 dBc are shown as &lt; −150 dBc") == 1  # stated once
+    under = frame[(frame["level_dbc"] < report.DISPLAY_FLOOR_DBC - 0.05) & (frame["level_dbc"] > FLOOR_DBC + 1)]
+    for v in under["level_dbc"]:
+        assert f">{v:.1f} dBc<" not in page
+    listed, hidden, _ = _tables(page)
+    rows = listed + hidden
+    assert len(rows) == len(frame)
+    # every row in margin order: its level cell follows the floor, its margin is the evaluation's
+    for row, r in zip(rows, frame.itertuples(index=False), strict=True):
+        assert f"<td>{html.escape(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic})&nbsp;" in row
+        floored = FLOOR_DBC + 1 < r.level_dbc < report.DISPLAY_FLOOR_DBC
+        assert ("<td class=num>&lt; −150 dBc</td>" in row) == floored
+        assert f">{r.margin_db:+.1f} dB</td>" in row  # from the true level, not from the floor shown
+    if name == "fm_receiver":  # the example has a listed response whose level is under the floor
+        assert any("&lt; −150 dBc" in row for row in listed)
+
+
+@pytest.mark.parametrize("name", sorted(cli.EXAMPLES))
+def test_the_long_tail_is_collapsed_and_no_failing_or_close_row_is(name):
+    path = cli.example_path(name)
+    plan = load_plan(path)
+    ev = evaluate(plan, base_dir=path.parent)
+    page = report.report_html(plan, evaluation=ev)
+    frame = ev.to_frame()
+    listed, hidden, summary = _tables(page)
+    assert len(listed) + len(hidden) == len(frame)
+    assert hidden, "every built-in example has rows clear by 40 dB or more"
+    count, bound = re.fullmatch(r"and (\d+) more rows?, all clear by ≥ ([\d.]+) dB", summary).groups()
+    assert int(count) == len(hidden)  # the count line counts what it hides
+    assert float(bound) <= report.COLLAPSE_MARGIN_DB
+    margins = frame["margin_db"].to_numpy()
+    assert float(bound) <= margins[len(listed):].min()  # listed first, in margin order: the words hold
+    # every failing or close row is listed (by its category colour), and none is collapsed
+    colour = {c: CATEGORIES[c][1] for c in ("violates", "close", "clear")}
+    shown = [CAT.search(row).group(1) for row in listed]
+    assert shown.count(colour["violates"]) == int((margins < 0).sum())
+    assert shown.count(colour["close"]) == int(((margins >= 0) & (margins < CLOSE_DB)).sum())
+    assert all(CAT.search(row).group(1) == colour["clear"] for row in hidden)
+    # rows clear by 40 dB or more are never listed one by one
+    assert len(listed) == int((margins < report.COLLAPSE_MARGIN_DB).sum()) or len(listed) >= report.TOP_ROWS
+    assert len(listed) <= max(report.TOP_ROWS, int((margins < CLOSE_DB).sum()))
+
+
+@pytest.mark.parametrize(
+    ("margins", "top", "listed"),
+    [
+        # derived by hand from the rule: fail/close/NaN always; then clear rows under 40 dB up to `top` in all
+        ([-1.0] * 2 + [20.0] * 50 + [45.0] * 5, 40, 40),
+        ([-1.0] * 50 + [5.0] * 10 + [20.0] * 30 + [50.0] * 20, 40, 60),  # more failing than `top`: all listed
+        ([-3.0, 9.99, 10.0, 39.99, 40.0, np.inf], 40, 4),  # 40 dB and +inf are collapsed, 39.99 is not
+        ([np.nan, 60.0], 40, 1),  # an unjudged row is never collapsed
+        ([50.0] * 3, 40, 0),
+    ],
+)
+def test_split_rule(margins, top, listed):
+    frame = pd.DataFrame({"margin_db": margins})
+    shown, hidden = report._split_rows(frame, top)
+    assert len(shown) == listed and len(shown) + len(hidden) == len(frame)
+    assert not (hidden["margin_db"] < CLOSE_DB).any() and not hidden["margin_db"].isna().any()
+    assert list(shown.index) + list(hidden.index) == sorted(shown.index.tolist() + hidden.index.tolist())
+
+
+def test_collapse_is_far_beyond_close():
+    assert report.COLLAPSE_MARGIN_DB > CLOSE_DB  # so "clear by ≥ 40 dB" never covers a close row
+
+
+@pytest.mark.parametrize("name", ["fm_receiver", "uplink_transmitter"])
+def test_json_and_csv_outputs_are_untouched_by_the_display_rules(name):
+    """The floor and the collapse are the page's: the CLI's JSON and CSV keep every row and true level."""
+    path = cli.example_path(name)
+    frame = evaluate(load_plan(path), base_dir=path.parent).to_frame()
+    assert (frame["level_dbc"] < report.DISPLAY_FLOOR_DBC).any()
+    out = io.StringIO()
+    with redirect_stdout(out):
+        assert cli.main(["sweep", "--example", name, "--format", "json"]) == 0
+    rows = json.loads(out.getvalue())["worst_by_product"]
+    assert len(rows) == len(frame)
+    np.testing.assert_allclose([r["level_dbc"] for r in rows], frame["level_dbc"].to_numpy())
+    out = io.StringIO()
+    with redirect_stdout(out):
+        assert cli.main(["sweep", "--example", name, "--format", "csv"]) == 0
+    csv = pd.read_csv(io.StringIO(out.getvalue()))
+    assert len(csv) == len(frame)
+    np.testing.assert_allclose(csv["level_dbc"].to_numpy(), frame["level_dbc"].to_numpy(), rtol=1e-8)
+
+
+def test_print_css(fm):
+    plan, ev = fm
+    page = report.report_html(plan, evaluation=ev)
+    css = page[page.index("<style>"):page.index("</style>")]
+    printed = css[css.index("@media print"):]
+    assert "@page { size: portrait;" in printed  # the paper the printer holds, A4 or Letter, upright
+    assert "thead { display: table-header-group; }" in printed  # headers repeat on each page
+    assert "tr, .card, .caution, li, .key, summary { break-inside: avoid; }" in printed
+    assert "h2 {" in printed and "break-after: avoid" in printed
+    assert "details.tail > :not(summary) { display: none; }" in printed  # collapsed rows stay collapsed
+    # the chart, inside BokehJS's shadow roots, carries its own print rule: scaled to the printable width
+    layout = report._snapshot_chart(ev, report.ViewOptions())
+    rules = [s.css for s in layout.stylesheets if hasattr(s, "css")]
+    width = layout.select_one({"name": "margin_plot"}).width  # as wide as the two planes side by side
+    assert width > report.PRINT_WIDTH_PX
+    assert any(f"transform: scale({report.PRINT_WIDTH_PX / width:.4f})" in r and r.startswith("@media print")
+               for r in rules)
+    assert f"transform: scale({report.PRINT_WIDTH_PX / width:.4f})" in page  # it travels in the page
