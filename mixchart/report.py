@@ -235,7 +235,7 @@ def _row_cells(r: Any) -> str:
     rejection = _db(r.rejection_db) if r.kind == "response" else ""
     drive = "" if r.drive_ok else " <span class=note>(drive beyond the table)</span>"
     if r.loss_limit:  # a filter floor or a data-span policy set the filter loss (user text escaped)
-        drive += f" <span class=note>(loss set by {_e(r.loss_limit)})</span>"
+        drive += f" <span class=note>(filter loss set by {_e(r.loss_limit)})</span>"
     cells = [
         f"<td>{_e(r.label)}</td><td>({r.rf_harmonic},{r.lo_harmonic})&nbsp;{'+' if r.sign > 0 else '−'}</td>",
         f"<td>{_e(r.kind)}</td><td class=num>{_e(format_frequency(r.channel_hz, 7))}</td>",

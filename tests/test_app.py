@@ -533,15 +533,18 @@ def test_clicking_the_margin_plot_picks_the_channel(app: PlannerApp) -> None:
 
 
 def test_one_column_has_one_name_in_the_cli_the_app_the_hover_and_the_report(app: PlannerApp) -> None:
-    # Item 17: the filter-loss policy column reads the same on every surface (the report: test_report).
+    # Item 17: the filter-loss policy column reads the same on every surface.
     from mixchart.chart import _HOVER_POINTS
     from mixchart.cli import _text_table
+    from mixchart.report import report_html
 
     name = "filter loss set by"
     ev = app.state.evaluation
     assert name in app.channel_table.value
     assert name in _text_table(ev.worst_row, 3)
     assert any(label == name for label, _ in _HOVER_POINTS)
+    assert ev.worst_by_product["loss_limit"].ne("").any()  # the FM example has rows a floor decided
+    assert f"({name} " in report_html(app.state.plan, base_dir=app.state.base_dir, evaluation=ev)
     for other in ("loss limited by", "need RF", "more RF rej."):
         assert other not in app.channel_table.value and other not in _text_table(ev.worst_row, 3)
 
