@@ -136,8 +136,11 @@ def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, sx: float, sy
             for lb, m, n, f, mg in zip(rows["label"], rows["rf_harmonic"], rows["lo_harmonic"],
                                        np.where(rows["kind"] == "product", py, px), margins, strict=True)]
     right = x > 0.5 * (window[0] + window[1])  # a text right of the middle reads leftwards, staying on the plot
+    # beside a marker at the top or bottom edge; above one at a side edge, clear of the dots on the passband
+    side = (py <= window[3]) & (py >= window[2])
     return {"x": x / sx, "y": y / sy, "angle": angle.astype(float), "text": text, "margin": margins,
             "align": np.where(right, "right", "left").tolist(), "dx": np.where(right, -9.0, 9.0),
+            "dy": np.where(side, -7.0, 0.0), "baseline": np.where(side, "bottom", "middle").tolist(),
             **style_columns(category_of(margins).astype(object))}
 
 
@@ -784,8 +787,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     )
     output.text(
         x="x", y="y", text="text", source=src["out_offchart"], text_font_size="10px", text_color=ink,
-        x_offset="dx", y_offset=-4, text_align="align", text_baseline="middle", name="offchart_text",
-    )
+        x_offset="dx", y_offset="dy", text_align="align", text_baseline="baseline", name="offchart_text",
+        background_fill_color=PALETTE["background"], background_fill_alpha=1.0, padding=1,
+    )  # on white: legible over the bands and lines
     output.add_tools(
         _hover(pts, _HOVER_POINTS, []),
         _hover(off, [("off the chart", "@text")], [pts]),

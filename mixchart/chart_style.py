@@ -196,26 +196,22 @@ def legend_html(direction: str | None = None) -> str:
         f'{_line_swatch(CATEGORIES[c][1], LINE_WIDTH[c], "line: " + CATEGORIES[c][0])}'
         f'{_strip_swatch(c)}{e(CATEGORIES[c][0])}</span>'
         for c in ("violates", "close", "clear", "wanted"))
-    diamond = {"down": "a response at the current LO (its fill: its margin)",
-               "up": "an output product at the current LO (its fill: its margin)"}.get(
-        direction or "", "a response (receiver) or output product (transmitter) at the current LO; fill: its margin")
+    diamond = {"down": "a response at the current LO", "up": "an output product at the current LO"}.get(
+        direction or "", "a response (receiver) or output product (transmitter) at the current LO")
     marks = [
-        ("plan", _line_swatch(PALETTE["plan"], 2.5, "plan line"),
-         "the plan (LO against channel), recoloured where a channel is not clear"),
+        ("plan", _line_swatch(PALETTE["plan"], 2.5, "plan line"), "the plan, coloured where a channel is not clear"),
         ("channel", _marker("circle_cross", "current channel"), "the current channel (the output plane's LO)"),
         ("response", _marker("diamond", "diamond"), diamond),
-        ("dot", _marker("circle", "dot"),
-         "output plane: a product or response of the current channel (fill: its margin; the worse, the bigger)"),
+        ("dot", _marker("circle", "dot"), "a product or response of the current channel (the worse, the bigger)"),
         ("offchart", _marker("triangle", "triangle"), "a limiting row off the output plane, pointing to it"),
-        ("band", _line_swatch(PALETTE["plan"], 2, "plan band", dash="5,3"),
-         "the RF band and the IF passband (drag to move)"),
+        ("band", _line_swatch(PALETTE["plan"], 2, "plan band", dash="5,3"), "the RF band, the IF passband (drag them)"),
     ]
     mark_html = "".join(f'<span class="mixchart-legend-entry" data-meaning="{key}"{_NOWRAP}>{svg}{e(text)}</span>'
                         for key, svg, text in marks)
     shading = (f'<span class="mixchart-legend-entry" data-meaning="filter">{_shading_swatch()}'
-               "where a filter passes, fading through its skirts to nothing where it alone meets the requirement; "
-               "vertical bands are the input side, horizontal the output side, darker where both pass</span>")
+               "where a filter passes, fading to nothing where it alone meets the requirement (vertical: input "
+               "side, horizontal: output side; darker where both pass)</span>")
     return ('<div class="mixchart-legend" style="line-height:1.9">'
-            "<b>Margin after the filters</b> (line: output plane; hatched strip: tuning plane; dots, marks and "
-            f"table alike; where they cross, the worse is on top):{cats}<br>"
-            f"<b>Marks:</b>{mark_html}<br><b>Shading:</b>{shading}</div>")
+            "<b>Margin after the filters</b> (output-plane lines, tuning-plane hatched strips, the fill of "
+            f"every mark and the tables alike; the worse drawn on top):{cats}<br>"
+            f"<b>Marks</b> (filled with their margin's colour):{mark_html}<br><b>Shading:</b>{shading}</div>")
