@@ -204,7 +204,7 @@ def legend_html(direction: str | None = None) -> str:
         ("response", _marker("diamond", "diamond"), diamond),
         ("dot", _marker("circle", "dot"), "a product or response of the current channel (the worse, the bigger)"),
         ("offchart", _marker("triangle", "triangle"), "a limiting row off the output plane, pointing to it"),
-        ("band", _line_swatch(PALETTE["plan"], 2, "plan band", dash="5,3"), "the RF band, the IF passband (drag them)"),
+        ("band", _line_swatch(PALETTE["plan"], 2, "plan band", dash="5,3"), "the RF band and the IF passband"),
     ]
     mark_html = "".join(f'<span class="mixchart-legend-entry" data-meaning="{key}"{_NOWRAP}>{svg}{e(text)}</span>'
                         for key, svg, text in marks)
