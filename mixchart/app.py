@@ -813,8 +813,7 @@ class PlannerApp:
                 low, high = float(new[keys[0]][-1]), float(new[keys[1]][-1])
             except (KeyError, IndexError, TypeError, ValueError):
                 return
-            plane = "tuning" if name == "rf_band" else "output"
-            scale = self._scale(plane)
+            scale = self._last_meta["source_scales"][name]  # Hz per unit of this band's own axis
             down = self.state.plan.direction == "down"
             if name == "rf_band":
                 band = "rf"

@@ -17,13 +17,20 @@ Output plane
     Input frequency across, output frequency up, for the current channel's LO;
     every product is a line ``|m·x ± n·f_LO|``.  The output passband is a
     horizontal band, the input band a vertical band; lines crossing their
-    intersection are in-band products.  It can be normalised (divided by LO).
+    intersection are in-band products.  The output axis centres on the output
+    passband and what lands near it (:func:`mixchart.chart_axes.output_axis_window`).
+    It can be normalised (divided by LO).
 
-Colour follows level against the requirement (colour-blind-safe Okabe-Ito
-colours): vermillion violates, orange is within :data:`CLOSE_DB` of it, grey-blue
-is clear; the wanted conversion is blue.  Filter responses shade the axes with a
-tint that is strongest in the passband and fades through the skirts to nothing
-where the filter alone meets the requirement.
+Each axis has its own engineering unit, chosen from its own window and named in its
+label (:mod:`mixchart.chart_axes`); ``meta["scales"]`` holds the Hz per display unit
+of each, and ``meta["source_scales"]`` that of each draggable band's source.
+
+Colour follows level against the requirement, one colour for one meaning
+(:mod:`mixchart.chart_style`): vermillion violates, orange is within
+:data:`CLOSE_DB` of it, grey is clear; the wanted conversion is blue.  Filter
+responses shade the axes green, strongest in the passband, fading through the skirts
+to nothing where the filter alone meets the requirement.  Strips are hatched and lines
+opaque, drawn worst on top, so nothing blends into a colour the legend lacks.
 """
 
 from __future__ import annotations
@@ -35,13 +42,28 @@ from typing import Any
 import numpy as np
 
 from .analysis import Evaluation
+from .chart_axes import axis_unit, output_axis_window, plane_windows
+from .chart_style import (
+    CATEGORIES,
+    CLOSE_DB,
+    DOT_SIZE,
+    HATCH_SCALE,
+    PALETTE,
+    TINT_MAX_ALPHA,
+    category_of,
+    draw_rank,
+    legend_html,
+    strip_columns,
+    style_columns,
+)
 from .levels import FLOOR_DBC
-from .products import output_plane_loci, tuning_plane_strips
-from .units import engineering_scale, format_frequency
+from .products import HALF_IF, IMAGE, LABELS, output_plane_loci, tuning_plane_strips
+from .units import format_frequency
 
 __all__ = [
     "CLOSE_DB",
     "CATEGORIES",
+    "PALETTE",
     "ViewOptions",
     "ChartData",
     "ChartHandle",
@@ -51,24 +73,11 @@ __all__ = [
     "legend_html",
 ]
 
-#: A spur within this many dB of the requirement is drawn as "close".
-CLOSE_DB = 10.0
-#: Category -> (legend text, colour).  Okabe-Ito palette.
-CATEGORIES: dict[str, tuple[str, str]] = {
-    "violates": ("violates the requirement", "#D55E00"),
-    "close": (f"within {CLOSE_DB:g} dB of it", "#E69F00"),
-    "clear": (f"clear by {CLOSE_DB:g} dB or more", "#7F9CB5"),
-    "wanted": ("wanted conversion", "#0072B2"),
-}
-_WIDTH = {"violates": 3.0, "close": 2.2, "clear": 1.0, "wanted": 3.0}
-_ALPHA = {"violates": 0.95, "close": 0.9, "clear": 0.45, "wanted": 1.0}
-_STRIP_ALPHA = {"violates": 0.55, "close": 0.45, "clear": 0.18, "wanted": 0.35}
-_TINT_IN = "#56B4E9"  # input-side filter / band
-_TINT_OUT = "#009E73"  # output-side filter / band
-_TINT_MAX_ALPHA = 0.30
 _MAX_PLAN_POINTS = 2000
 _EMPTY_SKIRT: dict[str, Any] = {"x0": np.zeros(0), "x1": np.zeros(0), "alpha": np.zeros(0), "atten_db": np.zeros(0)}
 _EMPTY_TRACK: dict[str, Any] = {"xs": [], "ys": [], "alpha": np.zeros(0), "atten_db": np.zeros(0)}
+#: The receiver responses whose strip (tuning plane) and arm (output plane) carry the table's name.
+_NAMED_RESPONSES = (LABELS[IMAGE], LABELS[HALF_IF])
 
 
 @dataclass(frozen=True)
@@ -96,14 +105,16 @@ class ViewOptions:
 
 @dataclass(frozen=True)
 class ChartData:
-    """Column data for every named source, plus axis labels and windows."""
+    """Column data for every named source, plus axis labels, windows and scales."""
 
     sources: dict[str, dict[str, Any]]
     meta: dict[str, Any] = field(default_factory=dict)
 
 
-def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, scale: float) -> dict[str, Any]:
-    """Edge markers for rows outside the window: clipped into it, with a text naming what and where."""
+def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, sx: float, sy: float) -> dict[str, Any]:
+    """Edge markers for rows outside the window (Hz): clipped into it, with a text naming what and where.
+
+    ``sx`` and ``sy`` are the x and y axes' Hz per display unit."""
     order = np.argsort(rows["margin_db"].to_numpy(float), kind="stable")[:_MAX_OFFCHART]
     rows, px, py = rows.iloc[order], px[order], py[order]
     pad_x, pad_y = 0.02 * (window[1] - window[0]), 0.03 * (window[3] - window[2])
@@ -124,10 +135,13 @@ def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, scale: float)
     text = [f"{lb} ({m},{n}) at {format_frequency(f)}, off the chart: {mg:+.1f} dB"
             for lb, m, n, f, mg in zip(rows["label"], rows["rf_harmonic"], rows["lo_harmonic"],
                                        np.where(rows["kind"] == "product", py, px), margins, strict=True)]
-    right = px > window[1] - pad_x  # a text at the right edge reads leftwards, so it stays on the plot
-    return {"x": x / scale, "y": y / scale, "angle": angle.astype(float), "text": text, "margin": margins,
+    right = x > 0.5 * (window[0] + window[1])  # a text right of the middle reads leftwards, staying on the plot
+    # beside a marker at the top or bottom edge; above one at a side edge, clear of the dots on the passband
+    side = (py <= window[3]) & (py >= window[2])
+    return {"x": x / sx, "y": y / sy, "angle": angle.astype(float), "text": text, "margin": margins,
             "align": np.where(right, "right", "left").tolist(), "dx": np.where(right, -9.0, 9.0),
-            **_style(_category(margins).astype(object))}
+            "dy": np.where(side, -7.0, 0.0), "baseline": np.where(side, "bottom", "middle").tolist(),
+            **style_columns(category_of(margins).astype(object))}
 
 
 def _worst_product_margins(ev, m: np.ndarray, n: np.ndarray, sign: np.ndarray) -> np.ndarray:
@@ -161,50 +175,6 @@ def _line_margins(frame, m: np.ndarray, n: np.ndarray, sign: np.ndarray, down: b
                     dtype=float)
 
 
-def _category(margin_db: np.ndarray) -> np.ndarray:
-    margin_db = np.asarray(margin_db, dtype=float)
-    return np.where(margin_db < 0, "violates", np.where(margin_db < CLOSE_DB, "close", "clear"))
-
-
-def _style(categories: np.ndarray) -> dict[str, list]:
-    return {
-        "category": list(categories),
-        "color": [CATEGORIES[c][1] for c in categories],
-        "width": np.array([_WIDTH[c] for c in categories], dtype=float),
-        "alpha": np.array([_ALPHA[c] for c in categories], dtype=float),
-    }
-
-
-def _pad(lo: float, hi: float, frac: float, floor: float) -> tuple[float, float]:
-    span = max(hi - lo, floor)
-    return lo - frac * span, hi + frac * span
-
-
-def _windows(ev: Evaluation, lo_now: float) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    """Tuning-plane and output-plane windows, Hz."""
-    plan = ev.plan
-    if_c, if_bw = plan.if_.center_hz, plan.if_.bandwidth_hz
-    rf_lo = plan.rf.start_hz - plan.signal.bandwidth_hz / 2
-    rf_hi = plan.rf.stop_hz + plan.signal.bandwidth_hz / 2
-    lo_min, lo_max = float(ev.lo_hz.min()), float(ev.lo_hz.max())
-    # Tuning plane: the RF band and its image side, the LO range.
-    x0 = max(0.0, min(rf_lo, lo_min - if_c - if_bw))
-    x1 = max(rf_hi, lo_max + if_c + if_bw)
-    x0, x1 = _pad(x0, x1, 0.05, 4 * if_bw)
-    y0, y1 = _pad(lo_min, lo_max, 0.15, max(0.2 * (x1 - x0), 4 * if_bw))
-    tuning = (max(x0, 0.0), x1, max(y0, 0.0), y1)
-    if plan.direction == "down":
-        ox0, ox1 = tuning[0], tuning[1]
-        oy0, oy1 = 0.0, max(2.5 * (if_c + if_bw / 2), if_c + 8 * if_bw)
-    else:
-        ox0, ox1 = 0.0, max(2.5 * (if_c + if_bw / 2), if_c + 8 * if_bw)
-        oy0 = max(0.0, min(rf_lo, lo_now - if_c - if_bw))
-        oy1 = max(rf_hi, lo_now + if_c + if_bw)
-        oy0, oy1 = _pad(oy0, oy1, 0.05, 4 * if_bw)
-        oy0 = max(oy0, 0.0)
-    return tuning, (ox0, ox1, oy0, oy1)
-
-
 def _skirt(
     filt, f_lo: float, f_hi: float, centre: float | None, band: tuple[float, float], req_db: float, scale: float
 ):
@@ -222,7 +192,7 @@ def _skirt(
     else:
         c = None if not filt.tracks_channel else np.full(mids.shape, centre)
         atten = filt.atten_db(mids, c)
-    alpha = _TINT_MAX_ALPHA * np.clip(1.0 - atten / max(req_db, 1.0), 0.0, 1.0)
+    alpha = TINT_MAX_ALPHA * np.clip(1.0 - atten / max(req_db, 1.0), 0.0, 1.0)
     keep = alpha > 0.004
     return {
         "x0": edges[:-1][keep] / scale,
@@ -253,12 +223,12 @@ def _plan_cached(ev, key: tuple, make) -> Any:
     return values[key]
 
 
-def _tuning_marks(ev, scale: float) -> dict[str, Any]:
+def _tuning_marks(ev, sx: float, sy: float) -> dict[str, Any]:
     """The plan line recoloured where a channel's worst margin is not clear: one short segment per such
-    channel, from the midpoint with its left neighbour to the right one."""
-    worst_cat = _category(ev.worst_margin_db).astype(object)
+    channel, from the midpoint with its left neighbour to the right one (x, y in units of ``sx``, ``sy`` Hz)."""
+    worst_cat = category_of(ev.worst_margin_db).astype(object)
     bad = np.flatnonzero(worst_cat != "clear")[:: max(1, int(np.sum(worst_cat != "clear")) // _MAX_PLAN_POINTS)]
-    px, py = ev.channels_hz / scale, ev.lo_hz / scale
+    px, py = ev.channels_hz / sx, ev.lo_hz / sy
     left = np.maximum(bad - 1, 0)
     right = np.minimum(bad + 1, px.size - 1)
     wr = ev.worst_row.iloc[bad]
@@ -271,12 +241,12 @@ def _tuning_marks(ev, scale: float) -> dict[str, Any]:
                                                           strict=True)],
         "channel": [format_frequency(f) for f in ev.channels_hz[bad]],
         "margin": ev.worst_margin_db[bad].astype(float),
-        **_style(worst_cat[bad]),
+        **style_columns(worst_cat[bad]),
     }
 
 
 def _tracking_skirt(filt, channels_hz: np.ndarray, lo_hz: np.ndarray, window: tuple, req_db: float,
-                    scale: float) -> dict[str, Any]:
+                    sx: float, sy: float) -> dict[str, Any]:
     """Nested bands along the plan line where a tracking filter loses less than each level.
 
     For each of a few plan points (channel c, LO) the frequencies around c whose loss, with the
@@ -297,11 +267,29 @@ def _tracking_skirt(filt, channels_hz: np.ndarray, lo_hz: np.ndarray, window: tu
             continue
         lo_edge = np.where(inside, f, np.inf).min(axis=1)
         hi_edge = np.where(inside, f, -np.inf).max(axis=1)
-        xs.append(np.concatenate([lo_edge, hi_edge[::-1]]) / scale)
-        ys.append(np.concatenate([y, y[::-1]]) / scale)
-        alphas.append(_TINT_MAX_ALPHA * (1.0 - level) / len(_TRACK_LEVELS) * 2.0)
+        xs.append(np.concatenate([lo_edge, hi_edge[::-1]]) / sx)
+        ys.append(np.concatenate([y, y[::-1]]) / sy)
+        alphas.append(TINT_MAX_ALPHA * (1.0 - level) / len(_TRACK_LEVELS) * 2.0)
         losses.append(round(level * max(req_db, 1.0), 1))
     return {"xs": xs, "ys": ys, "alpha": np.asarray(alphas, dtype=float), "atten_db": np.asarray(losses, dtype=float)}
+
+
+def _named_responses(frame) -> list[tuple[str, int, int, float]]:
+    """(label, m, n, input Hz) of each response in :data:`_NAMED_RESPONSES` of one channel's frame, as the
+    engine labels them (the table's names, never re-derived here)."""
+    rows = frame[(frame["kind"] == "response") & frame["label"].isin(_NAMED_RESPONSES)]
+    return [(str(lb), int(m), int(n), float(f)) for lb, m, n, f in
+            zip(rows["label"], rows["rf_harmonic"], rows["lo_harmonic"], rows["f_center_hz"], strict=True)]
+
+
+def _scales(tuning_win: tuple, out_win: tuple, lo_now: float, normalised: bool) -> tuple[dict, dict]:
+    """Hz per display unit and the unit's name of each axis (:data:`mixchart.chart_axes.AXES`)."""
+    pairs = {"tuning_x": axis_unit(*tuning_win[:2]), "tuning_y": axis_unit(*tuning_win[2:])}
+    if normalised:
+        pairs["output_x"] = pairs["output_y"] = (lo_now, "× LO")
+    else:
+        pairs["output_x"], pairs["output_y"] = axis_unit(*out_win[:2]), axis_unit(*out_win[2:])
+    return {k: v[0] for k, v in pairs.items()}, {k: v[1] for k, v in pairs.items()}
 
 
 def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
@@ -317,9 +305,14 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     Returns
     -------
     ChartData
-        ``sources`` maps each source name of :func:`build_chart` to its columns;
-        ``meta`` holds the channel index, the windows, the display scale and axis
-        labels.
+        ``sources`` maps each source name of :func:`build_chart` to its columns, in display
+        units (each axis its own); ``meta`` holds the channel index, the windows (display
+        units), the axis labels, ``scales`` and ``units`` (Hz per display unit and its name,
+        for each of ``tuning_x``, ``tuning_y``, ``output_x``, ``output_y``), ``source_scales``
+        (Hz per unit of each draggable band's source: ``rf_band``, ``out_input_band``,
+        ``out_output_band``), and, kept for callers that read one number per plane,
+        ``scale``/``unit`` (the tuning plane's RF axis, which the margin plot shares) and
+        ``out_scale``/``out_unit`` (the output plane's output axis).
     """
     plan = ev.plan
     down = plan.direction == "down"
@@ -330,11 +323,26 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     ch = float(ev.channels_hz[index])
     lo_now = float(ev.lo_hz[index])
     max_shown = plan.max_order if opts.max_order_shown is None else max(2, min(opts.max_order_shown, plan.max_order))
-    tuning_win, out_win = _windows(ev, lo_now)
-    scale, unit = engineering_scale(max(abs(tuning_win[1]), abs(tuning_win[3])))
     frame = ev.channel_frame(index)
     table = ev.level_table
     ctx_rf, ctx_if = ev.filters
+    band = (plan.rf.start_hz - plan.signal.bandwidth_hz / 2, plan.rf.stop_hz + plan.signal.bandwidth_hz / 2)
+    if_band = (plan.if_.f_low_hz, plan.if_.f_high_hz)
+
+    # the output plane's rows (products and responses of this channel) and where they sit, Hz
+    prod = frame[(frame["order"] <= max_shown) & (frame["level_dbc"] > FLOOR_DBC + 1)]
+    f_in_wanted = float(ev.f_wanted_in_hz[index])
+    if down:
+        px = np.where(prod["kind"] == "product", f_in_wanted, prod["f_center_hz"])
+        py = np.where(prod["kind"] == "product", prod["f_center_hz"], plan.if_.center_hz)
+    else:
+        prod = prod[prod["kind"] == "product"]
+        px, py = np.full(len(prod), f_in_wanted), prod["f_center_hz"].to_numpy()
+    tuning_win, out_x = plane_windows(ev, lo_now)
+    near = (prod["margin_db"].to_numpy(float) < CLOSE_DB) & (prod["label"].to_numpy() != "wanted")
+    out_win = (*out_x, *output_axis_window(if_band if down else band, py[near]))
+    scales, units = _scales(tuning_win, out_win, lo_now, opts.normalised)
+    sx, sy = scales["tuning_x"], scales["tuning_y"]
 
     sources: dict[str, dict[str, Any]] = {}
 
@@ -344,67 +352,69 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     # One story: a strip takes the after-filter verdict of its product, the worst margin over
     # the tuning range (the table's row); a product with no finite margin is drawn clear.
     strip_margin = _plan_cached(ev, ("strip_margin", tuning_win, max_shown), lambda: _worst_product_margins(
-        ev, strips.rf_harmonic, strips.lo_harmonic, strips.sign)).copy()  # (the image's is set below)
-    cats = _category(strip_margin).astype(object)
-    # the strip holding the plan line is the wanted conversion
+        ev, strips.rf_harmonic, strips.lo_harmonic, strips.sign)).copy()  # (named responses' are set below)
+    cats = category_of(strip_margin).astype(object)
+    # the strip holding the plan line is the wanted conversion; a strip holding a named response of the
+    # middle channel (image, half-IF) carries the table's name for it and that response's verdict
     mid = len(ev.channels_hz) // 2
     xm, ym = ev.channels_hz[mid], ev.lo_hz[mid]
+    named = _plan_cached(ev, ("named", mid), lambda: _named_responses(ev.channel_frame(mid))) if down else []
     labels = []
     for k in range(len(strips)):
         m, n = int(strips.rf_harmonic[k]), int(strips.lo_harmonic[k])
+        xs, ys = strips.xs[k], strips.ys[k]
         text = f"({m},{n}) {'sum' if strips.sign[k] > 0 else 'difference'}"
-        if m == 1 and n == 1:
-            xs, ys = strips.xs[k], strips.ys[k]
-            inside = xs.min() <= xm <= xs.max() and _point_in_convex(xs, ys, xm, ym)
-            if inside:
-                cats[k] = "wanted"
-                text = "wanted (1,1)"
-            elif down:
-                text = "image (1,1)" if strips.sign[k] < 0 else "sum (1,1)"
-                if strips.sign[k] < 0:  # the mirror branch of the wanted conversion: the image's verdict
-                    strip_margin[k] = _plan_cached(ev, ("image",), lambda: _worst_label_margin(ev, "image"))
-                    cats[k] = _category(strip_margin[k:k + 1])[0]
+        if m == 1 and n == 1 and xs.min() <= xm <= xs.max() and _point_in_convex(xs, ys, xm, ym):
+            cats[k] = "wanted"
+            text = "wanted (1,1)"
+        else:
+            for label, rm, rn, f_in in named:
+                if (rm, rn) == (m, n) and xs.min() <= f_in <= xs.max() and _point_in_convex(xs, ys, f_in, ym):
+                    text = f"{label} ({m},{n})"
+                    strip_margin[k] = _plan_cached(ev, ("label", label), lambda lb=label: _worst_label_margin(ev, lb))
+                    cats[k] = category_of(strip_margin[k:k + 1])[0]
+                    break
         labels.append(text)
     vanish = intrinsic <= FLOOR_DBC + 1
     show = ~vanish & ((cats != "clear") | opts.show_clear)
     idx = np.flatnonzero(show)
-    style = _style(cats[idx])
+    idx = idx[np.argsort(draw_rank(cats[idx]), kind="stable")]  # drawn in this order: the worst on top
     sources["tuning_strips"] = {
-        "xs": [strips.xs[k] / scale for k in idx],
-        "ys": [strips.ys[k] / scale for k in idx],
+        "xs": [strips.xs[k] / sx for k in idx],
+        "ys": [strips.ys[k] / sy for k in idx],
         "m": strips.rf_harmonic[idx].astype(np.int32),
         "n": strips.lo_harmonic[idx].astype(np.int32),
         "label": [labels[k] for k in idx],
         "level": intrinsic[idx].astype(float),
         "margin": np.where(np.isfinite(strip_margin[idx]), strip_margin[idx], np.nan).astype(float),
-        **style,
-        "fill_alpha": np.array([_STRIP_ALPHA[c] for c in cats[idx]], dtype=float),
+        **style_columns(cats[idx]),
+        **strip_columns(cats[idx]),
     }
     step = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
     sources["tuning_plan"] = {
-        "x": ev.channels_hz[::step] / scale,
-        "y": ev.lo_hz[::step] / scale,
+        "x": ev.channels_hz[::step] / sx,
+        "y": ev.lo_hz[::step] / sy,
     }
     # The plan line is recoloured where a channel's worst margin is not clear: one short
     # segment per such channel, from the midpoint with its left neighbour to the right one.
-    sources["tuning_marks"] = _plan_cached(ev, ("tuning_marks", scale), lambda: _tuning_marks(ev, scale))
+    sources["tuning_marks"] = _plan_cached(ev, ("tuning_marks", sx, sy), lambda: _tuning_marks(ev, sx, sy))
     # margin against channel: where in the band the plan is weak (infinite margins shown at the top)
     step_m = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
     worst = ev.worst_margin_db[::step_m]
     finite = np.isfinite(worst)
     top = float(np.max(worst[finite])) if finite.any() else CLOSE_DB
     sources["margin_channels"] = {
-        "x": ev.channels_hz[::step_m] / scale,
+        "x": ev.channels_hz[::step_m] / sx,
         "y": np.where(finite, worst, max(top, CLOSE_DB) + 5.0).astype(float),
         "margin": np.where(finite, worst, np.nan).astype(float),
         "label": ev.worst_row["label"].to_numpy()[::step_m].tolist(),
-        **_style(_category(worst).astype(object)),
+        **style_columns(category_of(worst).astype(object)),
     }
     m_now = float(ev.worst_margin_db[index])
-    sources["margin_now"] = {"x": [ch / scale], "y": [m_now if math.isfinite(m_now) else max(top, CLOSE_DB) + 5.0]}
+    sources["margin_now"] = {"x": [ch / sx], "y": [m_now if math.isfinite(m_now) else max(top, CLOSE_DB) + 5.0]}
     sources["tuning_now"] = {
-        "x": [ch / scale],
-        "y": [lo_now / scale],
+        "x": [ch / sx],
+        "y": [lo_now / sy],
         "channel": [format_frequency(ch)],
         "lo": [format_frequency(lo_now)],
     }
@@ -414,17 +424,18 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     f_pts = rows["f_center_hz"].to_numpy()
     inside = (f_pts >= tuning_win[0]) & (f_pts <= tuning_win[1])
     rows = rows[inside]
-    cats_pts = _category(rows["margin_db"].to_numpy()).astype(object)
+    cats_pts = category_of(rows["margin_db"].to_numpy()).astype(object)
     keep = (cats_pts != "clear") | opts.show_clear
     rows, cats_pts = rows[keep], cats_pts[keep]
+    order = np.argsort(draw_rank(cats_pts), kind="stable")
+    rows, cats_pts = rows.iloc[order], cats_pts[order]
     sources["tuning_points"] = {
-        "x": rows["f_center_hz"].to_numpy() / scale,
-        "y": np.full(len(rows), lo_now / scale),
+        "x": rows["f_center_hz"].to_numpy() / sx,
+        "y": np.full(len(rows), lo_now / sy),
         **_point_columns(rows, down),
-        **_style(cats_pts),
+        **style_columns(cats_pts),
     }
-    band = (plan.rf.start_hz - plan.signal.bandwidth_hz / 2, plan.rf.stop_hz + plan.signal.bandwidth_hz / 2)
-    sources["rf_band"] = {"x0": [band[0] / scale], "x1": [band[1] / scale]}
+    sources["rf_band"] = {"x0": [band[0] / sx], "x1": [band[1] / sx]}
     rf_pass = band if ctx_rf is None else ctx_rf.passband_hz(ch if ctx_rf.tracks_channel else None)
     if ctx_rf is not None and ctx_rf.tracks_channel:
         # a filter that tracks the channel is shaded where it is: along the plan line, each
@@ -432,83 +443,81 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         sources["tuning_skirt"] = _EMPTY_SKIRT
         # the shading follows the plan, not the view: worked out once per evaluation and window
         sources["tuning_track"] = _plan_cached(
-            ev, ("tuning_track", tuning_win, req, scale),
-            lambda: _tracking_skirt(ctx_rf, ev.channels_hz, ev.lo_hz, tuning_win, req, scale))
+            ev, ("tuning_track", tuning_win, req, sx, sy),
+            lambda: _tracking_skirt(ctx_rf, ev.channels_hz, ev.lo_hz, tuning_win, req, sx, sy))
     else:
         sources["tuning_track"] = _EMPTY_TRACK
-        if down:
-            sources["tuning_skirt"] = (
-                _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
-                if ctx_rf is not None
-                else _EMPTY_SKIRT
-            )
+        if down and ctx_rf is None:
+            sources["tuning_skirt"] = _EMPTY_SKIRT
         else:
-            sources["tuning_skirt"] = _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, scale)
+            sources["tuning_skirt"] = _skirt(ctx_rf, tuning_win[0], tuning_win[1], ch, rf_pass, req, sx)
 
     # --------------------------------------------------------- output plane
-    o_scale, o_unit = (lo_now, "× LO") if opts.normalised else engineering_scale(max(out_win[1], out_win[3]))
-    o_win = tuple(v / o_scale for v in out_win)
-    lines = output_plane_loci(max_shown, lo_now / o_scale, o_win)
+    ox, oy = scales["output_x"], scales["output_y"]
+    lines = output_plane_loci(max_shown, lo_now, out_win)  # Hz; each axis scaled below
     line_level = table.level_dbc_at(lines.rf_harmonic, lines.lo_harmonic, plan.signal.level_dbm)
     # a line takes the worst after-filter margin of what it carries at this channel: the wanted
     # signal's product on it and, for a receiver's difference lines, the responses where it
     # crosses the IF (the same verdict as its dots and the table)
     line_margin = _line_margins(frame, lines.rf_harmonic, lines.lo_harmonic, lines.sign, down)
-    line_cat = _category(line_margin).astype(object)
+    line_cat = category_of(line_margin).astype(object)
     wanted_sign = int(ev.wanted_sign[index])  # the engine's choice, never re-derived here
     is_wanted = (lines.rf_harmonic == 1) & (lines.lo_harmonic == 1) & (lines.sign == wanted_sign)
-    # The difference is a V of two arms; only the arm through the wanted input is the wanted conversion.
-    x_w = float(ev.f_wanted_in_hz[index]) / o_scale
-    on_arm = (np.minimum(lines.x0, lines.x1) <= x_w * (1 + 1e-9)) & (np.maximum(lines.x0, lines.x1) >= x_w * (1 - 1e-9))
+    # The difference is a V of two arms; only the arm through the wanted input is the wanted conversion,
+    # and the arm through a named response (image, half-IF) carries the table's name for it.
+    lo_x, hi_x = np.minimum(lines.x0, lines.x1), np.maximum(lines.x0, lines.x1)
+
+    def through(x_hz: float) -> np.ndarray:
+        return (lo_x <= x_hz * (1 + 1e-9)) & (hi_x >= x_hz * (1 - 1e-9))
+
+    on_arm = through(f_in_wanted)
     image_arm = is_wanted & ~on_arm
     is_wanted &= on_arm
     line_cat[is_wanted] = "wanted"
+    arm_name = np.full(len(lines.x0), "", dtype=object)
+    for label, rm, rn, f_in in (_named_responses(frame) if down else []):
+        arm_name[(lines.rf_harmonic == rm) & (lines.lo_harmonic == rn) & (lines.sign < 0) & ~is_wanted
+                 & through(f_in)] = label
+    arm_name[image_arm & down] = LABELS[IMAGE]
     keep = (line_level > FLOOR_DBC + 1) & ((line_cat != "clear") | opts.show_clear)
     k = np.flatnonzero(keep)
+    k = k[np.argsort(draw_rank(line_cat[k]), kind="stable")]  # the worst on top
     sources["out_lines"] = {
-        "x0": lines.x0[k],
-        "y0": lines.y0[k],
-        "x1": lines.x1[k],
-        "y1": lines.y1[k],
+        "x0": lines.x0[k] / ox,
+        "y0": lines.y0[k] / oy,
+        "x1": lines.x1[k] / ox,
+        "y1": lines.y1[k] / oy,
         "m": lines.rf_harmonic[k].astype(np.int32),
         "n": lines.lo_harmonic[k].astype(np.int32),
         "label": [
-            f"({m},{n}) {'wanted' if w else 'image arm' if im and down else 'sum' if s > 0 else 'difference'}"
-            for m, n, s, w, im in zip(
-                lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k], image_arm[k], strict=True
+            f"({m},{n}) {'wanted' if w else f'{arm} arm' if arm else 'sum' if s > 0 else 'difference'}"
+            for m, n, s, w, arm in zip(
+                lines.rf_harmonic[k], lines.lo_harmonic[k], lines.sign[k], is_wanted[k], arm_name[k], strict=True
             )
         ],
         "level": line_level[k].astype(float),
         "margin": np.where(np.isfinite(line_margin[k]), line_margin[k], np.nan).astype(float),
-        **_style(line_cat[k]),
+        **style_columns(line_cat[k]),
     }
     # actual products of the current channel and responses, after the filters
-    prod = frame[(frame["order"] <= max_shown) & (frame["level_dbc"] > FLOOR_DBC + 1)]
-    f_in_wanted = float(ev.f_wanted_in_hz[index])
-    px = np.where(prod["kind"] == "product", f_in_wanted, prod["f_center_hz"])
-    py = np.where(prod["kind"] == "product", prod["f_center_hz"], plan.if_.center_hz)
-    if not down:
-        prod = prod[prod["kind"] == "product"]
-        px, py = np.full(len(prod), f_in_wanted), prod["f_center_hz"].to_numpy()
     inside = (px >= out_win[0]) & (px <= out_win[1]) & (py >= out_win[2]) & (py <= out_win[3])
     # The limiting rows are never off the chart unseen: a row within CLOSE_DB of its requirement (or
     # past it) outside the window is marked at the window's edge, with its label and where it is.
-    off = ~inside & (prod["margin_db"].to_numpy(float) < CLOSE_DB) & (prod["label"].to_numpy() != "wanted")
-    sources["out_offchart"] = _offchart(prod[off], px[off], py[off], out_win, o_scale)
+    off = ~inside & near
+    sources["out_offchart"] = _offchart(prod[off], px[off], py[off], out_win, ox, oy)
     prod, px, py = prod[inside], px[inside], py[inside]
-    p_cat = np.where(prod["label"] == "wanted", "wanted", _category(prod["margin_db"].to_numpy())).astype(object)
+    p_cat = np.where(prod["label"] == "wanted", "wanted", category_of(prod["margin_db"].to_numpy())).astype(object)
     keep = (p_cat != "clear") | opts.show_clear
     prod, px, py, p_cat = prod[keep], px[keep], py[keep], p_cat[keep]
+    order = np.argsort(draw_rank(p_cat), kind="stable")
+    prod, px, py, p_cat = prod.iloc[order], px[order], py[order], p_cat[order]
     sources["out_points"] = {
-        "x": px / o_scale,
-        "y": py / o_scale,
+        "x": px / ox,
+        "y": py / oy,
         **_point_columns(prod, down),
-        **_style(p_cat),
-        "size": np.array(
-            [14 if c in ("violates", "wanted") else 10 if c == "close" else 7 for c in p_cat], dtype=float
-        ),
+        **style_columns(p_cat),
+        "size": np.array([DOT_SIZE[c] for c in p_cat], dtype=float),
     }
-    if_band = (plan.if_.f_low_hz, plan.if_.f_high_hz)
     if down:
         in_band, out_band = band, if_band
         in_filter, out_filter = ctx_rf, ctx_if
@@ -517,14 +526,14 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         in_band, out_band = if_band, band
         in_filter, out_filter = ctx_if, ctx_rf
         in_pass, out_pass = (if_band if ctx_if is None else ctx_if.passband_hz()), rf_pass
-    sources["out_input_band"] = {"x0": [in_band[0] / o_scale], "x1": [in_band[1] / o_scale]}
-    sources["out_output_band"] = {"y0": [out_band[0] / o_scale], "y1": [out_band[1] / o_scale]}
+    sources["out_input_band"] = {"x0": [in_band[0] / ox], "x1": [in_band[1] / ox]}
+    sources["out_output_band"] = {"y0": [out_band[0] / oy], "y1": [out_band[1] / oy]}
     in_skirt = (
-        _skirt(in_filter, out_win[0], out_win[1], ch, in_pass, req, o_scale)
+        _skirt(in_filter, out_win[0], out_win[1], ch, in_pass, req, ox)
         if in_filter is not None
         else _EMPTY_SKIRT
     )
-    out_skirt = _skirt(out_filter, out_win[2], out_win[3], ch, out_pass, req, o_scale)
+    out_skirt = _skirt(out_filter, out_win[2], out_win[3], ch, out_pass, req, oy)
     sources["out_input_skirt"] = in_skirt
     sources["out_output_skirt"] = {
         "y0": out_skirt["x0"], "y1": out_skirt["x1"], "alpha": out_skirt["alpha"], "atten_db": out_skirt["atten_db"]
@@ -535,16 +544,19 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "channel_index": index,
         "channel_hz": ch,
         "lo_hz": lo_now,
-        "scale": scale,
-        "unit": unit,
-        "out_scale": o_scale,
-        "out_unit": o_unit,
-        "tuning_window": tuple(v / scale for v in tuning_win),
-        "output_window": o_win,
-        "tuning_x_label": f"RF {'input' if down else 'output'} ({unit})",
-        "tuning_y_label": f"LO ({unit})",
-        "output_x_label": f"{in_name} ({o_unit})" if not opts.normalised else f"{in_name} / LO",
-        "output_y_label": f"{out_name} ({o_unit})" if not opts.normalised else f"{out_name} / LO",
+        "scales": scales,
+        "units": units,
+        "source_scales": {"rf_band": sx, "out_input_band": ox, "out_output_band": oy},
+        "scale": sx,
+        "unit": units["tuning_x"],
+        "out_scale": oy,
+        "out_unit": units["output_y"],
+        "tuning_window": (tuning_win[0] / sx, tuning_win[1] / sx, tuning_win[2] / sy, tuning_win[3] / sy),
+        "output_window": (out_win[0] / ox, out_win[1] / ox, out_win[2] / oy, out_win[3] / oy),
+        "tuning_x_label": f"RF {'input' if down else 'output'} ({units['tuning_x']})",
+        "tuning_y_label": f"LO ({units['tuning_y']})",
+        "output_x_label": f"{in_name} ({units['output_x']})" if not opts.normalised else f"{in_name} / LO",
+        "output_y_label": f"{out_name} ({units['output_y']})" if not opts.normalised else f"{out_name} / LO",
         "output_title": (
             f"Output plane{' ÷ LO' if opts.normalised else ''} at LO {format_frequency(lo_now)} "
             f"(channel {format_frequency(ch)})"
@@ -609,6 +621,10 @@ class ChartHandle:
         The tool that drags the bands.
     windows : dict
         The windows last applied to the ranges.
+    legend : bokeh.models.Div
+        The legend (``"chart_legend"``); its text follows the plan's direction.
+    margin_hover : bokeh.models.HoverTool
+        The margin plot's hover (its channel reads in the RF axis's unit).
     """
 
     layout: Any
@@ -620,22 +636,8 @@ class ChartHandle:
     windows: dict[str, tuple[float, ...]] = field(default_factory=dict)
     last: dict[str, dict[str, Any]] = field(default_factory=dict)
     margin: Any = None  # the margin-against-channel plot
-
-
-def legend_html() -> str:
-    """The chart legend as HTML (colour swatches and the meaning of the tints)."""
-    swatch = (
-        '<span style="display:inline-block;width:26px;height:6px;margin:0 6px 2px 14px;'
-        'background:{c};vertical-align:middle"></span>{t}'
-    )
-    parts = [swatch.format(c=colour, t=text) for text, colour in CATEGORIES.values()]
-    tint = (
-        '<span style="display:inline-block;width:26px;height:12px;margin:0 6px 0 14px;vertical-align:middle;'
-        'background:linear-gradient(90deg,rgba(86,180,233,0),rgba(86,180,233,.45),rgba(86,180,233,0))"></span>'
-        "filter passband, fading through its skirts (input side blue, output side green)"
-    )
-    head = "<b>Margin after the filters (lines, strips, dots and table alike):</b>"
-    return head + "".join(parts) + "<br><b>Shading:</b>" + tint
+    legend: Any = None
+    margin_hover: Any = None
 
 
 _HOVER_POINTS = [
@@ -648,6 +650,35 @@ _HOVER_POINTS = [
     ("filter loss set by", "@loss_limit"),
     ("margin", "@margin_text"),
 ]
+
+#: A hover's filter: a row's tooltip is shown only if none of the renderers drawn above it (``above``)
+#: is under the pointer too, so one tooltip shows at a time, the topmost thing's.
+_ONLY_IF_NOTHING_ABOVE = """
+const vars = cb_data.vars;
+const plot_view = vars.glyph_view.parent.parent;
+const geometry = {type: "point", sx: vars.sx, sy: vars.sy};
+for (const renderer of above) {
+  const view = plot_view.views.find_one(renderer);
+  if (view == null || !renderer.visible) continue;
+  const hit = view.hit_test(geometry);
+  if (hit != null && !hit.is_empty()) return false;
+}
+return true;
+"""
+
+
+def _hover(renderer: Any, tooltips: list, above: list) -> Any:
+    """One renderer's hover: the topmost row under the pointer only (rows are in draw order), and
+    nothing while a renderer in ``above`` (drawn over it) is under the pointer too."""
+    from bokeh.models import CustomJS, HoverTool
+
+    filters = {"$index": CustomJS(args={"above": above}, code=_ONLY_IF_NOTHING_ABOVE)} if above else {}
+    return HoverTool(renderers=[renderer], tooltips=tooltips, sort_by=[("$index", "descending")], limit=1,
+                     filters=filters, description=f"Hover: {renderer.name}")
+
+
+def _margin_tooltips(unit: str) -> list:
+    return [("channel", f"@x{{0.000[000]}} {unit}"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]
 
 
 def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix: str = "") -> ChartHandle:
@@ -668,12 +699,15 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     ChartHandle
     """
     from bokeh.layouts import column, row
-    from bokeh.models import BoxEditTool, ColumnDataSource, Div, HoverTool, Range1d, Span
+    from bokeh.models import BoxEditTool, ColumnDataSource, Div, Range1d, Span
     from bokeh.plotting import figure
 
     src = {name: ColumnDataSource(data=dict(cols), name=prefix + name) for name, cols in data.sources.items()}
     meta = data.meta
     tw, ow = meta["tuning_window"], meta["output_window"]
+    ink, green = PALETTE["plan"], PALETTE["filter"]
+    shade = {"fill_color": green, "fill_alpha": "alpha", "line_alpha": 0}
+    band_style = {"fill_alpha": 0, "line_color": ink, "line_width": 2, "line_dash": "dashed"}
 
     def make(name: str, title: str, win: tuple[float, ...]) -> Any:
         fig = figure(
@@ -686,8 +720,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
             tools="pan,wheel_zoom,box_zoom,reset,save",
             active_scroll="wheel_zoom",
             toolbar_location="right",  # leaves the title the full width
-            background_fill_color="#FFFFFF",
-            border_fill_color="#FFFFFF",
+            background_fill_color=PALETTE["background"],
+            border_fill_color=PALETTE["background"],
             output_backend="canvas",
         )
         fig.title.text_font_size = "14pt"
@@ -695,49 +729,39 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
             axis.axis_label_text_font_size = "13pt"
             axis.major_label_text_font_size = "11pt"
             axis.axis_label_text_font_style = "normal"
-        fig.grid.grid_line_color = "#E4E4E4"
+        fig.grid.grid_line_color = PALETTE["grid"]
         return fig
 
     tuning = make(prefix + "tuning_plane", meta["tuning_title"], tw)
     tuning.xaxis.axis_label = meta["tuning_x_label"]
     tuning.yaxis.axis_label = meta["tuning_y_label"]
-    # shading first, then strips, the plan, marks and points on top
-    tuning.vstrip(
-        x0="x0", x1="x1", source=src["tuning_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
-        name="tuning_skirt",
-    )
-    tuning.patches(
-        xs="xs", ys="ys", source=src["tuning_track"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
-        name="tracking_shading",
-    )
-    band_t = tuning.vstrip(
-        x0="x0", x1="x1", source=src["rf_band"], fill_color=_TINT_IN, fill_alpha=0.10,
-        line_color=_TINT_IN, line_width=2, line_dash="dashed", name="rf_band_tuning",
-    )
+    # shading first, then the band, the strips, the plan, marks and points on top
+    tuning.vstrip(x0="x0", x1="x1", source=src["tuning_skirt"], name="tuning_shading", **shade)
+    tuning.patches(xs="xs", ys="ys", source=src["tuning_track"], name="tracking_shading", **shade)
+    band_t = tuning.vstrip(x0="x0", x1="x1", source=src["rf_band"], name="rf_band_tuning", **band_style)
     strips = tuning.patches(
-        xs="xs", ys="ys", source=src["tuning_strips"], fill_color="color", fill_alpha="fill_alpha",
-        line_color="color", line_alpha="alpha", line_width=1, name="strips",
+        xs="xs", ys="ys", source=src["tuning_strips"], fill_alpha=0, hatch_pattern="hatch", hatch_color="color",
+        hatch_alpha=1.0, hatch_scale=HATCH_SCALE, hatch_weight="hatch_weight", line_color="color",
+        line_width="outline", name="strips",
     )
-    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color="#1A1A1A", line_width=2.5, name="plan_line")
+    tuning.line(x="x", y="y", source=src["tuning_plan"], line_color=ink, line_width=2.5, name="plan_line")
     marks = tuning.segment(
         x0="x0", y0="y0", x1="x1", y1="y1", source=src["tuning_marks"], line_color="color", line_width=4,
         line_cap="butt", name="channel_marks",
     )
     pts_t = tuning.scatter(
-        x="x", y="y", source=src["tuning_points"], size=9, fill_color="color", line_color="#1A1A1A",
-        line_width=0.5, marker="diamond", name="tuning_points",
+        x="x", y="y", source=src["tuning_points"], size=9, fill_color="color", line_color=ink,
+        line_width=0.5, marker="diamond", name="lo_points",
     )
     tuning.scatter(
         x="x", y="y", source=src["tuning_now"], size=16, marker="circle_cross", fill_alpha=0,
-        line_color="#1A1A1A", line_width=2.5, name="current_channel",
+        line_color=ink, line_width=2.5, name="current_channel",
     )
     tuning.add_tools(
-        HoverTool(renderers=[strips], tooltips=[("product", "@label"), ("table level", "@level{0.0} dBc"),
-                                                ("worst margin after the filters", "@margin{+0.0} dB")]),
-        HoverTool(
-            renderers=[marks], tooltips=[("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]
-        ),
-        HoverTool(renderers=[pts_t], tooltips=_HOVER_POINTS),
+        _hover(pts_t, _HOVER_POINTS, []),
+        _hover(marks, [("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")], [pts_t]),
+        _hover(strips, [("product", "@label"), ("table level", "@level{0.0} dBc"),
+                        ("worst margin after the filters", "@margin{+0.0} dB")], [pts_t, marks]),
     )
     edit_t = BoxEditTool(renderers=[band_t], dimensions="width", num_objects=1, description="Drag the RF band")
     tuning.add_tools(edit_t)
@@ -745,46 +769,32 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     output = make(prefix + "output_plane", meta["output_title"], ow)
     output.xaxis.axis_label = meta["output_x_label"]
     output.yaxis.axis_label = meta["output_y_label"]
-    output.vstrip(
-        x0="x0", x1="x1", source=src["out_input_skirt"], fill_color=_TINT_IN, fill_alpha="alpha", line_alpha=0,
-        name="input_skirt",
-    )
-    output.hstrip(
-        y0="y0", y1="y1", source=src["out_output_skirt"], fill_color=_TINT_OUT, fill_alpha="alpha", line_alpha=0,
-        name="output_skirt",
-    )
-    out_band = output.hstrip(
-        y0="y0", y1="y1", source=src["out_output_band"], fill_color=_TINT_OUT, fill_alpha=0.12,
-        line_color=_TINT_OUT, line_width=2, line_dash="dashed", name="output_band",
-    )
-    in_band = output.vstrip(
-        x0="x0", x1="x1", source=src["out_input_band"], fill_color=_TINT_IN, fill_alpha=0.10,
-        line_color=_TINT_IN, line_width=2, line_dash="dashed", name="input_band",
-    )
+    output.vstrip(x0="x0", x1="x1", source=src["out_input_skirt"], name="input_skirt", **shade)
+    output.hstrip(y0="y0", y1="y1", source=src["out_output_skirt"], name="output_skirt", **shade)
+    out_band = output.hstrip(y0="y0", y1="y1", source=src["out_output_band"], name="output_band", **band_style)
+    in_band = output.vstrip(x0="x0", x1="x1", source=src["out_input_band"], name="input_band", **band_style)
     segs = output.segment(
         x0="x0", y0="y0", x1="x1", y1="y1", source=src["out_lines"], line_color="color",
-        line_width="width", line_alpha="alpha", name="product_lines",
+        line_width="width", name="product_lines",
     )
     pts = output.scatter(
-        x="x", y="y", source=src["out_points"], size="size", fill_color="color", line_color="#1A1A1A",
+        x="x", y="y", source=src["out_points"], size="size", fill_color="color", line_color=ink,
         line_width=0.6, name="product_points",
     )
     off = output.scatter(
         x="x", y="y", source=src["out_offchart"], marker="triangle", angle="angle", size=13,
-        fill_color="color", line_color="#1A1A1A", line_width=0.6, name="offchart_marks",
+        fill_color="color", line_color=ink, line_width=0.6, name="offchart_marks",
     )
     output.text(
-        x="x", y="y", text="text", source=src["out_offchart"], text_font_size="10px", text_color="#1A1A1A",
-        x_offset="dx", y_offset=-4, text_align="align", text_baseline="middle", name="offchart_text",
-    )
+        x="x", y="y", text="text", source=src["out_offchart"], text_font_size="10px", text_color=ink,
+        x_offset="dx", y_offset="dy", text_align="align", text_baseline="baseline", name="offchart_text",
+        background_fill_color=PALETTE["background"], background_fill_alpha=1.0, padding=1,
+    )  # on white: legible over the bands and lines
     output.add_tools(
-        HoverTool(renderers=[pts], tooltips=_HOVER_POINTS),
-        HoverTool(renderers=[off], tooltips=[("off the chart", "@text")]),
-        HoverTool(
-            renderers=[segs], tooltips=[("product", "@label"), ("table level", "@level{0.0} dBc"),
-                                        ("worst margin here, after the filters", "@margin{+0.0} dB")],
-            line_policy="nearest",
-        ),
+        _hover(pts, _HOVER_POINTS, []),
+        _hover(off, [("off the chart", "@text")], [pts]),
+        _hover(segs, [("product", "@label"), ("table level", "@level{0.0} dBc"),
+                      ("worst margin here, after the filters", "@margin{+0.0} dB")], [pts, off]),
     )
     edit = BoxEditTool(
         renderers=[out_band, in_band], dimensions="both", num_objects=1,
@@ -798,28 +808,30 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     margin_fig = figure(
         name=prefix + "margin_plot", title="Worst margin against channel (click to pick a channel)", width=2 * width,
         height=190, x_range=tuning.x_range, tools="pan,box_zoom,reset,save", toolbar_location="right",
-        background_fill_color="#FFFFFF", border_fill_color="#FFFFFF", output_backend="canvas",
+        background_fill_color=PALETTE["background"], border_fill_color=PALETTE["background"],
+        output_backend="canvas",
         active_drag=None,  # a click is a tap that picks a channel, not the start of a pan
     )
     margin_fig.xaxis.axis_label = meta["tuning_x_label"]
     margin_fig.yaxis.axis_label = "worst margin (dB)"
-    margin_fig.grid.grid_line_color = "#E4E4E4"
+    margin_fig.grid.grid_line_color = PALETTE["grid"]
     margin_fig.add_layout(Span(location=0.0, dimension="width", line_color=CATEGORIES["violates"][1],
                                line_width=2, line_dash="dashed"))
     margin_fig.add_layout(Span(location=CLOSE_DB, dimension="width", line_color=CATEGORIES["close"][1],
                                line_width=1, line_dash="dotted"))
-    margin_fig.line(x="x", y="y", source=src["margin_channels"], line_color="#9AA5B1", line_width=1)
+    margin_fig.line(x="x", y="y", source=src["margin_channels"], line_color=ink, line_width=1)
     m_pts = margin_fig.scatter(x="x", y="y", source=src["margin_channels"], size=5, fill_color="color",
                                line_color="color", name="margin_points")
     margin_fig.scatter(x="x", y="y", source=src["margin_now"], size=13, marker="circle_cross", fill_alpha=0,
-                       line_color="#1A1A1A", line_width=2, name="margin_now_mark")
-    margin_fig.add_tools(HoverTool(renderers=[m_pts], tooltips=[("channel", "@x{0.000[000]}"), ("worst", "@label"),
-                                                                  ("margin", "@margin{+0.0} dB")]))
-    legend = Div(text=legend_html(), name="chart_legend", styles={"font-size": "13px"})
+                       line_color=ink, line_width=2, name="margin_now_mark")
+    margin_hover = _hover(m_pts, _margin_tooltips(meta["units"]["tuning_x"]), [])
+    margin_fig.add_tools(margin_hover)
+    legend = Div(text=legend_html(meta["direction"]), name=prefix + "chart_legend", width=2 * width,
+                 styles={"font-size": "13px"})  # as wide as the planes: its entries wrap there
     layout = column(legend, row(tuning, output), margin_fig, name="mixchart_chart")
     handle = ChartHandle(
         layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t,
-        margin=margin_fig,
+        margin=margin_fig, legend=legend, margin_hover=margin_hover,
     )
     handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
     handle.last = dict(data.sources)
@@ -829,9 +841,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
 def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = False) -> None:
     """Push new data into the built chart.
 
-    Only ``source.data`` is assigned; titles and axis labels are assigned
-    when their text changes, and ranges when the plotted window changes (so a
-    user's zoom survives a channel change) or when ``reset_ranges``.
+    Only ``source.data`` is assigned; titles, axis labels, the legend and the margin plot's
+    hover are assigned when their text changes, and ranges when the plotted window changes
+    (so a user's zoom survives a channel change) or when ``reset_ranges``.
 
     Parameters
     ----------
@@ -854,6 +866,12 @@ def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = F
     _set(handle.tuning.yaxis[0], "axis_label", meta["tuning_y_label"])
     _set(handle.output.xaxis[0], "axis_label", meta["output_x_label"])
     _set(handle.output.yaxis[0], "axis_label", meta["output_y_label"])
+    if handle.margin is not None:
+        _set(handle.margin.xaxis[0], "axis_label", meta["tuning_x_label"])
+    if handle.legend is not None:
+        _set(handle.legend, "text", legend_html(meta["direction"]))
+    if handle.margin_hover is not None:
+        _set(handle.margin_hover, "tooltips", _margin_tooltips(meta["units"]["tuning_x"]))
     for key, fig in (("tuning", handle.tuning), ("output", handle.output)):
         win = tuple(meta[f"{key}_window"])
         if reset_ranges or not _close(win, handle.windows.get(key)):

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import copy
 import math
+import re
 
 import numpy as np
 import pytest
@@ -150,7 +151,8 @@ def test_the_current_channel_and_the_bands(fm):
 
 def test_strip_colours_tell_the_same_story_as_the_table(fm):
     # One verdict (issue "a planner you can drive", item 5): a strip takes its product's worst margin
-    # across the tuning range after the filters, the table's row; the image strip takes the image's.
+    # across the tuning range after the filters, the table's row; the image and half-IF strips take
+    # the verdict of the image and half-IF responses (the table's rows of those names).
     ev, data = fm
     strips = data.sources["tuning_strips"]
     wbp = ev.worst_by_product
@@ -159,8 +161,8 @@ def test_strip_colours_tell_the_same_story_as_the_table(fm):
         if label.startswith("wanted"):
             assert category == "wanted"
             continue
-        if label.startswith("image"):
-            rows = wbp[wbp["label"] == "image"]
+        if label.startswith(("image ", "half-IF ")):
+            rows = wbp[wbp["label"] == label.split(" (")[0]]
         else:
             sign = 1 if "sum" in label else -1
             rows = wbp[(wbp["kind"] == "product") & (wbp["rf_harmonic"] == m) & (wbp["lo_harmonic"] == n)
@@ -323,12 +325,11 @@ def test_strip_category_colour_and_style_follow_the_requirement(down):
     ev, data = down
     s = data.sources["tuning_strips"]
     req = ev.plan.requirement.min_rejection_db
-    widths, alphas = {}, {}
-    for label, cat, colour, width, alpha in zip(s["label"], s["category"], s["color"], s["width"], s["alpha"],
-                                                strict=True):
+    styles = {}
+    for label, cat, colour, hatch, weight, outline in zip(s["label"], s["category"], s["color"], s["hatch"],
+                                                           s["hatch_weight"], s["outline"], strict=True):
         assert colour == CATEGORIES[cat][1]  # the legend's colour for the category
-        widths.setdefault(cat, set()).add(float(width))
-        alphas.setdefault(cat, set()).add(float(alpha))
+        styles.setdefault(cat, set()).add((hatch, float(weight), float(outline)))
         if cat == "wanted":
             continue
         # the strip's after-filter margin (its product's worst across the range): < 0 violates,
@@ -342,10 +343,11 @@ def test_strip_category_colour_and_style_follow_the_requirement(down):
     k = s["label"].index("image (1,1)")
     assert s["level"][k] == pytest.approx(0.0) and s["category"][k] == "violates"
     assert s["margin"][k] == pytest.approx(-req)
-    # one style per category (a violation is drawn no thinner than a clear product)
-    assert all(len(v) == 1 for v in widths.values()) and all(len(v) == 1 for v in alphas.values())
-    if "violates" in widths and "clear" in widths:
-        assert min(widths["violates"]) > max(widths["clear"])
+    # one style per category, each its own (a violation's outline no thinner than a clear product's)
+    assert all(len(v) == 1 for v in styles.values())
+    assert len({next(iter(v)) for v in styles.values()}) == len(styles)
+    if "violates" in styles and "clear" in styles:
+        assert next(iter(styles["violates"]))[2] > next(iter(styles["clear"]))[2]
 
 
 def test_down_points_along_the_lo_are_the_hand_enumerated_responses(down):
@@ -675,3 +677,288 @@ def test_margin_against_channel_is_every_channels_worst_margin(fm):
     assert now["x"] == [pytest.approx(ev.channels_hz[i] / MHz)] and now["y"] == [pytest.approx(ev.worst_margin_db[i])]
     handle = build_chart(data)
     assert handle.margin.x_range is handle.tuning.x_range  # zoom one, zoom both
+
+
+# ---------------------------------------------------------------------- axes, units, clutter, tooltips
+#
+# Issue "Axes, units, clutter" and "Tooltips".  An AM broadcast receiver invented for these tests:
+# RF 530-1700 kHz in 10 kHz steps, 10 kHz signal, high-side LO, a 455 kHz IF 10 kHz wide.
+
+def _am_receiver() -> dict:
+    return {"name": "test AM receiver", "direction": "down",
+            "rf": {"start_hz": "530 kHz", "stop_hz": "1700 kHz", "step_hz": "10 kHz"},
+            "signal": {"bandwidth_hz": "10 kHz", "level_dbm": -40}, "lo": {"mode": "tracking", "side": "high"},
+            "if": {"center_hz": "455 kHz", "bandwidth_hz": "10 kHz"}, "max_order": 5,
+            "requirement": {"min_rejection_db": 50}}
+
+
+@pytest.mark.parametrize(("plan", "units", "labels"), [
+    # FM: RF 88-108 MHz, LO 98.7-118.7 MHz, the IF axis 10.7 MHz +/- 3.5 x 230 kHz: all in MHz
+    ("fm_receiver", {"tuning_x": "MHz", "tuning_y": "MHz", "output_x": "MHz", "output_y": "MHz"},
+     ("RF input (MHz)", "LO (MHz)", "RF input (MHz)", "IF output (MHz)")),
+    # AM: the IF axis 455 kHz +/- 3.5 x 10 kHz = 420-490 kHz reads in kHz; the RF and LO axes (about
+    # 0.4-2.7 MHz, their middles 1.6 MHz) in MHz
+    ("am", {"tuning_x": "MHz", "tuning_y": "MHz", "output_x": "MHz", "output_y": "kHz"},
+     ("RF input (MHz)", "LO (MHz)", "RF input (MHz)", "IF output (kHz)")),
+    # uplink: the IF input axis 0-380 MHz in MHz (not 0.14 GHz), the RF output and the LO in GHz
+    ("uplink_transmitter", {"tuning_x": "GHz", "tuning_y": "GHz", "output_x": "MHz", "output_y": "GHz"},
+     ("RF output (GHz)", "LO (GHz)", "IF input (MHz)", "RF output (GHz)")),
+])
+def test_each_axis_picks_its_own_unit(plan, units, labels):
+    # Each axis's unit shows its middle with 1 to 3 integer digits (engineering notation, common
+    # practice, no source), so its tick labels read between about 1 and 1000; the label names it.
+    ev = evaluate(plan_from_dict(_am_receiver()) if plan == "am" else load_plan(example_path(plan)))
+    data = chart_data(ev)
+    meta = data.meta
+    assert meta["units"] == units
+    assert (meta["tuning_x_label"], meta["tuning_y_label"], meta["output_x_label"], meta["output_y_label"]) == labels
+    hz = {"kHz": 1e3, "MHz": 1e6, "GHz": 1e9}
+    assert meta["scales"] == {axis: hz[u] for axis, u in units.items()}
+    windows = {"tuning_x": meta["tuning_window"][:2], "tuning_y": meta["tuning_window"][2:],
+               "output_x": meta["output_window"][:2], "output_y": meta["output_window"][2:]}
+    for axis, (lo, hi) in windows.items():
+        assert 1 <= 0.5 * (lo + hi) < 1000, (axis, lo, hi)
+    # every source is in its own axis's unit: the bands, the current channel and its LO, derived from the plan
+    plan_ = ev.plan
+    s = data.sources
+    half = plan_.signal.bandwidth_hz / 2
+    assert s["rf_band"]["x0"][0] * meta["scales"]["tuning_x"] == pytest.approx(plan_.rf.start_hz - half)
+    assert s["tuning_now"]["x"][0] * meta["scales"]["tuning_x"] == pytest.approx(meta["channel_hz"])
+    assert s["tuning_now"]["y"][0] * meta["scales"]["tuning_y"] == pytest.approx(meta["lo_hz"])
+    out_band = (plan_.if_.f_low_hz, plan_.if_.f_high_hz) if plan_.direction == "down" else (
+        plan_.rf.start_hz - half, plan_.rf.stop_hz + half)
+    in_band = (plan_.rf.start_hz - half, plan_.rf.stop_hz + half) if plan_.direction == "down" else (
+        plan_.if_.f_low_hz, plan_.if_.f_high_hz)
+    assert s["out_output_band"]["y0"][0] * meta["scales"]["output_y"] == pytest.approx(out_band[0])
+    assert s["out_input_band"]["x1"][0] * meta["scales"]["output_x"] == pytest.approx(in_band[1])
+    # the app converts a dragged band with its source's own scale (app.PlannerApp._drag_handler)
+    assert meta["source_scales"] == {"rf_band": meta["scales"]["tuning_x"],
+                                     "out_input_band": meta["scales"]["output_x"],
+                                     "out_output_band": meta["scales"]["output_y"]}
+    # a point on an output-plane line, mapped back to Hz with both axes' scales, lies on |m·x ± n·LO|
+    lines = s["out_lines"]
+    for x0, y0, m, n in zip(lines["x0"], lines["y0"], lines["m"], lines["n"], strict=True):
+        x, y = x0 * meta["scales"]["output_x"], y0 * meta["scales"]["output_y"]
+        lo = meta["lo_hz"]
+        assert min(abs(y - abs(m * x - n * lo)), abs(y - (m * x + n * lo))) <= 1e-9 * (abs(x) + n * lo + y), (m, n)
+
+
+def test_the_output_axis_centres_on_the_passband(fm):
+    # FM: IF passband 10.585-10.815 MHz (230 kHz); the output axis is the passband and 3 widths each
+    # side: 10.585 - 0.69 = 9.895 to 10.815 + 0.69 = 11.505 MHz (derived by hand), centred on 10.7 MHz.
+    # The rows within CLOSE_DB of their requirement above it (at the 98 MHz channel the LO leakage at
+    # 108.7 MHz, ...) would stretch it past ten passband widths (2.3 MHz): they stay marked at its edge.
+    _, data = fm
+    y0, y1 = data.meta["output_window"][2:]
+    assert (y0, y1) == pytest.approx((9.895, 11.505))
+    assert 0.5 * (y0 + y1) == pytest.approx(10.7)
+    off = data.sources["out_offchart"]
+    assert any(t.startswith("LO leakage (0,1) at 108.7 MHz") for t in off["text"]), off["text"]
+
+
+def test_the_output_axis_stretches_to_a_near_product_within_ten_passband_widths():
+    # Ku converter: IF passband 0.95-1.95 GHz (1 GHz).  The axis would be 0 (clamped) to 4.95 GHz; the
+    # LO leakage at 9.75 GHz (-16.5 dB) is within ten passband widths (10 GHz) of 0, so the axis
+    # stretches to it plus 4 % of the span: 9.75 x 1.04 = 10.14 GHz (derived by hand), and the LO
+    # leakage is a dot on the plane, no longer an edge marker; the LO harmonics (19.5 GHz and up) are
+    # beyond the ten widths and stay marked.
+    ev = evaluate(load_plan(example_path("ku_block_converter")))
+    data = chart_data(ev)
+    assert data.meta["output_window"][2:] == pytest.approx((0.0, 10.14))
+    pts, off = data.sources["out_points"], data.sources["out_offchart"]
+    assert "LO leakage" in pts["label"] and not any(t.startswith("LO leakage") for t in off["text"])
+    assert off["text"] and all(t.startswith("LO harmonic") for t in off["text"])
+
+
+def test_output_axis_window_by_hand():
+    from mixchart.chart_axes import output_axis_window
+
+    # band 4.9-5.1 MHz (0.2 MHz): 4.3-5.7 MHz; 5.5 is inside; 5.9 stretches it to 4.3-5.9 (1.6 MHz, under
+    # the 2 MHz cap of ten widths); 7.0 (2.7 MHz) and 100 MHz would not fit; 4 % of 1.6 MHz beyond 5.9
+    near = np.array([100.0, 7.0, 5.9, 5.5]) * MHz
+    assert output_axis_window((4.9 * MHz, 5.1 * MHz), near) == pytest.approx((4.3 * MHz, (5.9 + 0.064) * MHz))
+    assert output_axis_window((4.9 * MHz, 5.1 * MHz), []) == pytest.approx((4.3 * MHz, 5.7 * MHz))
+    # never below 0 Hz: 0.95-1.95 GHz gives 0-4.95 GHz
+    assert output_axis_window((0.95e9, 1.95e9), [np.nan]) == pytest.approx((0.0, 4.95e9))
+
+
+def _lab(colour: str) -> np.ndarray:
+    """CIELAB (D65) of an sRGB hex colour: sRGB decoding and matrix of IEC 61966-2-1, L*a*b* of CIE 15:2004."""
+    rgb = np.array([int(colour[i:i + 2], 16) / 255 for i in (1, 3, 5)])
+    linear = np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
+    m = np.array([[0.4124564, 0.3575761, 0.1804375], [0.2126729, 0.7151522, 0.0721750],
+                  [0.0193339, 0.1191920, 0.9503041]])
+    xyz = m @ linear / np.array([0.95047, 1.0, 1.08883])
+    f = np.where(xyz > (6 / 29) ** 3, np.cbrt(xyz), xyz / (3 * (6 / 29) ** 2) + 4 / 29)
+    return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
+
+
+def test_one_colour_one_meaning():
+    # Item 5: "blue" means one thing.  The palette maps each meaning (margin categories, the wanted
+    # conversion, filter shading, the plan's ink, the grid, the background) to a colour, injectively,
+    # and every colour chart.py or chart_style.py writes is one of them.
+    from pathlib import Path
+
+    import mixchart.chart
+    from mixchart.chart_style import PALETTE
+
+    colours = [c.upper() for c in PALETTE.values()]
+    assert len(set(colours)) == len(colours)
+    assert {k: v[1] for k, v in CATEGORIES.items()} == {k: PALETTE[k] for k in CATEGORIES}
+    for module in ("chart.py", "chart_style.py"):
+        text = (Path(mixchart.chart.__file__).parent / module).read_text(encoding="utf-8")
+        assert {c.upper() for c in re.findall(r"#[0-9A-Fa-f]{6}\b", text)} <= set(colours), module
+    # The conversion checked against a published value: sRGB red is L*a*b* (53.24, 80.09, 67.20)
+    # (Lindbloom's colour calculator, D65); white is (100, 0, 0).
+    np.testing.assert_allclose(_lab("#FF0000"), [53.2408, 80.0925, 67.2032], atol=0.01)
+    np.testing.assert_allclose(_lab("#FFFFFF"), [100.0, 0.0, 0.0], atol=0.01)
+    # Far apart (CIE76 colour difference above 30, a just-noticeable difference being about 2.3:
+    # Sharma, Digital Color Imaging Handbook, 2003), except the two neutral backdrops, grid and background.
+    names = list(PALETTE)
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            if {a, b} != {"grid", "background"}:
+                assert np.linalg.norm(_lab(PALETTE[a]) - _lab(PALETTE[b])) > 30, (a, b)
+    # Only the wanted conversion is blue: a chromatic colour (C* > 10) with a hue between the sRGB cyan
+    # and blue primaries' (their CIELAB hue angles, computed here with the same formulas)
+    def hue(c):
+        lab = _lab(c)
+        return float(np.degrees(np.arctan2(lab[2], lab[1])) % 360), float(np.hypot(lab[1], lab[2]))
+
+    cyan, blue = hue("#00FFFF")[0], hue("#0000FF")[0]
+    blues = [k for k, c in PALETTE.items() if hue(c)[1] > 10 and cyan <= hue(c)[0] <= blue]
+    assert blues == ["wanted"]
+
+
+def test_nothing_translucent_but_the_green_shading_and_strips_drawn_worst_on_top(down, fm):
+    # Item 3: overlapping strips do not blend.  Strips are hatched (no fill, hatch and outline opaque),
+    # lines, dots and marks opaque; the one translucent layer is the filter green (over white or over
+    # itself, darker).  Rows are drawn in DRAW_ORDER, the worst on top.
+    from bokeh.models import GlyphRenderer
+
+    from mixchart.chart_style import DRAW_ORDER, PALETTE, STRIP_HATCH
+
+    _, data = fm
+    handle = build_chart(data)
+    for fig in (handle.tuning, handle.output, handle.margin):
+        for r in fig.renderers:
+            if not isinstance(r, GlyphRenderer):
+                continue
+            glyph = r.glyph
+            for kind in ("fill", "line", "hatch", "text"):
+                alpha = getattr(glyph, f"{kind}_alpha", None)
+                colour = getattr(glyph, f"{kind}_color", None)
+                if alpha is None or colour is None:
+                    continue
+                translucent = not isinstance(alpha, (int, float)) or 0 < alpha < 1
+                if kind == "hatch" and getattr(glyph, "hatch_pattern", None) is None:
+                    continue
+                if translucent:
+                    assert colour == PALETTE["filter"], (r.name, kind, alpha, colour)
+    strips = handle.sources["tuning_strips"].data
+    assert all(h == STRIP_HATCH[c][0] for h, c in zip(strips["hatch"], strips["category"], strict=True))
+    rank = {c: i for i, c in enumerate(DRAW_ORDER)}
+    for which in (fm[1], down[1]):
+        for name in ("tuning_strips", "out_lines", "out_points", "tuning_points"):
+            ranks = [rank[c] for c in which.sources[name]["category"]]
+            assert ranks == sorted(ranks), name
+
+
+def test_the_half_if_locus_has_the_tables_name(fm, down):
+    # Item "Tooltips": the (2,2) response on the wanted side of the LO is "half-IF" in the table (the
+    # engine's label, products.LABELS); its strip and its output-plane arm say exactly that.
+    from mixchart.products import HALF_IF, LABELS
+
+    ev, data = fm
+    table = ev.to_frame()
+    name = LABELS[HALF_IF]
+    assert name in set(table["label"]) and name == "half-IF"
+    strips = data.sources["tuning_strips"]
+    named = [k for k, lb in enumerate(strips["label"]) if lb.startswith(name)]
+    assert [strips["label"][k] for k in named] == [f"{name} (2,2)"]
+    # its verdict is the table's half-IF row (the worst over the band), like the image strip's
+    k = named[0]
+    assert strips["margin"][k] == pytest.approx(table.loc[table["label"] == name, "margin_db"].min())
+    assert strips["category"][k] == "violates"
+    # every named strip's name is one of the table's labels, spelled the same
+    for label in strips["label"]:
+        head = label.split(" (")[0]
+        if head not in ("wanted",) and not re.match(r"^\(\d+,\d+\)", label):
+            assert head in set(table["label"]), label
+    lines = data.sources["out_lines"]
+    assert f"(2,2) {name} arm" in lines["label"]
+    # down-converter by hand: LO 20 MHz, IF 5 MHz: the half-IF responds at 20 - 2.5 = 17.5 MHz, inside the
+    # strip cut 17.45-17.55 MHz; the (2,2) on the far side of the LO (22.45-22.55 MHz) is not it
+    _, d = down
+    cuts = _cuts_at(d, 20.0)[(2, 2)]
+    by_label = {lb: (lo, hi) for lo, hi, lb, _ in cuts}
+    assert by_label[f"{name} (2,2)"] == pytest.approx((17.45, 17.55))
+    assert by_label["(2,2) difference"] == pytest.approx((22.45, 22.55))
+
+
+def test_one_hover_per_renderer_the_topmost_row_and_none_under_a_dot():
+    # Item "Tooltips": each hovered renderer has one HoverTool showing one row (the last drawn, the
+    # topmost), and a renderer's hover is filtered out while a renderer drawn above it is under the
+    # pointer (the browser test counts the tooltips on screen).
+    from bokeh.models import HoverTool
+
+    data = chart_data(evaluate(plan_from_dict(converter("down"))), ViewOptions(channel_hz=15 * MHz))
+    handle = build_chart(data)
+    above = {"strips": {"lo_points", "channel_marks"}, "channel_marks": {"lo_points"}, "lo_points": set(),
+             "product_lines": {"product_points", "offchart_marks"}, "offchart_marks": {"product_points"},
+             "product_points": set(), "margin_points": set()}
+    seen = {}
+    for fig in (handle.tuning, handle.output, handle.margin):
+        for tool in fig.tools:
+            if isinstance(tool, HoverTool):
+                (renderer,) = tool.renderers
+                assert tool.limit == 1 and tool.sort_by == [("$index", "descending")]
+                callbacks = list(tool.filters.values())
+                seen[renderer.name] = {r.name for cb in callbacks for r in cb.args["above"]}
+    assert seen == above
+
+
+
+def test_the_legend_explains_every_colour_hatch_and_mark(up, down):
+    # Items 3 and 4: the legend draws what the chart draws: each category's line (colour, width) and
+    # hatched strip (pattern, colour), each marker shape, the dashed bands and the green shading.
+    import html.parser
+
+    from mixchart.chart_style import LINE_WIDTH, PALETTE, STRIP_HATCH, legend_html
+
+    class Entries(html.parser.HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.entries, self.current = {}, None
+
+        def handle_starttag(self, tag, attrs):
+            attrs = dict(attrs)
+            if "data-meaning" in attrs:
+                self.current = attrs["data-meaning"]
+                self.entries[self.current] = []
+            elif self.current is not None:
+                self.entries[self.current].append((tag, attrs))
+
+    parser = Entries()
+    parser.feed(legend_html("down"))
+    entries = parser.entries
+    assert set(entries) == {*CATEGORIES, "plan", "channel", "response", "dot", "offchart", "band", "filter"}
+    for cat, (_, colour) in CATEGORIES.items():
+        tags = entries[cat]
+        line = next(a for t, a in tags if t == "line")
+        assert line["stroke"] == colour and float(line["stroke-width"]) == LINE_WIDTH[cat]
+        swatch = next(a for t, a in tags if t == "svg" and "data-hatch" in a)
+        assert swatch["data-hatch"] == STRIP_HATCH[cat][0]
+        assert next(a for t, a in tags if t == "path")["stroke"] == colour  # the hatch lines
+        assert next(a for t, a in tags if t == "rect")["stroke"] == colour  # the outline
+    shapes = {"channel": "circle", "response": "path", "dot": "circle", "offchart": "path"}
+    for key, tag in shapes.items():
+        assert any(t == tag and a.get("stroke") == PALETTE["plan"] for t, a in entries[key]), key
+    assert next(a for t, a in entries["band"] if t == "line")["stroke-dasharray"]
+    assert all(a.get("fill") in (None, PALETTE["filter"]) or a.get("fill", "").startswith("url(")
+               for t, a in entries["filter"] if t == "rect")
+    # the diamonds' meaning follows the direction, and the built chart's legend is that of its plan
+    assert "a response at the current LO" in legend_html("down")
+    assert "an output product at the current LO" in legend_html("up")
+    assert build_chart(up[1]).legend.text == legend_html("up")
+    assert build_chart(down[1]).legend.text == legend_html("down")

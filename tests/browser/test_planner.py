@@ -323,12 +323,14 @@ def test_dragging_the_if_band_changes_the_plan_in_python(app):
     (_, sy0), (_, sy1) = bh.data_to_screen(page, "output_plane", [(x, y_mid), (x, y_mid + 1.0)])
     mhz_per_px = 1.0 / abs(sy1 - sy0)
 
-    bh.drag(page, "output_plane", (x, y_mid), (x, y_mid + 1.0))  # up by 1 MHz
+    # up by 0.5 MHz: the IF axis shows the passband and three widths each side (10.7 MHz +/- 0.805 MHz,
+    # chart_axes.output_axis_window), so the drag ends inside the plot
+    bh.drag(page, "output_plane", (x, y_mid), (x, y_mid + 0.5))
 
     # The kernel received the edit, applied it, snapped it and showed it in the IF field.
     text = _wait_until(lambda: (t := _field(page, "if-center")) != if0_text and t, "a new IF centre in the field")
     if1 = parse_frequency(text)
-    assert if1 == pytest.approx(if0 + 1.0 * MHZ, abs=2 * mhz_per_px * MHZ), text
+    assert if1 == pytest.approx(if0 + 0.5 * MHZ, abs=2 * mhz_per_px * MHZ), text
     assert if1 == float(f"{if1:.6g}")  # snapped to 6 significant digits: no float drift
     status = _wait_until(lambda: (s := _status(page)) != status0 and s, "a new status")
     assert f"IF {format_frequency(if1)}" in status
