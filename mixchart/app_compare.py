@@ -145,8 +145,11 @@ def _freq(f_hz: float) -> str:
     return "\u2014" if not math.isfinite(f_hz) else html.escape(format_frequency(float(f_hz), 7))
 
 
-def _scales(meta: dict[str, Any]) -> dict[str, Any]:
-    return {k: v for k, v in meta.items() if "scale" in k or "unit" in k}
+def _axis_scales(meta: dict[str, Any]) -> dict[str, Any]:
+    """Each axis's display scale and unit (e.g. ``{"output_y": (1e6, "MHz"), ...}``); a normalised axis's
+    scale is the channel's LO, so it differs between plans and the zoom is not followed."""
+    scales, units = meta.get("scales", {}), meta.get("units", {})
+    return {k: (scales[k], units.get(k)) for k in scales}
 
 
 class ReferencePanel:
@@ -188,12 +191,11 @@ class ReferencePanel:
         else:
             with self.widget.batch():
                 update_chart(self.chart, data, reset_ranges=True)
-        mine, theirs = _scales(data.meta), _scales(edited_meta)
         # a plane follows the edited zoom when its axes mean the same (same units, same normalisation);
         # the output plane also needs the reference's passband inside the edited plane's output window
+        mine, theirs = _axis_scales(data.meta), _axis_scales(edited_meta)
         self.same_zoom = {
-            plane: mine.keys() == theirs.keys() and all(mine[k] == theirs[k] for k in mine if k.startswith("out")
-                                                        == (plane == "output"))
+            plane: all(mine.get(k) == theirs.get(k) and k in mine for k in (f"{plane}_x", f"{plane}_y"))
             for plane in ("tuning", "output")
         }
         band = data.sources["out_output_band"]
