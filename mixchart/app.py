@@ -507,8 +507,9 @@ def _warnings_html(ev: Evaluation) -> str:
 #: Page styles of the app: the sticky banner (verdict and warnings).
 _APP_CSS = """<style>
 .mixchart-banner { position: sticky; top: 0; z-index: 20; background: #FFFFFF;
-                   border-bottom: 1px solid #D5DAE0; padding: 2px 0 4px 0;
-                   box-shadow: 0 -16px 0 #FFFFFF; /* covers the scroller's top padding above it */ }
+                   border-bottom: 1px solid #D5DAE0; padding: 2px 0 4px 0; margin-top: 14px !important;
+                   box-shadow: 0 -14px 0 #FFFFFF; /* covers the scroller's top padding (its own margin
+                                                     when not stuck, so nothing above it is hidden) */ }
 .mixchart-app, .mixchart-app > .widget-box { overflow: visible !important; }
 /* the notebook's output area scrolls its own overflow, which would hold the banner: let the page scroll */
 .jp-OutputArea:has(.mixchart-app), .jp-OutputArea-child:has(.mixchart-app),

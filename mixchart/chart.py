@@ -43,6 +43,7 @@ import numpy as np
 
 from .analysis import Evaluation
 from .chart_axes import axis_unit, output_axis_window, plane_windows
+from .chart_bands import band_box, set_band
 from .chart_style import (
     CATEGORIES,
     CLOSE_DB,
@@ -617,8 +618,9 @@ class ChartHandle:
         Worst margin against channel (``"margin_plot"``), sharing the tuning plane's RF axis.
     sources : dict of str to ColumnDataSource
         Every source by name; updates assign ``.data``.
-    band_edit : BoxEditTool
-        The tool that drags the bands.
+    bands : dict of str to BoxAnnotation
+        The draggable bands by their source's name (``rf_band``, ``out_output_band``,
+        ``out_input_band``); see :mod:`mixchart.chart_bands`.
     windows : dict
         The windows last applied to the ranges.
     legend : bokeh.models.Div
@@ -631,8 +633,7 @@ class ChartHandle:
     tuning: Any
     output: Any
     sources: dict[str, Any]
-    band_edit: Any
-    band_edit_tuning: Any
+    bands: dict[str, Any]
     windows: dict[str, tuple[float, ...]] = field(default_factory=dict)
     last: dict[str, dict[str, Any]] = field(default_factory=dict)
     margin: Any = None  # the margin-against-channel plot
@@ -681,7 +682,8 @@ def _margin_tooltips(unit: str) -> list:
     return [("channel", f"@x{{0.000[000]}} {unit}"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")]
 
 
-def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix: str = "") -> ChartHandle:
+def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix: str = "",
+                editable: bool = True) -> ChartHandle:
     """Build the figures once, around named sources filled from ``data``.
 
     Parameters
@@ -693,13 +695,16 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     prefix : str
         Put before every figure's and source's Bokeh ``name`` (e.g. ``"reference_"`` for a
         second chart on the same page, so that each name finds one model).
+    editable : bool
+        Whether the bands can be dragged by their handles (:mod:`mixchart.chart_bands`); False
+        for a static snapshot, where nothing would recompute.
 
     Returns
     -------
     ChartHandle
     """
     from bokeh.layouts import column, row
-    from bokeh.models import BoxEditTool, ColumnDataSource, Div, Range1d, Span
+    from bokeh.models import ColumnDataSource, Div, Range1d, Span
     from bokeh.plotting import figure
 
     src = {name: ColumnDataSource(data=dict(cols), name=prefix + name) for name, cols in data.sources.items()}
@@ -707,7 +712,6 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     tw, ow = meta["tuning_window"], meta["output_window"]
     ink, green = PALETTE["plan"], PALETTE["filter"]
     shade = {"fill_color": green, "fill_alpha": "alpha", "line_alpha": 0}
-    band_style = {"fill_alpha": 0, "line_color": ink, "line_width": 2, "line_dash": "dashed"}
 
     def make(name: str, title: str, win: tuple[float, ...]) -> Any:
         fig = figure(
@@ -718,7 +722,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
             x_range=Range1d(win[0], win[1]),
             y_range=Range1d(win[2], win[3]),
             tools="pan,wheel_zoom,box_zoom,reset,save",
-            active_scroll="wheel_zoom",
+            active_drag="pan",  # a drag on the plot pans; the bands move only by their handles
+            active_scroll=None,  # the wheel scrolls the page until the user picks wheel-zoom
             toolbar_location="right",  # leaves the title the full width
             background_fill_color=PALETTE["background"],
             border_fill_color=PALETTE["background"],
@@ -738,7 +743,6 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     # shading first, then the band, the strips, the plan, marks and points on top
     tuning.vstrip(x0="x0", x1="x1", source=src["tuning_skirt"], name="tuning_shading", **shade)
     tuning.patches(xs="xs", ys="ys", source=src["tuning_track"], name="tracking_shading", **shade)
-    band_t = tuning.vstrip(x0="x0", x1="x1", source=src["rf_band"], name="rf_band_tuning", **band_style)
     strips = tuning.patches(
         xs="xs", ys="ys", source=src["tuning_strips"], fill_alpha=0, hatch_pattern="hatch", hatch_color="color",
         hatch_alpha=1.0, hatch_scale=HATCH_SCALE, hatch_weight="hatch_weight", line_color="color",
@@ -763,16 +767,18 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
         _hover(strips, [("product", "@label"), ("table level", "@level{0.0} dBc"),
                         ("worst margin after the filters", "@margin{+0.0} dB")], [pts_t, marks]),
     )
-    edit_t = BoxEditTool(renderers=[band_t], dimensions="width", num_objects=1, description="Drag the RF band")
-    tuning.add_tools(edit_t)
+    bands = {"rf_band": band_box(tuning, src["rf_band"], vertical=True, editable=editable,
+                                 name=prefix + "rf_band_box", line_color=ink)}
 
     output = make(prefix + "output_plane", meta["output_title"], ow)
     output.xaxis.axis_label = meta["output_x_label"]
     output.yaxis.axis_label = meta["output_y_label"]
     output.vstrip(x0="x0", x1="x1", source=src["out_input_skirt"], name="input_skirt", **shade)
     output.hstrip(y0="y0", y1="y1", source=src["out_output_skirt"], name="output_skirt", **shade)
-    out_band = output.hstrip(y0="y0", y1="y1", source=src["out_output_band"], name="output_band", **band_style)
-    in_band = output.vstrip(x0="x0", x1="x1", source=src["out_input_band"], name="input_band", **band_style)
+    bands["out_output_band"] = band_box(output, src["out_output_band"], vertical=False, editable=editable,
+                                        name=prefix + "output_band_box", line_color=ink)
+    bands["out_input_band"] = band_box(output, src["out_input_band"], vertical=True, editable=editable,
+                                       name=prefix + "input_band_box", line_color=ink)
     segs = output.segment(
         x0="x0", y0="y0", x1="x1", y1="y1", source=src["out_lines"], line_color="color",
         line_width="width", name="product_lines",
@@ -796,13 +802,6 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
         _hover(segs, [("product", "@label"), ("table level", "@level{0.0} dBc"),
                       ("worst margin here, after the filters", "@margin{+0.0} dB")], [pts, off]),
     )
-    edit = BoxEditTool(
-        renderers=[out_band, in_band], dimensions="both", num_objects=1,
-        description="Drag the passband or the input band",
-    )
-    output.add_tools(edit)
-    output.toolbar.active_drag = edit
-    tuning.toolbar.active_drag = edit_t
 
     # worst margin against channel, on the tuning plane's RF axis (zooming one zooms both); a click picks
     margin_fig = figure(
@@ -830,7 +829,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
                  styles={"font-size": "13px"})  # as wide as the planes: its entries wrap there
     layout = column(legend, row(tuning, output), margin_fig, name="mixchart_chart")
     handle = ChartHandle(
-        layout=layout, tuning=tuning, output=output, sources=src, band_edit=edit, band_edit_tuning=edit_t,
+        layout=layout, tuning=tuning, output=output, sources=src, bands=bands,
         margin=margin_fig, legend=legend, margin_hover=margin_hover,
     )
     handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
@@ -859,6 +858,8 @@ def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = F
             continue  # no event, no message
         handle.sources[name].data = dict(cols)
         handle.last[name] = cols
+    for name, box in handle.bands.items():  # after a drag the box may sit off the snapped value
+        set_band(box, data.sources[name], vertical=name != "out_output_band")
     meta = data.meta
     _set(handle.tuning.title, "text", meta["tuning_title"])
     _set(handle.output.title, "text", meta["output_title"])

@@ -290,13 +290,10 @@ def _failing_runs(ev: Evaluation) -> str:
 
 
 def _snapshot_chart(ev: Evaluation, view: ViewOptions) -> Any:
-    """The chart's layout, with the band-editing tools removed (nothing recomputes in a static file)."""
-    from bokeh.models import BoxEditTool, InlineStyleSheet
+    """The chart's layout, with bands that cannot be dragged (nothing recomputes in a static file)."""
+    from bokeh.models import InlineStyleSheet
 
-    handle = build_chart(chart_data(ev, view))
-    for fig in (handle.tuning, handle.output):
-        fig.toolbar.tools = [t for t in fig.toolbar.tools if not isinstance(t, BoxEditTool)]
-        fig.toolbar.active_drag = "auto"
+    handle = build_chart(chart_data(ev, view), editable=False)
 
     def add(model: Any, css: str) -> None:  # a print rule inside the model's shadow root (page CSS stops outside)
         model.stylesheets = [*model.stylesheets, InlineStyleSheet(css=f"@media print {{ {css} }}")]

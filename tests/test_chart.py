@@ -962,3 +962,38 @@ def test_the_legend_explains_every_colour_hatch_and_mark(up, down):
     assert "an output product at the current LO" in legend_html("up")
     assert build_chart(up[1]).legend.text == legend_html("up")
     assert build_chart(down[1]).legend.text == legend_html("down")
+
+
+def test_bands_are_handle_dragged_boxes_and_a_plain_drag_pans():
+    # Item 3 of the planner issue: pan by default, bands move only from their handles and along their own axis.
+    pytest.importorskip("bokeh")
+    from bokeh.models import BoxAnnotation, BoxEditTool, CustomJS, PanTool
+
+    from mixchart.chart import build_chart, update_chart
+    from mixchart.chart_bands import BAND_JS
+    from mixchart.state import example_plan
+
+    plan, folder = example_plan("fm_receiver")
+    ev = evaluate(plan, base_dir=folder)
+    data = chart_data(ev)
+    handle = build_chart(data)
+    for fig in (handle.tuning, handle.output):
+        assert isinstance(fig.toolbar.active_drag, PanTool) and fig.toolbar.active_scroll is None
+        assert not any(isinstance(t, BoxEditTool) for t in fig.toolbar.tools)
+    boxes = handle.bands
+    assert set(boxes) == {"rf_band", "out_output_band", "out_input_band"}
+    for name, box in boxes.items():
+        vertical = name != "out_output_band"
+        assert isinstance(box, BoxAnnotation) and box.editable and box.use_handles
+        assert box.movable == box.resizable == ("x" if vertical else "y")
+        keys, edges = (("x0", "x1"), ("left", "right")) if vertical else (("y0", "y1"), ("bottom", "top"))
+        assert [getattr(box, e) for e in edges] == pytest.approx([data.sources[name][k][0] for k in keys])
+        links = [cb for cbs in box.js_property_callbacks.values() for cb in cbs]
+        assert links and all(isinstance(cb, CustomJS) and cb.code == BAND_JS for cb in links)
+        assert all(cb.args["src"] is handle.sources[name] for cb in links)
+    # an update (e.g. an undo, or the snapped value after a drag) moves the box to the band's new place
+    moved = chart_data(evaluate(plan.with_changes({"if.center_hz": 10.8e6}), base_dir=folder))
+    update_chart(handle, moved)
+    band = moved.sources["out_output_band"]
+    assert (boxes["out_output_band"].bottom, boxes["out_output_band"].top) == pytest.approx(
+        (band["y0"][0], band["y1"][0]))

@@ -81,10 +81,12 @@ def test_failing_channels_listed(fm):
 
 
 def test_snapshot_chart_has_no_band_editing(fm):
-    from bokeh.models import BoxEditTool
+    from bokeh.models import BoxAnnotation, BoxEditTool
 
     layout = report._snapshot_chart(fm[1], report.ViewOptions())
     assert not any(isinstance(m, BoxEditTool) for m in layout.references())
+    boxes = [m for m in layout.references() if isinstance(m, BoxAnnotation) and (m.name or "").endswith("band_box")]
+    assert len(boxes) == 3 and not any(b.editable for b in boxes)
 
 
 MALICIOUS = [

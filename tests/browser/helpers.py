@@ -262,14 +262,36 @@ def wait_for_source_change(page, source_name: str, before: dict, *, timeout_ms: 
 def drag(page, figure_name: str, start, end, *, steps: int = 12) -> None:
     """Drag with the left mouse button from data point ``start`` to ``end``.
 
-    The figure's active drag tool decides what happens (BoxEditTool moves the
-    box under ``start``; edit tools send one data change on release).
+    What happens is the figure's: a drag that starts on a band's handle moves or resizes the band
+    (see :func:`band_handle`; the band's source changes once, on release), any other drag pans.
     """
     (x0, y0), (x1, y1) = data_to_screen(page, figure_name, [start, end])
     page.mouse.move(x0, y0)
     page.mouse.down()
     page.mouse.move(x1, y1, steps=steps)
     page.mouse.up()
+
+
+def band_handle(page, figure_name: str, box_name: str, which: str = "move") -> tuple[float, float]:
+    """Data coordinates of a band's handle: ``"move"`` (its middle square), ``"low"`` or ``"high"`` (the
+    squares on its lower and upper edges).  The band is the editable ``BoxAnnotation`` named
+    ``box_name`` (mixchart.chart_bands); its handles sit in the middle of the plot across the band.
+    """
+    _ensure(page)
+    box = page.evaluate(
+        """([fig, name]) => { const f = window.__mxt.model(fig); const b = window.__mxt.model(name);
+             const num = (v) => (typeof v === "number" ? v : null);  // an unset edge is the frame's (a node)
+             return [num(b.left), num(b.right), num(b.bottom), num(b.top), f.x_range.start, f.x_range.end,
+                     f.y_range.start, f.y_range.end]; }""",
+        [figure_name, box_name],
+    )
+    left, right, bottom, top, x0, x1, y0, y1 = box
+    vertical = left is not None and right is not None
+    if vertical:
+        y = 0.5 * (y0 + y1)
+        return {"move": (0.5 * (left + right), y), "low": (min(left, right), y), "high": (max(left, right), y)}[which]
+    x = 0.5 * (x0 + x1)
+    return {"move": (x, 0.5 * (bottom + top)), "low": (x, min(bottom, top)), "high": (x, max(bottom, top))}[which]
 
 
 def slider_handle(page, slider_selector: str):

@@ -244,8 +244,8 @@ def test_dragging_the_if_band_on_its_mhz_axis_moves_the_if(app):
     band = bh.source_data(page, "out_input_band")
     x_mid = 0.5 * (band["x0"][0] + band["x1"][0])
     assert x_mid * 1e6 == pytest.approx(if0, rel=1e-9)
-    y_start = _axes(page, "output_plane")["y"]["start"]
-    y = y_start + 0.05  # below the RF output band (2.30-2.40 GHz): only the IF band is under the pointer
+    x_handle, y = bh.band_handle(page, "output_plane", "input_band_box", "move")  # the band's move handle
+    assert x_handle == pytest.approx(x_mid)
     (sx0, _), (sx1, _) = bh.data_to_screen(page, "output_plane", [(x_mid, y), (x_mid + 1.0, y)])
     mhz_per_px = 1.0 / abs(sx1 - sx0)
     bh.drag(page, "output_plane", (x_mid, y), (x_mid + 10.0, y))

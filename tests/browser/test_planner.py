@@ -317,9 +317,9 @@ def test_dragging_the_if_band_changes_the_plan_in_python(app):
     band = bh.source_data(page, "out_output_band")
     y_mid = 0.5 * (band["y0"][0] + band["y1"][0])
     assert y_mid * MHZ == pytest.approx(if0, rel=1e-9)
-    # Grab the band right of the input (RF) band, where only the IF band is.
-    x_end = _figure_attr(page, "output_plane", "x_range.end")
-    x = 0.5 * (bh.source_data(page, "out_input_band")["x1"][0] + x_end)
+    # Grab the band by its move handle (the square in its middle).
+    x, y_handle = bh.band_handle(page, "output_plane", "output_band_box", "move")
+    assert y_handle == pytest.approx(y_mid)
     (_, sy0), (_, sy1) = bh.data_to_screen(page, "output_plane", [(x, y_mid), (x, y_mid + 1.0)])
     mhz_per_px = 1.0 / abs(sy1 - sy0)
 
@@ -472,11 +472,7 @@ def test_dragging_the_rf_band_moves_the_tuning_range(app):
     start0 = parse_frequency(_field(page, "rf-start"))
     stop0 = parse_frequency(_field(page, "rf-stop"))
     step = parse_frequency(_field(page, "rf-step"))
-    band = bh.source_data(page, "rf_band")
-    x_mid = 0.5 * (band["x0"][0] + band["x1"][0])
-    y_lo = _figure_attr(page, "tuning_plane", "y_range.start")
-    y_hi = _figure_attr(page, "tuning_plane", "y_range.end")
-    y = y_lo + 0.1 * (y_hi - y_lo)  # low in the plane, clear of the plan line and the current channel
+    x_mid, y = bh.band_handle(page, "tuning_plane", "rf_band_box", "move")  # the band's move handle
     (sx0, _), (sx1, _) = bh.data_to_screen(page, "tuning_plane", [(x_mid, y), (x_mid + 1.0, y)])
     mhz_per_px = 1.0 / abs(sx1 - sx0)
 
@@ -489,6 +485,50 @@ def test_dragging_the_rf_band_moves_the_tuning_range(app):
     assert start1 == pytest.approx(start0 - 2.0 * MHZ, abs=2 * mhz_per_px * MHZ + step)
     assert stop1 - start1 == pytest.approx(stop0 - start0)
     assert round(start1 / step) * step == pytest.approx(start1)
+    _assert_clean(page)
+
+
+def test_gestures_pan_unless_they_start_on_a_band_handle(app):
+    # Item 3: a plain drag pans (inside the band too), a band moves only from its handles, an edge
+    # handle resizes it, a drag across the band's direction never changes it, and the count stays whole.
+    page = app.page
+    _open_tab(page, "Plan")
+    start0, stop0 = _field(page, "rf-start"), _field(page, "rf-stop")
+    sources0 = _canon(_sources(page, ("rf_band", "out_output_band", "out_input_band")))
+    x0 = _figure_attr(page, "tuning_plane", "x_range.start")
+    x1 = _figure_attr(page, "tuning_plane", "x_range.end")
+    y0 = _figure_attr(page, "tuning_plane", "y_range.start")
+    y1 = _figure_attr(page, "tuning_plane", "y_range.end")
+    band = bh.source_data(page, "rf_band")
+    inside = (0.5 * (band["x0"][0] + band["x1"][0]) + 0.1 * (band["x1"][0] - band["x0"][0]),
+              y0 + 0.15 * (y1 - y0))  # inside the RF band, away from its handles
+    bh.drag(page, "tuning_plane", inside, (inside[0] - 0.1 * (x1 - x0), inside[1] + 0.1 * (y1 - y0)))
+    _wait_until(lambda: _figure_attr(page, "tuning_plane", "x_range.start") != x0, "the tuning plane panned")
+    page.wait_for_timeout(500)
+    assert (_field(page, "rf-start"), _field(page, "rf-stop")) == (start0, stop0)  # the plan did not move
+    assert _canon(_sources(page, ("rf_band", "out_output_band", "out_input_band"))) == sources0
+
+    # a vertical drag of the move handle (as a shift-drag would be) leaves the band where it is
+    y0 = _figure_attr(page, "tuning_plane", "y_range.start")  # the view as panned
+    y1 = _figure_attr(page, "tuning_plane", "y_range.end")
+    hx, hy = bh.band_handle(page, "tuning_plane", "rf_band_box", "move")
+    page.keyboard.down("Shift")
+    bh.drag(page, "tuning_plane", (hx, hy), (hx, hy + 0.3 * (y1 - y0)))
+    page.keyboard.up("Shift")
+    page.wait_for_timeout(800)
+    assert (_field(page, "rf-start"), _field(page, "rf-stop")) == (start0, stop0)
+
+    # the upper edge's handle resizes: RF stop moves 2 MHz up on its raster, RF start stays
+    ex, ey = bh.band_handle(page, "tuning_plane", "rf_band_box", "high")
+    bh.drag(page, "tuning_plane", (ex, ey), (ex + 2.0, ey))
+    stop1 = _wait_until(lambda: (t := _field(page, "rf-stop")) != stop0 and t, "a new RF stop")
+    assert _field(page, "rf-start") == start0
+    step = parse_frequency(_field(page, "rf-step"))
+    assert parse_frequency(stop1) == pytest.approx(parse_frequency(stop0) + 2.0 * MHZ, abs=0.3 * MHZ)
+    assert round(parse_frequency(stop1) / step) * step == pytest.approx(parse_frequency(stop1))
+    bh.screenshot(page, app.shots / "planner_band_handles.png", full_page=False)
+    page.locator("button.mixchart-undo").click()
+    _wait_until(lambda: _field(page, "rf-stop") == stop0, "the resize undone")
     _assert_clean(page)
 
 
