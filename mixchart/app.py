@@ -1056,21 +1056,6 @@ def _show_filter(fc: FilterControls, spec: Any) -> None:
 # =================================================================== entry
 
 
-_LOADED = False
-
-
-def _load_bokehjs() -> None:
-    """Load BokehJS inline once per kernel (a CDN cannot be assumed reachable)."""
-    global _LOADED
-    if _LOADED:
-        return
-    from bokeh.io import output_notebook
-    from bokeh.resources import INLINE
-
-    output_notebook(INLINE, hide_banner=True)
-    _LOADED = True
-
-
 def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: int = 600) -> Any:
     """Show the planning app in a notebook: ``planner("my_plan.json")``.
 
@@ -1085,7 +1070,10 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
     -------
     ipywidgets.VBox
         The app widget (displayed when it is the cell's last expression); the
-        :class:`PlannerApp` is available as its ``.app`` attribute.
+        :class:`PlannerApp` is available as its ``.app`` attribute.  Each display
+        of it puts BokehJS, inline, in an output just before the app (the page
+        loads it once; see :mod:`mixchart.notebook_js`); a Voila page's title
+        follows the plan's name.
     """
     if plan is None:
         loaded, folder = example_plan()
@@ -1095,7 +1083,10 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
     else:
         path = Path(plan).resolve()
         state = PlanState(load_plan(path), path.parent, save_dir=path.parent, file_name=path.name)
-    _load_bokehjs()
+    from .notebook_js import show_with_bokehjs, title_follows_plan
+
     app = PlannerApp(state, chart_width=chart_width)
+    title_follows_plan(app)  # the tab title of a Voila page
     app.widget.app = app
-    return app.widget
+    # Each display of the app brings BokehJS to the page in an output of its own, just before the app.
+    return show_with_bokehjs(app.widget)
