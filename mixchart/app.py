@@ -286,7 +286,8 @@ def build_controls(plan: Plan, n_channels: int) -> Controls:
     c["ref_name"] = w.Text(value="", placeholder="name (blank: the plan's)", layout=w.Layout(width="170px"),
                            continuous_update=False)
     c["ref_name"].add_class("mixchart-ref-name")
-    c["keep_ref"] = w.Button(description="Keep as reference", layout=w.Layout(width="auto", min_width="150px"),
+    c["keep_ref"] = w.Button(description="Keep as reference", icon="thumb-tack",
+                             layout=w.Layout(width="auto", min_width="150px"),
                              tooltip="Keep the plan as it is now, under the name on the left, to compare with")
     c["ref_pick"] = w.Dropdown(options=[], value=None, description="compare with", layout=w.Layout(width="334px"),
                                style={"description_width": "90px"}, disabled=True)

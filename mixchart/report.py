@@ -305,7 +305,10 @@ def _snapshot_chart(ev: Evaluation, view: ViewOptions) -> Any:
     # few pixels excepted: its height is the browser's).  contain: (empty) overlay boxes BokehJS places
     # off a plot (clipped on screen) would otherwise widen the printed page, so that Chromium shrinks all
     # of it, or add blank pages at the end.  Toolbars do nothing on paper.
-    width = max(handle.tuning.width + handle.output.width, handle.margin.width)
+    margin = 0 if handle.legend is None or handle.legend.margin is None else handle.legend.margin
+    sides = 2 * margin if isinstance(margin, int | float) else margin[1] + margin[3]  # (top, right, bottom, left)
+    legend_width = 0 if handle.legend is None else (handle.legend.width or 0) + sides  # the Div's margin widens it
+    width = max(handle.tuning.width + handle.output.width, handle.margin.width, legend_width)
     height = max(handle.tuning.height, handle.output.height) + handle.margin.height
     scale = min(1.0, PRINT_WIDTH_PX / width)
     add(handle.layout, f":host {{ transform: scale({scale:.4f}); transform-origin: 0 0;"

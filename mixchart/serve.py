@@ -119,11 +119,22 @@ def write_served_folder(folder: str | os.PathLike[str], title: str) -> Path:
     notebook.write_text(json.dumps(notebook_json, indent=1), encoding="utf-8")
     config = {"VoilaConfiguration": {"template": TEMPLATE, "extension_denylist": list(DENIED_EXTENSIONS)}}
     (folder / "voila.json").write_text(json.dumps(config), encoding="utf-8")
-    template = folder / "jupyter" / "voila" / "templates" / TEMPLATE
+    write_template(folder)
+    return notebook
+
+
+def write_template(folder: str | os.PathLike[str]) -> list[str]:
+    """Write only the page template into ``folder/jupyter``; return the Voila options that use it.
+
+    For serving a notebook that lives elsewhere (the tests' Voila fixture): run Voila with these
+    options and with :func:`voila_env` of ``folder``.
+    """
+    template = Path(folder) / "jupyter" / "voila" / "templates" / TEMPLATE
     template.mkdir(parents=True, exist_ok=True)
     (template / "conf.json").write_text(json.dumps({"base_template": "lab"}), encoding="utf-8")
     (template / "index.html.j2").write_text(_template_index(), encoding="utf-8")
-    return notebook
+    denied = json.dumps(list(DENIED_EXTENSIONS))
+    return [f"--template={TEMPLATE}", f"--VoilaConfiguration.extension_denylist={denied}"]
 
 
 def voila_env(folder: str | os.PathLike[str]) -> dict[str, str]:

@@ -63,8 +63,8 @@ def test_the_charts_need_no_bokehjs_component_beyond_those_loaded() -> None:
 
     app = planner(str(EXAMPLE)).app
     app.state.keep_reference()  # the reference chart is built later, on the page loaded before
-    assert app.reference_chart is not None
-    needed = _bokeh_components([app.chart.layout, app.reference_chart.layout])
+    assert app.reference_panel.chart is not None
+    needed = _bokeh_components([app.chart.layout, app.reference_panel.chart.layout])
     assert set(needed) <= set(BOKEHJS_COMPONENTS), needed
 
 

@@ -339,7 +339,8 @@ def test_print_css(fm):
     # the chart, inside BokehJS's shadow roots, carries its own print rule: scaled to the printable width
     layout = report._snapshot_chart(ev, report.ViewOptions())
     rules = [s.css for s in layout.stylesheets if hasattr(s, "css")]
-    width = layout.select_one({"name": "margin_plot"}).width  # as wide as the two planes side by side
+    legend = layout.select_one({"name": "chart_legend"})  # as wide as the two planes, plus its margin
+    width = max(layout.select_one({"name": "margin_plot"}).width, legend.width + 2 * legend.margin)
     assert width > report.PRINT_WIDTH_PX
     assert any(f"transform: scale({report.PRINT_WIDTH_PX / width:.4f})" in r and r.startswith("@media print")
                for r in rules)

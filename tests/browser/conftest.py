@@ -350,8 +350,14 @@ def voila_server(tmp_path_factory):
 
         port = _free_port()
         log_path = Path(tmp_path_factory.mktemp("voila-log")) / f"voila-{port}.log"
+        # the page template `mixchart serve` uses: nothing fetched from a CDN, Notebook 7's extension kept out
+        from mixchart.serve import voila_env, write_template
+
+        template_dir = Path(tmp_path_factory.mktemp("voila-template"))
+        template_opts = write_template(template_dir)
         full_env = {
             **os.environ,
+            **voila_env(template_dir),
             "JUPYTER_PLATFORM_DIRS": "1",
             "JUPYTER_RUNTIME_DIR": str(runtime_dir),
             # debugpy inside ipykernel warns about frozen modules otherwise.
@@ -368,6 +374,7 @@ def voila_server(tmp_path_factory):
             f"--port={port}",
             "--Voila.ip=127.0.0.1",
             "--show_tracebacks=True",
+            *template_opts,
         ]
         log = open(log_path, "wb")
         try:

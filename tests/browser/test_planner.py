@@ -152,6 +152,7 @@ def _assert_clean(page) -> None:
     assert bh.unexpected_console_errors(page) == []
     assert bh.notebook_errors(page) == []
     assert "Traceback" not in page.locator("body").inner_text()
+    assert page.blocked_requests == []  # nothing left 127.0.0.1 (no CDN font, no icon stylesheet)
 
 
 def _nums(values) -> list:
