@@ -541,7 +541,8 @@ class PlannerApp:
 
         self.state = state
         self._syncing = False
-        self.chart: ChartHandle = build_chart(chart_data(state.evaluation, state.view), width=chart_width, height=470)
+        self.chart: ChartHandle = build_chart(chart_data(state.evaluation, state.view), width=chart_width,
+                                              height=430, fit_width=True)
         self.controls = build_controls(state.plan, state.evaluation.channels_hz.size)
         self.controls.save_path.value = state.file_name  # the file-name field follows the opened plan
         from bokeh.events import Tap
@@ -551,7 +552,11 @@ class PlannerApp:
         self.chart.margin.on_event(Tap, self._on_tap)  # the margin plot shares the tuning plane's RF axis
         self.key_commands = attach_keys(self.chart.layout, self._on_key)
         self.bokeh = BatchedBokehModel(self.chart.layout)
-        self.bokeh.layout.flex = "0 0 auto"  # never squeeze the chart: wrap it instead
+        # the chart takes the width beside the controls, down to two half-width planes; narrower, it
+        # wraps under the controls and takes the whole width there
+        self.bokeh.layout.flex = "1 1 0%"
+        self.bokeh.layout.min_width = f"{chart_width + 60}px"
+        self.bokeh.layout.width = "auto"
         self.status = w.HTML(value="")
         self.status.add_class("mixchart-status")
         self.warnings = w.HTML(value="", layout=w.Layout(max_height="104px", overflow="auto"))

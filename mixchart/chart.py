@@ -683,7 +683,7 @@ def _margin_tooltips(unit: str) -> list:
 
 
 def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix: str = "",
-                editable: bool = True) -> ChartHandle:
+                editable: bool = True, fit_width: bool = False) -> ChartHandle:
     """Build the figures once, around named sources filled from ``data``.
 
     Parameters
@@ -698,6 +698,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     editable : bool
         Whether the bands can be dragged by their handles (:mod:`mixchart.chart_bands`); False
         for a static snapshot, where nothing would recompute.
+    fit_width : bool
+        Stretch the planes, the margin plot and the legend to the width the page gives the chart
+        (each plane then at least ``width / 2`` wide); else each plane is ``width`` wide.
 
     Returns
     -------
@@ -712,6 +715,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     tw, ow = meta["tuning_window"], meta["output_window"]
     ink, green = PALETTE["plan"], PALETTE["filter"]
     shade = {"fill_color": green, "fill_alpha": "alpha", "line_alpha": 0}
+    # fitted: every part stretches across what the page gives; the planes share it half and half
+    size = {"sizing_mode": "stretch_width", "min_width": width // 2} if fit_width else {}
 
     def make(name: str, title: str, win: tuple[float, ...]) -> Any:
         fig = figure(
@@ -719,6 +724,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
             title=title,
             width=width,
             height=height,
+            **size,
             x_range=Range1d(win[0], win[1]),
             y_range=Range1d(win[2], win[3]),
             tools="pan,wheel_zoom,box_zoom,reset,save",
@@ -729,7 +735,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
             border_fill_color=PALETTE["background"],
             output_backend="canvas",
         )
-        fig.title.text_font_size = "14pt"
+        fig.title.text_font_size = "12pt"  # a half-width plane still shows the whole title
         for axis in (fig.xaxis, fig.yaxis):
             axis.axis_label_text_font_size = "13pt"
             axis.major_label_text_font_size = "11pt"
@@ -810,6 +816,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
         background_fill_color=PALETTE["background"], border_fill_color=PALETTE["background"],
         output_backend="canvas",
         active_drag=None,  # a click is a tap that picks a channel, not the start of a pan
+        **({"sizing_mode": "stretch_width", "min_width": width} if fit_width else {}),
     )
     margin_fig.xaxis.axis_label = meta["tuning_x_label"]
     margin_fig.yaxis.axis_label = "worst margin (dB)"
@@ -826,8 +833,11 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     margin_hover = _hover(m_pts, _margin_tooltips(meta["units"]["tuning_x"]), [])
     margin_fig.add_tools(margin_hover)
     legend = Div(text=legend_html(meta["direction"]), name=prefix + "chart_legend", width=2 * width,
-                 styles={"font-size": "13px"})  # as wide as the planes: its entries wrap there
-    layout = column(legend, row(tuning, output), margin_fig, name="mixchart_chart")
+                 styles={"font-size": "13px"},  # as wide as the planes: its entries wrap there
+                 **({"sizing_mode": "stretch_width"} if fit_width else {}))
+    stretch = {"sizing_mode": "stretch_width"} if fit_width else {}
+    # the planes first, so they sit at the top of the screen; the legend under them, then the margin plot
+    layout = column(row(tuning, output, **stretch), legend, margin_fig, name="mixchart_chart", **stretch)
     handle = ChartHandle(
         layout=layout, tuning=tuning, output=output, sources=src, bands=bands,
         margin=margin_fig, legend=legend, margin_hover=margin_hover,

@@ -675,6 +675,48 @@ def test_the_verdict_and_warnings_stay_in_view_while_the_page_scrolls(app):
         page.set_viewport_size(size)
 
 
+def _rects(page) -> dict[str, list[float]]:
+    """Screen rectangles [left, top, right, bottom] of the planes, the margin plot and the controls."""
+    bh.figure_names(page)
+    out = page.evaluate("""() => Object.fromEntries(['tuning_plane', 'output_plane', 'margin_plot'].map((n) => {
+        const r = window.__mxt.plot(n).el.getBoundingClientRect();
+        return [n, [r.left, r.top, r.right, r.bottom]]; }))""")
+    r = page.locator(".mixchart-app .lm-TabBar").first.evaluate(
+        "(e) => { const r = e.getBoundingClientRect(); return [r.left, r.top, r.right, r.bottom]; }")
+    out["controls"] = r
+    out["app"] = page.locator(".mixchart-app").evaluate(
+        "(e) => { const r = e.getBoundingClientRect(); return [r.left, r.top, r.right, r.bottom]; }")
+    return out
+
+
+def test_the_charts_fit_the_width_and_sit_beside_the_controls(app):
+    # Item 11: at 1280x720 the charts sit beside the controls, in view; at any width nothing runs past
+    # the app's right edge (the planes share the width the page gives them).
+    page = app.page
+    size = page.viewport_size
+    try:
+        for width, height in ((1280, 720), (1600, 900), (1000, 720)):
+            page.set_viewport_size({"width": width, "height": height})
+            page.evaluate("() => { window.scrollTo(0, 0);"
+                          " document.querySelectorAll('*').forEach((e) => e.scrollTop = 0); }")
+            page.wait_for_timeout(600)
+            bh.wait_for_bokeh_idle(page)
+            r = _rects(page)
+            for name in ("tuning_plane", "output_plane", "margin_plot"):
+                assert r[name][2] <= r["app"][2] + 1, (width, name, r)  # never past the right edge
+            if width >= 1280:
+                assert r["tuning_plane"][0] >= r["controls"][2] - 4, (width, r)  # beside the controls
+                assert r["tuning_plane"][1] < height * 0.45 and r["output_plane"][2] <= width, (width, r)
+                visible = min(r["tuning_plane"][3], height) - r["tuning_plane"][1]
+                assert visible > 0.75 * (r["tuning_plane"][3] - r["tuning_plane"][1]), (width, r)  # not below the fold
+            else:
+                assert r["tuning_plane"][1] >= r["controls"][1], r  # narrow: wrapped under the controls
+            page.screenshot(path=str(app.shots / f"planner_layout_{width}x{height}.png"))
+    finally:
+        page.set_viewport_size(size)
+        bh.wait_for_bokeh_idle(page)
+
+
 def test_lo_mode_switches_to_fixed_and_back_without_an_error(app):
     # Item 4: "fixed" enables the fixed-LO field and fills it with the current channel's LO;
     # "tracking" drops the fixed value and keeps the injection side.
@@ -702,8 +744,14 @@ def test_a_tracking_preselector_is_shaded_along_the_plan_line(app):
     # Item 6: the FM example's tuned circuits track the channel; the tuning plane shades them along
     # the plan line (nested bands at each channel's own LO), with no fixed band at one channel.
     page = app.page
-    track = bh.source_data(page, "tuning_track")
-    plan = bh.source_data(page, "tuning_plan")
+    bh.wait_for_bokeh_idle(page)
+
+    def settled():  # the page may still be taking the previous test's last plan change
+        track, plan = bh.source_data(page, "tuning_track"), bh.source_data(page, "tuning_plan")
+        ok = track["ys"] and all(abs(min(ys) - min(plan["y"])) < 0.2 for ys in track["ys"])
+        return ok and (track, plan)
+
+    track, plan = _wait_until(settled, "the shading along the plan line", timeout_s=10.0)
     assert len(track["xs"]) >= 3  # (the fixed-band source staying empty is checked in tests/test_chart.py)
     for ys in track["ys"]:  # each band runs the length of the plan line
         assert min(ys) == pytest.approx(min(plan["y"]), abs=0.2) and max(ys) == pytest.approx(max(plan["y"]), abs=0.2)
