@@ -559,7 +559,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "output_x_label": f"{in_name} ({units['output_x']})" if not opts.normalised else f"{in_name} / LO",
         "output_y_label": f"{out_name} ({units['output_y']})" if not opts.normalised else f"{out_name} / LO",
         "output_title": (
-            f"Output plane{' ÷ LO' if opts.normalised else ''} at LO {format_frequency(lo_now)} "
+            f"Output{' ÷ LO' if opts.normalised else ''} at LO {format_frequency(lo_now)} "
             f"(channel {format_frequency(ch)})"
         ),
         "tuning_title": "Tuning plane: RF against LO",

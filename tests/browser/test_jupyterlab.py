@@ -214,6 +214,14 @@ def _assert_chart(page) -> None:
         cols = bh.source_data(page, source)
         assert cols and all(len(col) > 0 for col in cols.values()), (source, cols)
     assert page.locator(ERROR_OUTPUTS).count() == 0, page.locator(ERROR_OUTPUTS).all_inner_texts()
+    # the layout fits the output area it is given (item 11): no plane runs past its right edge
+    bh.wait_for_bokeh_idle(page)
+    edges = page.evaluate("""() => {
+        const area = document.querySelector('.mixchart-app').closest('.jp-OutputArea-output');
+        const right = area.getBoundingClientRect().right;
+        return [right, ...['tuning_plane', 'output_plane', 'margin_plot'].map(
+            (n) => window.__mxt.plot(n).el.getBoundingClientRect().right)]; }""")
+    assert all(edge <= edges[0] + 1 for edge in edges[1:]), edges
 
 
 #: What the widget manager logs when a view cannot be made (without BokehJS, jupyter_bokeh's cannot).
