@@ -207,7 +207,7 @@ class Evaluation:
 
     __slots__ = (
         "plan", "channels_hz", "lo_hz", "f_wanted_out_hz", "inverted", "worst_margin_db",
-        "_worst_row", "_worst_by_product", "_hits", "summary", "warnings", "_context",
+        "_worst_row", "_worst_by_product", "_hits", "summary", "warnings", "_context", "_channel_frames",
     )
 
     def __init__(
@@ -239,6 +239,7 @@ class Evaluation:
             "summary": summary,
             "warnings": tuple(warnings),
             "_context": context,
+            "_channel_frames": {},  # channel_frame's results, by index (the evaluation never changes)
         }
         for name, value in values.items():
             object.__setattr__(self, name, value)
@@ -290,9 +291,16 @@ class Evaluation:
         """
         if not 0 <= index < self.channels_hz.size:
             raise IndexError(f"channel index {index} is out of range 0..{self.channels_hz.size - 1}")
-        block = _evaluate_block(self._context, slice(index, index + 1))
-        frame = _frame(block, np.ones_like(block.margin_db, dtype=bool), self._context)
-        return frame.sort_values("margin_db", kind="stable").reset_index(drop=True)
+        index = int(index)
+        cached = self._channel_frames.get(index)
+        if cached is None:
+            block = _evaluate_block(self._context, slice(index, index + 1))
+            frame = _frame(block, np.ones_like(block.margin_db, dtype=bool), self._context)
+            cached = frame.sort_values("margin_db", kind="stable").reset_index(drop=True)
+            if len(self._channel_frames) >= 16:  # a few channels' worth: the ones a user steps between
+                self._channel_frames.pop(next(iter(self._channel_frames)))
+            self._channel_frames[index] = cached
+        return cached.copy(deep=False)  # copy-on-write: the caller's edits never reach the cache
 
     @property
     def level_table(self) -> LevelTable:

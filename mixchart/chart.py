@@ -224,6 +224,30 @@ def _plan_cached(ev, key: tuple, make) -> Any:
     return values[key]
 
 
+#: Tracking shadings kept across evaluations, by what they depend on (most recent last).
+_TRACK_CACHE: dict[tuple, dict[str, Any]] = {}
+_TRACK_CACHE_SIZE = 8
+
+
+def _track_cached(ev, tuning_win: tuple, req: float, sx: float, sy: float, make) -> dict[str, Any]:
+    """The tracking shading, reused while its inputs stay the same: the preselector's spec, the
+    channels and LOs, the window, the requirement and the axes' scales.  A plan change that leaves
+    those alone (a signal level, the IF filter, a requirement slider step) does not recompute it.
+    A measured (Touchstone) filter is keyed by its evaluation, since its file may change on disk."""
+    spec = ev.plan.filters.rf
+    kind = getattr(spec, "kind", None)
+    if spec is None or kind in ("touchstone", "cascade"):
+        return _plan_cached(ev, ("tuning_track", tuning_win, req, sx, sy), make)
+    key = (spec.model_dump_json(), ev.channels_hz.tobytes(), ev.lo_hz.tobytes(), tuple(tuning_win), req, sx, sy)
+    if key in _TRACK_CACHE:
+        _TRACK_CACHE[key] = _TRACK_CACHE.pop(key)  # most recent last
+        return _TRACK_CACHE[key]
+    value = _TRACK_CACHE[key] = make()
+    while len(_TRACK_CACHE) > _TRACK_CACHE_SIZE:
+        del _TRACK_CACHE[next(iter(_TRACK_CACHE))]
+    return value
+
+
 def _tuning_marks(ev, sx: float, sy: float) -> dict[str, Any]:
     """The plan line recoloured where a channel's worst margin is not clear: one short segment per such
     channel, from the midpoint with its left neighbour to the right one (x, y in units of ``sx``, ``sy`` Hz)."""
@@ -443,8 +467,8 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         # channel's own passband and skirt at that channel's LO (never a fixed band at one channel)
         sources["tuning_skirt"] = _EMPTY_SKIRT
         # the shading follows the plan, not the view: worked out once per evaluation and window
-        sources["tuning_track"] = _plan_cached(
-            ev, ("tuning_track", tuning_win, req, sx, sy),
+        sources["tuning_track"] = _track_cached(
+            ev, tuning_win, req, sx, sy,
             lambda: _tracking_skirt(ctx_rf, ev.channels_hz, ev.lo_hz, tuning_win, req, sx, sy))
     else:
         sources["tuning_track"] = _EMPTY_TRACK
