@@ -17,7 +17,7 @@ from typing import Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
-from .errors import LevelTableError, field_error
+from .errors import LevelTableError, PlanError, field_error
 from .levels import (
     FLOOR_DBC,
     MAX_HARMONIC,
@@ -120,12 +120,9 @@ class MixerSpec(BaseModel):
     @model_validator(mode="after")
     def _check_circuit(self) -> MixerSpec:
         if self.circuit is not None and self.model != "diode_circuit":
-            raise ValueError("circuit: only used when model is 'diode_circuit'; remove it or set model 'diode_circuit'")
+            raise PlanError("circuit: only used when model is 'diode_circuit'; remove it or set model 'diode_circuit'")
         if self.circuit is not None:
-            try:
-                self.circuit.check_for(self.topology)
-            except ValueError as exc:
-                raise ValueError(f"circuit.{exc}") from None
+            self.circuit.check_for(self.topology)
         return self
 
     def rf_ref(self) -> float:

@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
+from .errors import PlanError
 from .levels import FLOOR_DBC, LevelTable
 from .ring_solver import DIODE_COUNT, TYPICAL_DIODE, Balun, Circuit, Diode
 from .ring_table import RingResult, solve_ring
@@ -87,17 +88,18 @@ class CircuitSpec(_Strict):
                                  "temperature, K.")
 
     def check_for(self, topology: str) -> None:
-        """Raise ValueError naming the field if the mismatch does not fit ``topology``'s diodes."""
+        """Raise :class:`~mixchart.errors.PlanError` naming the field if the mismatch does not fit the topology."""
         if self.mismatch is None:
             return
         want = DIODE_COUNT[topology]
         if len(self.mismatch) != want:
-            raise ValueError(f"mismatch: {len(self.mismatch)} entries is invalid; a {topology.replace('_', '-')} "
-                             f"circuit has {want} diode(s)")
+            words = topology.replace("_", "-")
+            raise PlanError(f"circuit.mismatch: {len(self.mismatch)} entries is invalid; a {words} circuit has "
+                            f"{want} diode(s)")
         base = TYPICAL_DIODE.ideality if self.ideality is None else self.ideality
         for k, entry in enumerate(self.mismatch):
             if base * entry.ideality_ratio < 1.0:
-                raise ValueError(f"mismatch.{k}.ideality_ratio: {entry.ideality_ratio!r} is invalid; it gives "
+                raise PlanError(f"circuit.mismatch.{k}.ideality_ratio: {entry.ideality_ratio!r} is invalid; it gives "
                                  f"diode D{k + 1} an ideality of {base * entry.ideality_ratio:.4g}, below 1")
 
     @property
