@@ -15,6 +15,7 @@ from .context import Context, capped
 from .filters import Filter, iter_filter_stages
 from .levels import RF_EXTRAPOLATION_LIMIT_DB
 from .mixer_model import assumed_figures
+from .ring_model import circuit_warnings
 from .units import format_frequency
 
 #: A band filter wider than this fraction of its centre is warned about when it uses the
@@ -116,7 +117,8 @@ def mixer_warnings(ctx: Context) -> list[str]:
     """Name the mixer figures the built-in model took from its typical defaults.
 
     Only figures the table uses are named: a CSV table's measured (0,1) or (1,0) entry needs no
-    isolation, and measured even-n entries need no LO second harmonic.
+    isolation, and measured even-n entries need no LO second harmonic.  The circuit model's own
+    assumptions follow (:func:`mixchart.ring_model.circuit_warnings`).
     """
     plan, table = ctx.plan, ctx.table
     h = np.arange(table.max_harmonic + 1)
@@ -126,10 +128,11 @@ def mixer_warnings(ctx: Context) -> list[str]:
              "rf_if_isolation_db": bool(used[1, 0]),
              "lo_harmonic2_dbc": bool((used & (h[None, :] % 2 == 0)).any())}
     assumed = [text for text in assumed_figures(plan.mixer, plan.direction) if needs[text.split(" ", 1)[0]]]
+    out = circuit_warnings(plan.mixer)
     if not assumed:
-        return []
+        return out
     return [f"mixer: {', '.join(assumed)} not given, so typical {plan.mixer.topology.replace('_', '-')} values are "
-            "assumed (common practice); state them from the mixer's data sheet"]
+            "assumed (common practice); state them from the mixer's data sheet", *out]
 
 
 def plan_warnings(ctx: Context) -> list[str]:

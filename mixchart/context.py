@@ -57,8 +57,11 @@ def build_context(plan: Plan, base_dir: Path | None) -> Context:
                  else build_filter(plan.filters.if_, base_dir=base_dir, field_prefix="filters.if."))
     lo_filter = (None if plan.filters.lo is None
                  else build_filter(plan.filters.lo, base_dir=base_dir, field_prefix="filters.lo."))
+    strongest = plan.signal.level_dbm
+    if plan.direction == "down" and plan.signal.interferer_level_dbm is not None:
+        strongest = max(strongest, plan.signal.interferer_level_dbm)
     table = build_table(plan.mixer, plan.max_order, base_dir=base_dir, direction=plan.direction,
-                        lo_h2_rejection_db=lo_h2_rejection_db(lo_filter, lo))
+                        lo_h2_rejection_db=lo_h2_rejection_db(lo_filter, lo), signal_dbm=strongest)
     if plan.direction == "down":
         f_in = channels
         diff = np.abs(channels - lo)

@@ -14,6 +14,7 @@ __all__ = [
     "UnitError",
     "FilterError",
     "LevelTableError",
+    "CircuitError",
     "SweepTooLargeError",
     "AnalysisError",
     "field_error",
@@ -39,6 +40,10 @@ class FilterError(MixchartError):
 
 class LevelTableError(MixchartError):
     """A mixer level table is invalid."""
+
+
+class CircuitError(MixchartError):
+    """A mixer circuit model is invalid, or its solve failed (no conduction, no convergence)."""
 
 
 class SweepTooLargeError(MixchartError):

@@ -15,9 +15,9 @@ from pathlib import Path
 from typing import Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, field_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
-from .errors import LevelTableError, field_error
+from .errors import LevelTableError, PlanError, field_error
 from .levels import (
     FLOOR_DBC,
     MAX_HARMONIC,
@@ -27,6 +27,7 @@ from .levels import (
     default_conversion_loss_db,
     read_table_csv,
 )
+from .ring_model import CircuitSpec, circuit_level_table, circuit_rf_drive_dbm
 
 __all__ = ["MixerSpec", "TYPICAL_ISOLATION_DB", "DEFAULT_LO_HARMONIC2_DBC", "RF_REF_BELOW_LO_DB",
            "DUTY_RANGE", "builtin_table", "build_table", "assumed_figures", "single_ended_duty_db"]
@@ -69,7 +70,14 @@ class MixerSpec(BaseModel):
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
 
-    topology: Topology = Field("double_balanced", description="Sets which products balance suppresses.")
+    topology: Topology = Field("double_balanced", description="Sets which products balance suppresses (and, for "
+                               "the circuit model, the circuit: a diode ring, a diode pair, one diode).")
+    model: Literal["switching", "diode_circuit"] = Field("switching", description="Where the levels come from: "
+                                                        "'switching', the built-in switching rules (balance_db, "
+                                                        "rf_harmonic_step_db), or 'diode_circuit', a solve of the "
+                                                        "mixer's diode circuit (mixer.circuit) at lo_drive_dbm.")
+    circuit: CircuitSpec | None = Field(None, description="The diode circuit, when model is 'diode_circuit' (null: "
+                                        "typical diodes, ideal baluns, 50 ohm ports).")
     table: Literal["builtin"] | str = Field("builtin", max_length=4096, description="'builtin' (theory) or a path to a "
                                             "measured CSV table, relative to the plan file's folder.")
     rf_ref_dbm: float | None = Field(None, ge=-200.0, le=60.0, allow_inf_nan=False, description="RF drive (signal "
@@ -108,6 +116,14 @@ class MixerSpec(BaseModel):
         if value != "builtin" and (value != value.strip() or not value.lower().endswith(".csv") or "\0" in value):
             raise ValueError("give 'builtin' or a path ending in .csv")
         return value
+
+    @model_validator(mode="after")
+    def _check_circuit(self) -> MixerSpec:
+        if self.circuit is not None and self.model != "diode_circuit":
+            raise PlanError("circuit: only used when model is 'diode_circuit'; remove it or set model 'diode_circuit'")
+        if self.circuit is not None:
+            self.circuit.check_for(self.topology)
+        return self
 
     def rf_ref(self) -> float:
         """The built-in rule's reference RF drive, dBm: ``rf_ref_dbm``, else LO drive less 10 dB."""
@@ -280,7 +296,7 @@ def _db_sum(*levels_db: float) -> float:
 
 
 def build_table(spec: MixerSpec, max_order: int, *, base_dir: str | Path | None = None, direction: str = "down",
-                lo_h2_rejection_db: float = 0.0) -> LevelTable:
+                lo_h2_rejection_db: float = 0.0, signal_dbm: float | None = None) -> LevelTable:
     """The level table a plan's mixer spec asks for.
 
     Parameters
@@ -295,19 +311,32 @@ def build_table(spec: MixerSpec, max_order: int, *, base_dir: str | Path | None 
         The plan's direction (which port is the output).
     lo_h2_rejection_db : float
         The LO filter's least extra rejection of 2·f_LO over f_LO, dB.
+    signal_dbm : float, optional
+        The plan's strongest input level, dBm: where the circuit model is solved when
+        ``spec.rf_ref_dbm`` is not given (:func:`mixchart.ring_model.circuit_rf_drive_dbm`).
 
     Returns
     -------
     LevelTable
-        The built-in table (:func:`builtin_table`); or the CSV table at its own stated drives,
-        its blank cells from the built-in model moved to the CSV's RF reference.
+        The model's table (:func:`builtin_table`, or
+        :func:`mixchart.ring_model.circuit_level_table` for ``model == "diode_circuit"``); or the
+        CSV table at its own stated drives, its blank cells from the model moved to the CSV's
+        RF reference.
 
     Raises
     ------
     LevelTableError
         If the CSV table is unreadable or invalid.
+    CircuitError
+        If the circuit model cannot be solved (e.g. an LO drive too low for the diodes to conduct).
     """
-    fallback = builtin_table(spec, max_order, direction=direction, lo_h2_rejection_db=lo_h2_rejection_db)
+    if spec.model == "diode_circuit":
+        h2 = (DEFAULT_LO_HARMONIC2_DBC if spec.lo_harmonic2_dbc is None else spec.lo_harmonic2_dbc) - lo_h2_rejection_db
+        fallback = circuit_level_table(spec, max_order, direction=direction,
+                                       lo_harmonic2_dbc=None if h2 <= FLOOR_DBC else h2,
+                                       rf_drive_dbm=circuit_rf_drive_dbm(spec, signal_dbm))
+    else:
+        fallback = builtin_table(spec, max_order, direction=direction, lo_h2_rejection_db=lo_h2_rejection_db)
     if spec.table == "builtin":
         return fallback
     # An absolute spec.table wins over base_dir under pathlib's "/".
