@@ -33,6 +33,14 @@ from .analysis import Evaluation
 from .app_compare import ReferencePanel, compare_html
 from .app_keys import attach_keys
 from .app_messages import on_screen, screen_labels
+from .app_mixer import (
+    circuit_controls,
+    level_table_map,
+    make_circuit_handler,
+    show_summary,
+    sync_circuit_controls,
+    update_level_map,
+)
 from .chart import ChartHandle, build_chart, chart_data, update_chart
 from .errors import MixchartError
 from .plan import MAX_ORDER, Plan, dumps_plan, load_plan
@@ -545,6 +553,15 @@ class PlannerApp:
                                               height=430, fit_width=True)
         self.controls = build_controls(state.plan, state.evaluation.channels_hz.size)
         self.controls.save_path.value = state.file_name  # the file-name field follows the opened plan
+        # the circuit model's fields and the level table's heat map, in the Mixer tab (mixchart.app_mixer)
+        self.circuit = circuit_controls(state.plan)
+        circuit_handler = make_circuit_handler(state, self.circuit)
+        for name in ("model", "is_a", "ideality", "rs_ohm", "mismatch_pct", "lo_amp_db", "lo_phase_deg"):
+            getattr(self.circuit, name).observe(circuit_handler, names="value")
+        self.level_map = level_table_map(state.evaluation.level_table, state.plan.max_order)
+        self.level_map_widget = BatchedBokehModel(self.level_map.figure)
+        mixer_tab = self.controls.panel.children[0].children[2]
+        mixer_tab.children = (*mixer_tab.children, self.circuit.box, self.level_map_widget)
         from bokeh.events import Tap
 
         # before the widget is made: the browser learns which UI events to send from its first render
@@ -961,6 +978,10 @@ class PlannerApp:
         self.controls.redo.disabled = not self.state.can_redo
         self.table.value = _table_html(ev)
         self._sync_widgets()
+        with self.level_map_widget.batch():
+            update_level_map(self.level_map, ev.level_table, self.state.plan.max_order)
+        sync_circuit_controls(self.circuit, self.state.plan)
+        show_summary(self.circuit, self.state)
         self._refresh_chart()
         self._refresh_compare()
 

@@ -148,7 +148,7 @@ def circuit_controls(plan: Any) -> CircuitControls:
                       style=style, continuous_update=False),
         mismatch_pct=w.FloatText(value=0.0, description="D1 Is mismatch (%)", layout=row, style=style),
         lo_amp_db=w.FloatText(value=0.0, description="LO balun ampl. (dB)", layout=row, style=style),
-        lo_phase_deg=w.FloatText(value=0.0, description="LO balun phase (deg)", layout=row, style=style),
+        lo_phase_deg=w.FloatText(value=0.0, description="LO balun phase (°)", layout=row, style=style),
         error=w.HTML(value="", layout=w.Layout(width="300px")),
         summary=w.HTML(value="", layout=w.Layout(width="300px")),
         box=None,

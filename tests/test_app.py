@@ -594,3 +594,18 @@ def test_the_undo_keys_reach_the_state_once_per_press(app: PlannerApp) -> None:
     content["new"] = Serializer().encode({"command": ["redo"], "n": [2]})
     app.bokeh._sync_model(app.bokeh, dict(content), [])
     assert app.state.plan.lo.side == "low"
+
+
+def test_the_circuit_model_and_its_level_map_are_in_the_mixer_tab(app: PlannerApp) -> None:
+    # Issue 12 in the app: the level table as a heat map beside the mixer controls, and the LO drive
+    # moving the table and the margins.
+    assert app.circuit.box in app.controls.panel.children[0].children[2].children
+    cells_before = dict(app.level_map.source.data)
+    app.circuit.model.value = "diode_circuit"
+    assert app.state.plan.mixer.model == "diode_circuit"
+    assert "diode" in app.circuit.summary.value.lower()
+    assert dict(app.level_map.source.data) != cells_before  # the map shows the solved table
+    margin_7 = app.state.evaluation.summary.worst_margin_db
+    app.controls.lo_drive.value = 4.0
+    assert app.state.plan.mixer.lo_drive_dbm == 4.0
+    assert app.state.evaluation.summary.worst_margin_db != margin_7  # the margins follow the drive

@@ -829,3 +829,31 @@ def test_the_margin_plot_shows_every_channel_and_a_click_picks_one(app):
     assert "every product and response" in table.inner_text()
     bh.screenshot(page, app.shots / "planner_margin_plot.png")
     _assert_clean(page)
+
+
+def test_the_mixer_tab_shows_the_level_table_and_the_circuit_model_moves_with_lo_drive(app):
+    # Issue 12 in the app: the level table as a heat map in the Mixer tab; the diode-circuit model
+    # chosen from the dropdown fills it from the solved circuit, and the LO drive moves the verdict.
+    page = app.page
+    _open_tab(page, "Mixer")
+    _wait_until(lambda: "level_table_map" in bh.figure_names(page), "the level-table heat map")
+    before = bh.source_data(page, "level_table_map_source")
+    status0 = _status_line(page)
+    page.locator(".mixchart-circuit-model select").select_option(label="diode circuit")
+    _source_changed(page, "level_table_map_source", before, timeout_s=60)
+    _wait_until(lambda: _status_line(page) != status0, "the verdict of the circuit model")
+    status7 = _status_line(page)
+    drive = page.locator(".mixchart-lo-drive input")
+    drive.fill("4")
+    drive.press("Enter")
+    _wait_until(lambda: _status_line(page) != status7, "the verdict at +4 dBm LO")
+    page.locator(".mixchart-circuit-model").scroll_into_view_if_needed()
+    bh.screenshot(page, app.shots / "planner_mixer_tab_circuit.png", full_page=False)
+    # back to the plan as it was: LO drive, then the switching rules
+    drive.fill("7")
+    drive.press("Enter")
+    _wait_until(lambda: _status_line(page) == status7, "the verdict at +7 dBm again")
+    page.locator(".mixchart-circuit-model select").select_option(label="switching rules")
+    _wait_until(lambda: _status_line(page) == status0, "the switching-rule verdict again")
+    _open_tab(page, "Plan")
+    _assert_clean(page)
