@@ -377,10 +377,14 @@ def start_voila(harness, notebook: Path, plan_path: Path | None, tmp: Path):
 
     ``plan_path`` None serves the built-in example.
     """
+    from mixchart.serve import voila_env, write_template  # the page template mixchart serve uses
+
     port = harness._free_port()
     log_path = tmp / f"voila-{port}.log"
+    template_opts = write_template(tmp / f"template-{port}")
     env = {
         **os.environ,
+        **voila_env(tmp / f"template-{port}"),
         "JUPYTER_PLATFORM_DIRS": "1",
         "JUPYTER_RUNTIME_DIR": str(tmp / "runtime"),
         "PYDEVD_DISABLE_FILE_VALIDATION": "1",
@@ -390,7 +394,7 @@ def start_voila(harness, notebook: Path, plan_path: Path | None, tmp: Path):
     if plan_path is not None:
         env[harness.PLAN_ENV] = str(plan_path)
     cmd = [sys.executable, "-m", "voila", str(notebook), "--no-browser", f"--port={port}",
-           "--Voila.ip=127.0.0.1", "--show_tracebacks=True"]
+           "--Voila.ip=127.0.0.1", "--show_tracebacks=True", *template_opts]
     with open(log_path, "wb") as log:
         proc = subprocess.Popen(cmd, cwd=notebook.parent, env=env, stdin=subprocess.DEVNULL, stdout=log,
                                 stderr=subprocess.STDOUT, start_new_session=True)

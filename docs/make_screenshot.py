@@ -1,4 +1,5 @@
-"""Make docs/screenshot.png: the planner serving the built-in FM example, once idle.
+"""Make docs/screenshot.png (the planner serving the built-in FM example, once idle) and
+docs/screenshot_compare.png (the same plan kept as a reference, flipped to low-side injection).
 
 Run from the repository root (needs Voila and /usr/bin/chromium, as the browser tests do)::
 
@@ -27,6 +28,7 @@ import helpers as bh  # noqa: E402
 from bench_app import start_voila  # noqa: E402
 
 OUT = REPO / "docs" / "screenshot.png"
+OUT_COMPARE = REPO / "docs" / "screenshot_compare.png"
 VIEWPORT = {"width": 1600, "height": 1250}
 MARGIN_PX = 12
 
@@ -57,6 +59,24 @@ def main() -> int:
                 }
                 OUT.parent.mkdir(exist_ok=True)
                 page.screenshot(path=str(OUT), clip=clip)
+                # the comparison: keep the plan as "high side", flip to low side, show the comparison
+                name = page.locator(".mixchart-ref-name input")
+                name.fill("high side")
+                name.press("Tab")
+                page.get_by_role("button", name="Keep as reference").click()
+                page.locator(".mixchart-side").locator("button", has_text="low side").click()
+                page.wait_for_function("() => (document.querySelector('.mixchart-compare') || {innerText: ''})"
+                                       ".innerText.includes('low-side')", timeout=60_000)
+                page.set_viewport_size({"width": VIEWPORT["width"], "height": 3200})
+                bh.wait_for_bokeh_idle(page, min_roots=2)
+                page.mouse.move(0, 0)
+                time.sleep(1.5)
+                top = page.locator(".mixchart-compare").bounding_box()
+                ref = page.locator(".mixchart-reference-table").bounding_box()
+                clip2 = {"x": max(top["x"] - MARGIN_PX, 0), "y": max(top["y"] - MARGIN_PX, 0),
+                         "width": min(box["width"] + 2 * MARGIN_PX, VIEWPORT["width"]),
+                         "height": ref["y"] + min(ref["height"], 420) - top["y"] + 2 * MARGIN_PX}
+                page.screenshot(path=str(OUT_COMPARE), clip=clip2)
                 errors = bh.unexpected_console_errors(page)
             finally:
                 browser.close()
@@ -64,7 +84,7 @@ def main() -> int:
         if server is not None:
             harness._stop_server(server)
         shutil.rmtree(tmp, ignore_errors=True)
-    print(f"wrote {OUT} ({int(clip['width'])}x{int(clip['height'])} px)")
+    print(f"wrote {OUT} ({int(clip['width'])}x{int(clip['height'])} px) and {OUT_COMPARE}")
     if errors:
         print(f"console errors: {errors}", file=sys.stderr)
         return 1
