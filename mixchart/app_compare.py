@@ -168,7 +168,7 @@ class ReferencePanel:
         self.width, self.height = width, height
         self.chart: ChartHandle | None = None
         self.widget: Any = None
-        self.same_zoom: dict[str, bool] = {"tuning": False, "output": False}
+        self.same_zoom: dict[str, bool] = {}  # by axis: "tuning_x", "tuning_y", "output_x", "output_y"
         self._edited_meta: dict[str, Any] = {}
         for plane in ("tuning", "output"):
             fig = getattr(chart, plane)
@@ -191,33 +191,37 @@ class ReferencePanel:
         else:
             with self.widget.batch():
                 update_chart(self.chart, data, reset_ranges=True)
-        # a plane follows the edited zoom when its axes mean the same (same units, same normalisation);
-        # the output plane also needs the reference's passband inside the edited plane's output window
+        # an axis follows the edited zoom when it means the same (same units, same normalisation) and
+        # the reference's own subject lies in the edited window: its LO at this channel on the tuning
+        # plane's LO axis, its output passband on the output axis (a plan whose LO moved to the other
+        # side, or whose IF moved, keeps its own window on that axis, and says so)
         mine, theirs = _axis_scales(data.meta), _axis_scales(edited_meta)
-        self.same_zoom = {
-            plane: all(mine.get(k) == theirs.get(k) and k in mine for k in (f"{plane}_x", f"{plane}_y"))
-            for plane in ("tuning", "output")
-        }
+        self.same_zoom = {axis: axis in mine and mine[axis] == theirs.get(axis)
+                          for axis in ("tuning_x", "tuning_y", "output_x", "output_y")}
         band = data.sources["out_output_band"]
-        y = self.edited.output.y_range
-        centre = 0.5 * (float(band["y0"][0]) + float(band["y1"][0]))
-        self.same_zoom["output"] &= min(y.start, y.end) <= centre <= max(y.start, y.end)
+        subjects = {"tuning_y": float(data.meta["lo_hz"]) / data.meta["scales"]["tuning_y"],
+                    "output_y": 0.5 * (float(band["y0"][0]) + float(band["y1"][0]))}
+        for axis, centre in subjects.items():
+            rng = getattr(self.edited, axis.split("_")[0]).y_range
+            self.same_zoom[axis] &= min(rng.start, rng.end) <= centre <= max(rng.start, rng.end)
         with self.widget.batch():
             for plane in ("tuning", "output"):
                 self._follow(plane)
 
     def _follow(self, plane: str) -> None:
-        if self.chart is None or not self.same_zoom.get(plane):
+        if self.chart is None:
             return
         src, dst = getattr(self.edited, plane), getattr(self.chart, plane)
-        for a, b in ((src.x_range, dst.x_range), (src.y_range, dst.y_range)):
-            if (b.start, b.end) != (a.start, a.end):
+        for axis, a, b in (("x", src.x_range, dst.x_range), ("y", src.y_range, dst.y_range)):
+            if self.same_zoom.get(f"{plane}_{axis}") and (b.start, b.end) != (a.start, a.end):
                 b.start, b.end = a.start, a.end
 
     def note(self) -> str:
         """Which planes follow the edited zoom, in words."""
-        own = [p for p, same in self.same_zoom.items() if not same]
+        names = {"tuning_x": "tuning plane's RF axis", "tuning_y": "tuning plane's LO axis",
+                 "output_x": "output plane's input axis", "output_y": "output plane's output axis"}
+        own = [names[axis] for axis, same in self.same_zoom.items() if not same]
         if not own:
             return "same channel and zoom as the edited plan"
-        return ("same channel; " + " and ".join(f"{p} plane" for p in own)
-                + " in its own window (its output band or axes differ from the edited plan's)")
+        return ("same channel and zoom, except the " + ", the ".join(own)
+                + ": its own window there (its LO, output band or units differ from the edited plan's)")

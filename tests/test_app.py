@@ -214,7 +214,11 @@ def test_the_reference_chart_follows_the_edited_channel_and_zoom(app: PlannerApp
     app.state.try_update({"lo.side": "low"})
     app.state.set_view(channel_hz=95e6)
     ref = app.reference_panel.chart
-    assert app.reference_panel.same_zoom == {"tuning": True, "output": True}
+    # the high-side reference's LO (channel + 10.7 MHz) lies above the low-side plan's LO window: that
+    # axis keeps the reference's own window; the RF axes and the IF axis follow
+    assert app.reference_panel.same_zoom == {"tuning_x": True, "tuning_y": False, "output_x": True, "output_y": True}
+    assert "except the tuning plane&#x27;s LO axis" in app.reference_box.children[0].value
+    assert ref.tuning.y_range.start <= 95 + 10.7 <= ref.tuning.y_range.end
     assert "channel 95 MHz" in ref.output.title.text  # the same channel
     # a zoom of the edited plane (as BokehJS reports it) moves the reference's plane with it
     app.chart.tuning.x_range.start, app.chart.tuning.x_range.end = 90.0, 92.0
@@ -223,8 +227,8 @@ def test_the_reference_chart_follows_the_edited_channel_and_zoom(app: PlannerApp
     assert ref.output.y_range.end == 11.0
     # a reference whose output axes differ keeps its own output window, and the label says so
     assert app.state.try_update({"if.center_hz": 455e3, "if.bandwidth_hz": 10e3, "filters.if": None}) is None
-    assert app.reference_panel.same_zoom == {"tuning": True, "output": False}
-    assert "output plane in its own window" in app.reference_box.children[0].value
+    assert app.reference_panel.same_zoom["tuning_x"] and not app.reference_panel.same_zoom["output_y"]
+    assert "the output plane&#x27;s output axis" in app.reference_box.children[0].value
     app.chart.output.y_range.end = 0.5
     assert ref.output.y_range.end != 0.5
 
