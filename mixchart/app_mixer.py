@@ -105,8 +105,11 @@ def level_table_map(table: LevelTable, max_order: int, *, width: int = 300, heig
 
 
 def update_level_map(handle: LevelMapHandle, table: LevelTable, max_order: int) -> None:
-    """Show ``table`` in the map: assigns the source's data (and the ranges when the order changed)."""
-    handle.source.data = level_map_data(table, max_order)
+    """Show ``table`` in the map: assigns the source's data when it changed (and the ranges when the
+    order changed), so a plan change that leaves the table alone sends nothing."""
+    data = level_map_data(table, max_order)
+    if data != dict(handle.source.data):
+        handle.source.data = data
     fig = handle.figure
     if fig.x_range.end != max_order + 0.5:
         fig.x_range.end, fig.y_range.start = max_order + 0.5, max_order + 0.5
