@@ -972,7 +972,11 @@ class PlannerApp:
 
     def _refresh_all(self) -> None:
         ev = self.state.evaluation
+        # the chart first: its one message leaves before the tables are made, and the page applies it
+        # before the HTML updates that follow (which restyle the page and would delay the repaint)
+        self._refresh_chart()
         self.status.value = _summary_html("Plan", ev)
+        self._mark_stale()  # the banner was just reset from the plan
         self.warnings.value = _warnings_html(ev)
         self.controls.undo.disabled = not self.state.can_undo
         self.controls.redo.disabled = not self.state.can_redo
@@ -982,7 +986,6 @@ class PlannerApp:
             update_level_map(self.level_map, ev.level_table, self.state.plan.max_order)
         sync_circuit_controls(self.circuit, self.state.plan)
         show_summary(self.circuit, self.state)
-        self._refresh_chart()
         self._refresh_compare()
 
     def _refresh_compare(self) -> None:

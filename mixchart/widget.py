@@ -34,6 +34,7 @@ def _batched_model_class() -> type:
 
         def __init__(self, model: Any, **kwargs: Any) -> None:
             self._held: list[Any] | None = None
+            _guard_echo(model)
             super().__init__(model, **kwargs)
 
         @contextmanager
@@ -92,6 +93,40 @@ def _batched_model_class() -> type:
             super()._sync_model(_model, content, _buffers)
 
     return _Batched
+
+
+#: Run in the page when the widget's Bokeh document is ready.  jupyter_bokeh 4.1's view holds back
+#: the document changes made while it applies a patch from the kernel and then sends every one of
+#: them back to the kernel, the kernel's own changes included (BokehJS marks those ``sync: false``;
+#: its own server session drops them, the widget does not).  A plan change made each column the
+#: kernel pushed travel back as gzip+base64: about 60 kB and 15 ms of the page's time per key press,
+#: and as long again in the kernel to decode and discard.  This wraps the view's document listener
+#: so that a change with ``sync === false`` is not sent; a change made in the page (a drag, a
+#: CustomJS, BokehJS re-ranging an axis) still is.
+ECHO_GUARD_JS = """
+const doc = root.document;
+if (doc == null || doc.__mixchart_echo_guard) { return; }
+doc.__mixchart_echo_guard = true;
+for (const [callback, batches] of [...doc._callbacks]) {
+  if (!String(callback).includes('_change_event')) { continue; }  // only jupyter_bokeh's listener
+  const guarded = (event) => { if (event.sync !== false) { callback(event); } };
+  doc._callbacks.delete(callback);
+  doc._callbacks.set(guarded, batches);
+}
+"""
+
+
+def _guard_echo(model: Any) -> None:
+    """Attach :data:`ECHO_GUARD_JS` to ``model``'s document (made here if it has none)."""
+    from bokeh.document import Document
+    from bokeh.events import DocumentReady
+    from bokeh.models import CustomJS
+
+    doc = model.document
+    if doc is None:
+        doc = Document()
+        doc.add_root(model)
+    doc.js_on_event(DocumentReady, CustomJS(args={"root": model}, code=ECHO_GUARD_JS))
 
 
 def _same_value(old: Any, new: Any) -> bool:

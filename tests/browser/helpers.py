@@ -39,6 +39,7 @@ __all__ = [
 _PRELUDE = r"""
 () => {
   if (window.__mxt) return true;
+  const BROWSER_SET = new Set(["inner_width", "inner_height", "outer_width", "outer_height"]);
   const toPlain = (v) => {
     if (v == null) return v;
     if (ArrayBuffer.isView(v)) return Array.from(v);
@@ -88,17 +89,29 @@ _PRELUDE = r"""
     // ---- key -> repaint measurement -------------------------------------
     rec: null,
     hooked: new WeakSet(),
-    hookPlot(name) {
-      const pv = mxt.plot(name);
-      if (!mxt.hooked.has(pv)) {
+    hookPlot(names) {
+      const views = (Array.isArray(names) ? names : [names]).map((name) => mxt.plot(name));
+      mxt.targets = new Set(views);  // only these figures' repaints end a measurement
+      for (const pv of views) {
+        if (mxt.hooked.has(pv)) continue;
         mxt.hooked.add(pv);
         pv.repainted.connect(() => {
           const r = mxt.rec;
-          if (r && r.t_last_change != null) { r.t_last_paint = performance.now(); r.n_paints++; }
+          if (r && r.t_last_change != null && mxt.targets.has(pv)) {
+            r.t_last_paint = performance.now(); r.n_paints++;
+          }
         });
-        const doc = pv.model.document;
-        doc.on_change(() => {
+      }
+      const pv = views[0];
+      const doc = pv.model.document;
+      if (!mxt.hooked.has(doc)) {  // one listener per document, however many of its figures are hooked
+        mxt.hooked.add(doc);
+        doc.on_change((ev) => {
           const r = mxt.rec;
+          // BokehJS itself sets some properties while it lays out and paints (a DataRange1d's ends,
+          // as on the margin plot's y axis, and a plot's inner/outer size): those are not changes
+          // from the kernel, and no repaint of this figure follows them.
+          if (ev.model != null && (ev.model.type === "DataRange1d" || BROWSER_SET.has(ev.attr))) return;
           if (r && r.t_key != null) {
             const t = performance.now();
             if (r.t_first_change == null) r.t_first_change = t;
@@ -333,7 +346,7 @@ def measure_key_to_repaint(
     slider_selector: str,
     n: int,
     *,
-    figure_name: str,
+    figure_name: str | tuple[str, ...],
     key: str = "ArrowRight",
     settle_ms: float = 150.0,
     timeout_ms: float = 30_000,
@@ -356,8 +369,8 @@ def measure_key_to_repaint(
         CSS selector of the ipywidgets slider (see :func:`slider_handle`).
     n : int
         Number of presses.
-    figure_name : str
-        Bokeh ``name`` of the figure whose repaint ends the measurement.
+    figure_name : str or tuple of str
+        Bokeh ``name`` of the figure (or figures) whose last repaint ends the measurement.
     key : str
         Key to press.
     settle_ms : float
@@ -380,7 +393,8 @@ def measure_key_to_repaint(
         ``change_to_paint_ms`` covers BokehJS updating and drawing.
     """
     _ensure(page)
-    page.evaluate("(name) => window.__mxt.hookPlot(name)", figure_name)
+    names = [figure_name] if isinstance(figure_name, str) else list(figure_name)
+    page.evaluate("(names) => window.__mxt.hookPlot(names)", names)
     if focus_selector is None:
         slider_handle(page, slider_selector).focus()
     else:

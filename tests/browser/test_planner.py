@@ -265,6 +265,38 @@ def test_requirement_slider_moves_every_margin_and_recolours_the_chart(app):
     _assert_clean(page)
 
 
+_SENT_HOOK = """() => {
+  if (window.__mxt_sent) { window.__mxt_sent.length = 0; return; }
+  window.__mxt_sent = [];
+  const send = WebSocket.prototype.send;
+  WebSocket.prototype.send = function (d) {
+    try { window.__mxt_sent.push(typeof d === 'string' ? d : new TextDecoder().decode(d)); } catch (e) {}
+    return send.call(this, d);
+  };
+}"""
+
+
+def test_the_page_sends_the_kernels_own_changes_back_never(app):
+    # jupyter_bokeh 4.1's view re-sends every change it applied from the kernel (widget.py,
+    # ECHO_GUARD_JS): a plan change made each column travel back.  Watch what the page sends
+    # while one plan change arrives: the slider's value, and nothing of the chart's data.
+    page = app.page
+    _open_tab(page, "Plan")
+    before = bh.source_data(page, "tuning_strips")
+    page.evaluate(_SENT_HOOK)
+    bh.press_slider_key(page, ".mixchart-requirement", "ArrowRight")
+    _source_changed(page, "tuning_strips", before)
+    time.sleep(1.0)  # an echo would leave right after the patch is applied
+    sent = page.evaluate("() => window.__mxt_sent")
+    assert any('"method":"update"' in m and '"value"' in m for m in sent), sent  # the slider reached the kernel
+    echoed = [m[-300:] for m in sent if '"kind":"ModelChanged"' in m and '"attr":"data"' in m]
+    assert echoed == []
+    after = bh.source_data(page, "tuning_strips")
+    bh.press_slider_key(page, ".mixchart-requirement", "ArrowLeft")  # leave the plan as it was
+    _source_changed(page, "tuning_strips", after)
+    _assert_clean(page)
+
+
 def _title_channel(page) -> tuple[float, float]:
     """(LO, channel) in Hz from the output plane's title."""
     title = _figure_attr(page, "output_plane", "title.text")
