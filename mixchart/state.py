@@ -29,6 +29,9 @@ Listener = Callable[["PlanState", str], None]
 
 #: Plan changes kept for undo.
 MAX_UNDO = 200
+#: The newest history entries keep their evaluation, so that stepping back or forth through
+#: them shows the plan without evaluating it again (older entries are evaluated when reached).
+KEEP_EVALUATIONS = 8
 #: Reference plans kept for comparison (the oldest goes when one more is kept).
 MAX_REFERENCES = 8
 
@@ -90,9 +93,10 @@ class PlanState:
         self.reference_name: str | None = None
         self.view = ViewOptions()
         self._listeners: list[Listener] = []
-        # every plan change can be undone and redone: (plan, base_dir) before each change
-        self._undo: list[tuple[Plan, Path | None]] = []
-        self._redo: list[tuple[Plan, Path | None]] = []
+        # every plan change can be undone and redone: (plan, base_dir, evaluation or None) before
+        # each change; only the KEEP_EVALUATIONS newest entries of each list keep their evaluation
+        self._undo: list[tuple[Plan, Path | None, Evaluation | None]] = []
+        self._redo: list[tuple[Plan, Path | None, Evaluation | None]] = []
 
     def observe(self, listener: Listener) -> None:
         """Call ``listener(state, what)`` after each change; ``what`` is
@@ -134,8 +138,7 @@ class PlanState:
     # --------------------------------------------------------------- undo / redo
     def _remember(self) -> None:
         """Keep the plan as it is now for :meth:`undo`; a new change forgets what could be redone."""
-        self._undo.append((self.plan, self.base_dir))
-        del self._undo[:-MAX_UNDO]
+        _push(self._undo, (self.plan, self.base_dir, self.evaluation))
         self._redo.clear()
 
     @property
@@ -166,13 +169,15 @@ class PlanState:
     def _step(self, source: list, target: list) -> str | None:
         if not source:
             return None
-        plan, folder = source[-1]
+        plan, folder, kept = source[-1]
         try:
-            result = evaluate(plan, base_dir=folder)
+            # a kept evaluation is the one this plan had; a plan that reads a file is evaluated
+            # again, so that a file edited meanwhile is read anew
+            result = kept if kept is not None and not reads_files(plan) else evaluate(plan, base_dir=folder)
         except MixchartError as exc:
             return str(exc)
         source.pop()
-        target.append((self.plan, self.base_dir))
+        _push(target, (self.plan, self.base_dir, self.evaluation))
         self.plan, self.evaluation, self.base_dir = plan, result, folder
         self._notify("plan")
         return None
@@ -382,3 +387,29 @@ def _snap(f_hz: float) -> float:
         return f_hz
     digits = 6 - math.floor(math.log10(f_hz)) - 1
     return float(round(f_hz, digits))
+
+
+def _push(history: list, entry: tuple) -> None:
+    """Append a history entry; keep at most MAX_UNDO, and evaluations only on the newest few."""
+    history.append(entry)
+    del history[:-MAX_UNDO]
+    if len(history) > KEEP_EVALUATIONS:
+        plan, folder, kept = history[-KEEP_EVALUATIONS - 1]
+        if kept is not None:
+            history[-KEEP_EVALUATIONS - 1] = (plan, folder, None)
+
+
+def reads_files(plan: Plan) -> bool:
+    """Whether evaluating ``plan`` reads a file: a measured level table (``mixer.table``) or a
+    filter given by its data file (a ``path`` anywhere under ``filters``)."""
+    if plan.mixer.table != "builtin":
+        return True
+
+    def has_path(node: Any) -> bool:
+        if isinstance(node, dict):
+            return isinstance(node.get("path"), str) or any(has_path(v) for v in node.values())
+        if isinstance(node, list):
+            return any(has_path(v) for v in node)
+        return False
+
+    return has_path(plan.model_dump(mode="json").get("filters"))

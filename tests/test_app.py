@@ -8,6 +8,7 @@ drive it, through the same entry points.
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -613,3 +614,55 @@ def test_the_circuit_model_and_its_level_map_are_in_the_mixer_tab(app: PlannerAp
     app.controls.lo_drive.value = 4.0
     assert app.state.plan.mixer.lo_drive_dbm == 4.0
     assert app.state.evaluation.summary.worst_margin_db != margin_7  # the margins follow the drive
+
+
+def test_undo_and_redo_show_the_evaluation_each_plan_had_without_evaluating_again(monkeypatch) -> None:
+    import mixchart.state as state_module
+
+    plan, folder = example_plan("fm_receiver")
+    state = PlanState(plan, folder)
+    shown = [state.evaluation]
+    for req in (61.0, 62.0, 63.0):
+        assert state.try_update({"requirement.min_rejection_db": req}) is None
+        shown.append(state.evaluation)
+    calls: list[object] = []
+
+    def counting(plan, **kwargs):
+        calls.append(plan)
+        return evaluate(plan, **kwargs)
+
+    monkeypatch.setattr(state_module, "evaluate", counting)
+    for i in (2, 1, 0):
+        assert state.undo() is None and state.evaluation is shown[i]
+    for i in (1, 2, 3):
+        assert state.redo() is None and state.evaluation is shown[i]
+    assert calls == []
+    # the kept evaluation is the plan's own: the same tables as evaluating it now
+    fresh = evaluate(state.plan, base_dir=folder)
+    assert state.evaluation.worst_by_product.equals(fresh.worst_by_product)
+    assert np.array_equal(state.evaluation.worst_margin_db, fresh.worst_margin_db)
+    # only the newest KEEP_EVALUATIONS entries keep theirs: stepping further back evaluates
+    n = state_module.KEEP_EVALUATIONS + 4
+    for k in range(n):
+        state.try_update({"requirement.min_rejection_db": 30.0 + k})
+    calls.clear()
+    for _ in range(n):
+        assert state.undo() is None
+    assert len(calls) == n - state_module.KEEP_EVALUATIONS
+
+
+def test_a_plan_that_reads_a_file_is_evaluated_again_on_undo(monkeypatch) -> None:
+    import mixchart.state as state_module
+
+    plan, folder = example_plan("fm_receiver")
+    assert not state_module.reads_files(plan)
+    table = Path(__file__).parent / "data" / "levels_dbc_rf-10dbm_lo7dbm_partial_madeup.csv"
+    with_table = plan.with_changes({"mixer.table": str(table)})
+    assert state_module.reads_files(with_table)
+    assert state_module.reads_files(plan.with_changes({"filters.if": {"kind": "touchstone", "path": "if.s2p"}}))
+    state = PlanState(with_table, folder)
+    state.try_update({"requirement.min_rejection_db": 61.0})
+    calls: list[object] = []
+    monkeypatch.setattr(state_module, "evaluate", lambda p, **k: calls.append(p) or evaluate(p, **k))
+    assert state.undo() is None
+    assert calls == [with_table]  # read anew: the file may have been edited meanwhile
