@@ -75,6 +75,10 @@ __all__ = [
 ]
 
 _MAX_PLAN_POINTS = 2000
+#: Room left of each plot's frame, px: wide enough for the y axis's tick labels and title, so the
+#: frames keep their place (and the margin plot lines up with the tuning plane above it) when
+#: the labels change.
+_LEFT_BORDER_PX = 78
 _EMPTY_SKIRT: dict[str, Any] = {"x0": np.zeros(0), "x1": np.zeros(0), "alpha": np.zeros(0), "atten_db": np.zeros(0)}
 _EMPTY_TRACK: dict[str, Any] = {"xs": [], "ys": [], "alpha": np.zeros(0), "atten_db": np.zeros(0)}
 #: The receiver responses whose strip (tuning plane) and arm (output plane) carry the table's name.
@@ -437,6 +441,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     }
     m_now = float(ev.worst_margin_db[index])
     sources["margin_now"] = {"x": [ch / sx], "y": [m_now if math.isfinite(m_now) else max(top, CLOSE_DB) + 5.0]}
+    margin_window = _margin_window(sources["margin_channels"]["y"], sources["margin_now"]["y"][0])
     sources["tuning_now"] = {
         "x": [ch / sx],
         "y": [lo_now / sy],
@@ -577,6 +582,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "out_scale": oy,
         "out_unit": units["output_y"],
         "tuning_window": (tuning_win[0] / sx, tuning_win[1] / sx, tuning_win[2] / sy, tuning_win[3] / sy),
+        "margin_y_window": margin_window,
         "output_window": (out_win[0] / ox, out_win[1] / ox, out_win[2] / oy, out_win[3] / oy),
         "tuning_x_label": f"RF {'input' if down else 'output'} ({units['tuning_x']})",
         "tuning_y_label": f"LO ({units['tuning_y']})",
@@ -590,6 +596,17 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "direction": plan.direction,
     }
     return ChartData(sources=sources, meta=meta)
+
+
+def _margin_window(margins_db: np.ndarray, now_db: float) -> tuple[float, float]:
+    """The margin plot's y range, dB: every plotted margin and both guide lines (0 dB and
+    CLOSE_DB), padded.  Set from Python, not ranged by BokehJS: a range BokehJS fits to the data
+    after it paints makes it paint the plot again (and relays the page out when the tick labels
+    change width)."""
+    values = np.concatenate([np.asarray(margins_db, dtype=float), [now_db, 0.0, CLOSE_DB]])
+    lo, hi = float(values.min()), float(values.max())
+    pad = max(0.06 * (hi - lo), 1.0)
+    return (lo - pad, hi + pad)
 
 
 def _point_in_convex(xs: np.ndarray, ys: np.ndarray, x: float, y: float) -> bool:
@@ -751,6 +768,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
             **size,
             x_range=Range1d(win[0], win[1]),
             y_range=Range1d(win[2], win[3]),
+            min_border_left=_LEFT_BORDER_PX,
             tools="pan,wheel_zoom,box_zoom,reset,save",
             active_drag="pan",  # a drag on the plot pans; the bands move only by their handles
             active_scroll=None,  # the wheel scrolls the page until the user picks wheel-zoom
@@ -836,7 +854,8 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     # worst margin against channel, on the tuning plane's RF axis (zooming one zooms both); a click picks
     margin_fig = figure(
         name=prefix + "margin_plot", title="Worst margin against channel (click to pick a channel)", width=2 * width,
-        height=190, x_range=tuning.x_range, tools="pan,box_zoom,reset,save", toolbar_location="right",
+        height=190, x_range=tuning.x_range, y_range=Range1d(*meta["margin_y_window"]),
+        min_border_left=_LEFT_BORDER_PX, tools="pan,box_zoom,reset,save", toolbar_location="right",
         background_fill_color=PALETTE["background"], border_fill_color=PALETTE["background"],
         output_backend="canvas",
         active_drag=None,  # a click is a tap that picks a channel, not the start of a pan
@@ -866,7 +885,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
         layout=layout, tuning=tuning, output=output, sources=src, bands=bands,
         margin=margin_fig, legend=legend, margin_hover=margin_hover,
     )
-    handle.windows = {"tuning": tuple(tw), "output": tuple(ow)}
+    handle.windows = {"tuning": tuple(tw), "output": tuple(ow), "margin_y": tuple(meta["margin_y_window"])}
     handle.last = dict(data.sources)
     return handle
 
@@ -907,6 +926,11 @@ def update_chart(handle: ChartHandle, data: ChartData, *, reset_ranges: bool = F
         _set(handle.legend, "text", legend_html(meta["direction"]))
     if handle.margin_hover is not None:
         _set(handle.margin_hover, "tooltips", _margin_tooltips(meta["units"]["tuning_x"]))
+    if handle.margin is not None:
+        win = tuple(meta["margin_y_window"])
+        if reset_ranges or win != handle.windows.get("margin_y"):
+            handle.margin.y_range.start, handle.margin.y_range.end = win
+            handle.windows["margin_y"] = win
     for key, fig in (("tuning", handle.tuning), ("output", handle.output)):
         win = tuple(meta[f"{key}_window"])
         if reset_ranges or not _close(win, handle.windows.get(key)):

@@ -677,6 +677,20 @@ def test_margin_against_channel_is_every_channels_worst_margin(fm):
     assert now["x"] == [pytest.approx(ev.channels_hz[i] / MHz)] and now["y"] == [pytest.approx(ev.worst_margin_db[i])]
     handle = build_chart(data)
     assert handle.margin.x_range is handle.tuning.x_range  # zoom one, zoom both
+    # its y range is set from Python (a range BokehJS fits after painting makes it paint twice):
+    # every plotted margin and both guide lines (0 dB, CLOSE_DB) lie inside it
+    lo, hi = data.meta["margin_y_window"]
+    assert (handle.margin.y_range.start, handle.margin.y_range.end) == (lo, hi)
+    shown = np.concatenate([src["y"], now["y"], [0.0, CLOSE_DB]])
+    assert lo < shown.min() and shown.max() < hi
+    # a plan change that moves the margins moves the range with them
+    from mixchart.chart import update_chart
+
+    worse = evaluate(ev.plan.with_changes({"requirement.min_rejection_db": ev.plan.requirement.min_rejection_db + 20}))
+    moved = chart_data(worse, ViewOptions(channel_hz=98e6))
+    update_chart(handle, moved)
+    assert (handle.margin.y_range.start, handle.margin.y_range.end) == moved.meta["margin_y_window"]
+    assert moved.meta["margin_y_window"][0] < lo - 19.0  # every margin 20 dB lower
 
 
 # ---------------------------------------------------------------------- axes, units, clutter, tooltips
