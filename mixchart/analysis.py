@@ -276,6 +276,20 @@ class Evaluation:
         """One row per channel: its worst product/response (columns: :data:`FRAME_COLUMNS`)."""
         return self._worst_row.copy()
 
+    def responses_at(self, index: int, labels: tuple[str, ...]) -> list[tuple[str, int, int, float]]:
+        """(label, m, n, input centre Hz) of each response of one channel whose label is in
+        ``labels``, in the engine's column order; made from the channel's columns without a frame
+        (the chart asks for the image and half-IF of the middle channel at every plan change)."""
+        if not 0 <= index < self.channels_hz.size:
+            raise IndexError(f"channel index {index} is out of range 0..{self.channels_hz.size - 1}")
+        block = _evaluate_block(self._context, slice(int(index), int(index) + 1))
+        n_cols = block.margin_db.shape[1]
+        data = block.take(np.zeros(n_cols, dtype=np.intp), np.arange(n_cols))
+        names = _LABEL_TEXT[data["label"]]
+        wanted = np.isin(names, list(labels)) & (data["kind"] == 1)
+        cols = (names[wanted], data["rf_harmonic"][wanted], data["lo_harmonic"][wanted], data["f_center_hz"][wanted])
+        return [(str(lb), int(m), int(n), float(f)) for lb, m, n, f in zip(*cols, strict=True)]
+
     def channel_frame(self, index: int) -> pd.DataFrame:
         """Every product and response of one channel, wanted rows included.
 

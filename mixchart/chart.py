@@ -387,7 +387,7 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
     # middle channel (image, half-IF) carries the table's name for it and that response's verdict
     mid = len(ev.channels_hz) // 2
     xm, ym = ev.channels_hz[mid], ev.lo_hz[mid]
-    named = _plan_cached(ev, ("named", mid), lambda: _named_responses(ev.channel_frame(mid))) if down else []
+    named = _plan_cached(ev, ("named", mid), lambda: ev.responses_at(mid, _NAMED_RESPONSES)) if down else []
     labels = []
     for k in range(len(strips)):
         m, n = int(strips.rf_harmonic[k]), int(strips.lo_harmonic[k])

@@ -1011,3 +1011,17 @@ def test_bands_are_handle_dragged_boxes_and_a_plain_drag_pans():
     band = moved.sources["out_output_band"]
     assert (boxes["out_output_band"].bottom, boxes["out_output_band"].top) == pytest.approx(
         (band["y0"][0], band["y1"][0]))
+
+
+@pytest.mark.parametrize("name", ["fm_receiver", "ku_block_converter", "hf_upconverting_receiver"])
+def test_named_responses_from_the_columns_are_the_frames(name):
+    # Evaluation.responses_at reads the image and half-IF of a channel from the engine's columns
+    # (no frame); they are the rows the channel's own frame names, the same numbers.
+    from mixchart.chart import _NAMED_RESPONSES, _named_responses
+
+    ev = evaluate(load_plan(example_path(name)))
+    for index in (0, len(ev.channels_hz) // 2, len(ev.channels_hz) - 1):
+        fast = ev.responses_at(index, _NAMED_RESPONSES)
+        assert sorted(fast) == sorted(_named_responses(ev.channel_frame(index)))
+    with pytest.raises(IndexError):
+        ev.responses_at(len(ev.channels_hz), _NAMED_RESPONSES)
