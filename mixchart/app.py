@@ -42,6 +42,7 @@ from .app_mixer import (
     update_level_map,
 )
 from .chart import ChartHandle, build_chart, chart_data, update_chart
+from .chart_style import VERDICT_COLOURS
 from .errors import MixchartError
 from .plan import MAX_ORDER, Plan, dumps_plan, load_plan
 from .state import PlanState, example_plan
@@ -478,7 +479,7 @@ def _channel_table_html(ev: Evaluation, index: int) -> str:
 
 def _summary_html(label: str, ev: Evaluation) -> str:
     s = ev.summary
-    colour = "#B33000" if s.worst_margin_db < 0 else "#006B4F"
+    colour = VERDICT_COLOURS["FAIL" if s.worst_margin_db < 0 else "PASS"]
     plan = ev.plan
     side = (plan.lo.side + "-side" if plan.lo.mode == "tracking"
             else f"fixed LO {format_frequency(plan.lo.fixed_hz or 0)}")

@@ -26,6 +26,7 @@ import numpy as np
 __all__ = [
     "CLOSE_DB",
     "PALETTE",
+    "VERDICT_COLOURS",
     "CATEGORIES",
     "DRAW_ORDER",
     "STRIP_HATCH",
@@ -50,6 +51,10 @@ PALETTE: dict[str, str] = {
     "grid": "#E4E4E4",  # the grid
     "background": "#FFFFFF",  # the plot background
 }
+
+#: Text colour of the verdict (the banner's and the report's PASS / FAIL), darker than the plot
+#: inks so that it reads as text; blue stays the wanted conversion's alone.
+VERDICT_COLOURS: dict[str, str] = {"PASS": "#006B4F", "FAIL": "#B33000"}
 
 #: Category -> (legend text, colour).
 CATEGORIES: dict[str, tuple[str, str]] = {

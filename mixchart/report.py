@@ -25,6 +25,7 @@ import numpy as np
 from . import __version__
 from .analysis import Evaluation, evaluate
 from .chart import CATEGORIES, CLOSE_DB, ViewOptions, build_chart, chart_data
+from .chart_style import VERDICT_COLOURS
 from .errors import MixchartError
 from .fileio import atomic_write_text
 from .levels import FLOOR_DBC
@@ -174,7 +175,9 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
     signal = f"bandwidth {format_frequency(sig.bandwidth_hz)}, level {sig.level_dbm:g} dBm ahead of the input filter"
     if sig.interferer_level_dbm is not None:
         signal += f"; unwanted inputs assumed at {sig.interferer_level_dbm:g} dBm"
-    if mx.table == "builtin":
+    if mx.table == "builtin" and mx.model == "diode_circuit":
+        table = f"level table solved from the diode circuit at {ev.level_table.rf_ref_dbm:g} dBm RF drive"
+    elif mx.table == "builtin":
         table = "built-in level table"
         ref = "" if mx.rf_ref_dbm is not None else " (10 dB under the LO drive)"
         table += f" stated at {ev.level_table.rf_ref_dbm:g} dBm RF drive{ref}"
@@ -209,7 +212,7 @@ def _plan_words(plan: Plan, ev: Evaluation) -> list[tuple[str, str]]:
 def _summary_card(title: str | None, ev: Evaluation) -> str:
     s = ev.summary
     state = "PASS" if s.worst_margin_db >= 0 else "FAIL"
-    colour = CATEGORIES["wanted" if state == "PASS" else "violates"][1]
+    colour = VERDICT_COLOURS[state]  # blue is the wanted conversion's alone
     name = "" if title is None else f" <b>{_e(title)}</b>"
     return (f'<div class="card" style="--state:{colour}"><div><span class="state">{state}</span>{name}</div>'
             f'<p class="line">{_e(s.line().split(": ", 1)[1])}</p></div>')  # the state is shown above it

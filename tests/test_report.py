@@ -345,3 +345,26 @@ def test_print_css(fm):
     assert any(f"transform: scale({report.PRINT_WIDTH_PX / width:.4f})" in r and r.startswith("@media print")
                for r in rules)
     assert f"transform: scale({report.PRINT_WIDTH_PX / width:.4f})" in page  # it travels in the page
+
+
+def test_the_verdict_colour_is_never_the_wanted_blue_and_a_circuit_table_is_named_as_such(fm):
+    # "Blue means one thing" (the wanted conversion): the PASS / FAIL card has its own colour.
+    from mixchart.chart_style import VERDICT_COLOURS
+
+    plan, ev = fm
+    states = []
+    for relaxed in (plan.with_changes({"requirement.min_rejection_db": 1.0, "requirement.output_spur_dbc": -1.0}),
+                    plan):
+        e = evaluate(relaxed)
+        state = "PASS" if e.summary.worst_margin_db >= 0 else "FAIL"
+        states.append(state)
+        page = report.report_html(relaxed, evaluation=e)
+        assert f'--state:{VERDICT_COLOURS[state]}' in page
+        assert f'--state:{CATEGORIES["wanted"][1]}' not in page
+    assert states == ["PASS", "FAIL"]  # both verdicts seen
+    # a level table solved from the diode circuit is not called the built-in table
+    circuit = plan.with_changes({"mixer.model": "diode_circuit"})
+    page = report.report_html(circuit, evaluation=evaluate(circuit))
+    assert "level table solved from the diode circuit at -30 dBm RF drive" in page
+    assert "built-in level table" not in page
+    assert "built-in level table" in report.report_html(plan, evaluation=ev)
