@@ -48,13 +48,15 @@ from .chart_style import (
     CATEGORIES,
     CLOSE_DB,
     DOT_SIZE,
+    DRAW_ORDER,
     HATCH_SCALE,
     PALETTE,
+    STRIP_HATCH,
+    STRIP_LINE_WIDTH,
     TINT_MAX_ALPHA,
     category_of,
     draw_rank,
     legend_html,
-    strip_columns,
     style_columns,
 )
 from .levels import FLOOR_DBC
@@ -417,7 +419,6 @@ def chart_data(ev: Evaluation, opts: ViewOptions = ViewOptions()) -> ChartData:
         "level": intrinsic[idx].astype(float),
         "margin": np.where(np.isfinite(strip_margin[idx]), strip_margin[idx], np.nan).astype(float),
         **style_columns(cats[idx]),
-        **strip_columns(cats[idx]),
     }
     step = max(1, len(ev.channels_hz) // _MAX_PLAN_POINTS)
     sources["tuning_plan"] = {
@@ -748,7 +749,7 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     ChartHandle
     """
     from bokeh.layouts import column, row
-    from bokeh.models import ColumnDataSource, Div, Range1d, Span
+    from bokeh.models import CDSView, ColumnDataSource, Div, GroupFilter, Range1d, Span
     from bokeh.plotting import figure
 
     src = {name: ColumnDataSource(data=dict(cols), name=prefix + name) for name, cols in data.sources.items()}
@@ -791,11 +792,19 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     # shading first, then the band, the strips, the plan, marks and points on top
     tuning.vstrip(x0="x0", x1="x1", source=src["tuning_skirt"], name="tuning_shading", **shade)
     tuning.patches(xs="xs", ys="ys", source=src["tuning_track"], name="tracking_shading", **shade)
-    strips = tuning.patches(
-        xs="xs", ys="ys", source=src["tuning_strips"], fill_alpha=0, hatch_pattern="hatch", hatch_color="color",
-        hatch_alpha=1.0, hatch_scale=HATCH_SCALE, hatch_weight="hatch_weight", line_color="color",
-        line_width="outline", name="strips",
-    )
+    # one renderer per category, in draw order (the worse on top), each showing its rows of the one
+    # source: a hatch given per row makes BokehJS draw a pattern tile for every strip at every
+    # update (31 at order 15, some 10 ms a plan change); a hatch per renderer draws four
+    strips = [
+        tuning.patches(
+            xs="xs", ys="ys", source=src["tuning_strips"], view=CDSView(filter=GroupFilter(
+                column_name="category", group=cat)), fill_alpha=0, hatch_pattern=STRIP_HATCH[cat][0],
+            hatch_color=CATEGORIES[cat][1], hatch_alpha=1.0, hatch_scale=HATCH_SCALE,
+            hatch_weight=STRIP_HATCH[cat][1], line_color=CATEGORIES[cat][1], line_width=STRIP_LINE_WIDTH[cat],
+            name=f"strips_{cat}",
+        )
+        for cat in DRAW_ORDER
+    ]
     tuning.line(x="x", y="y", source=src["tuning_plan"], line_color=ink, line_width=2.5, name="plan_line")
     marks = tuning.segment(
         x0="x0", y0="y0", x1="x1", y1="y1", source=src["tuning_marks"], line_color="color", line_width=4,
@@ -812,8 +821,9 @@ def build_chart(data: ChartData, *, width: int = 640, height: int = 480, prefix:
     tuning.add_tools(
         _hover(pts_t, _HOVER_POINTS, []),
         _hover(marks, [("channel", "@channel"), ("worst", "@label"), ("margin", "@margin{+0.0} dB")], [pts_t]),
-        _hover(strips, [("product", "@label"), ("table level", "@level{0.0} dBc"),
-                        ("worst margin after the filters", "@margin{+0.0} dB")], [pts_t, marks]),
+        *(_hover(r, [("product", "@label"), ("table level", "@level{0.0} dBc"),
+                     ("worst margin after the filters", "@margin{+0.0} dB")], [*strips[k + 1:], pts_t, marks])
+          for k, r in enumerate(strips)),
     )
     bands = {"rf_band": band_box(tuning, src["rf_band"], vertical=True, editable=editable,
                                  name=prefix + "rf_band_box", line_color=ink)}

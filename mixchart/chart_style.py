@@ -109,16 +109,6 @@ def style_columns(categories) -> dict[str, list]:
     }
 
 
-def strip_columns(categories) -> dict[str, list]:
-    """The hatch and outline columns of the tuning-plane strips."""
-    cats = list(categories)
-    return {
-        "hatch": [STRIP_HATCH[c][0] for c in cats],
-        "hatch_weight": np.array([STRIP_HATCH[c][1] for c in cats], dtype=float),
-        "outline": np.array([STRIP_LINE_WIDTH[c] for c in cats], dtype=float),
-    }
-
-
 # --------------------------------------------------------------------------- legend (HTML + inline SVG)
 
 _HATCH_PATH = {  # the SVG path of one hatch tile of side s, drawn as Bokeh draws the pattern

@@ -325,11 +325,20 @@ def test_strip_category_colour_and_style_follow_the_requirement(down):
     ev, data = down
     s = data.sources["tuning_strips"]
     req = ev.plan.requirement.min_rejection_db
+    # each category's strips are drawn by a renderer of their own (named strips_<category>, showing
+    # the source's rows of that category) with that category's hatch, colour and outline
+    handle = build_chart(data)
     styles = {}
-    for label, cat, colour, hatch, weight, outline in zip(s["label"], s["category"], s["color"], s["hatch"],
-                                                           s["hatch_weight"], s["outline"], strict=True):
+    for r in handle.tuning.renderers:
+        if r.name.startswith("strips_"):
+            cat, g = r.name.removeprefix("strips_"), r.glyph
+            assert r.data_source is handle.sources["tuning_strips"]
+            assert (r.view.filter.column_name, r.view.filter.group) == ("category", cat)
+            assert g.hatch_color == g.line_color == CATEGORIES[cat][1]
+            styles[cat] = {(g.hatch_pattern, float(g.hatch_weight), float(g.line_width))}
+    assert set(styles) == set(CATEGORIES)
+    for label, cat, colour in zip(s["label"], s["category"], s["color"], strict=True):
         assert colour == CATEGORIES[cat][1]  # the legend's colour for the category
-        styles.setdefault(cat, set()).add((hatch, float(weight), float(outline)))
         if cat == "wanted":
             continue
         # the strip's after-filter margin (its product's worst across the range): < 0 violates,
@@ -814,9 +823,10 @@ def test_one_colour_one_meaning():
     from pathlib import Path
 
     import mixchart.chart
-    from mixchart.chart_style import PALETTE
+    from mixchart.chart_style import PALETTE, VERDICT_COLOURS
 
-    colours = [c.upper() for c in PALETTE.values()]
+    # the verdict's text colours (PASS / FAIL, the banner and the report) are meanings of their own
+    colours = [c.upper() for c in [*PALETTE.values(), *VERDICT_COLOURS.values()]]
     assert len(set(colours)) == len(colours)
     assert {k: v[1] for k, v in CATEGORIES.items()} == {k: PALETTE[k] for k in CATEGORIES}
     for module in ("chart.py", "chart_style.py"):
@@ -869,8 +879,9 @@ def test_nothing_translucent_but_the_green_shading_and_strips_drawn_worst_on_top
                     continue
                 if translucent:
                     assert colour == PALETTE["filter"], (r.name, kind, alpha, colour)
-    strips = handle.sources["tuning_strips"].data
-    assert all(h == STRIP_HATCH[c][0] for h, c in zip(strips["hatch"], strips["category"], strict=True))
+    strip_renderers = [r for r in handle.tuning.renderers if r.name.startswith("strips_")]
+    assert [r.name for r in strip_renderers] == [f"strips_{c}" for c in DRAW_ORDER]  # the worst drawn last
+    assert all(r.glyph.hatch_pattern == STRIP_HATCH[r.view.filter.group][0] for r in strip_renderers)
     rank = {c: i for i, c in enumerate(DRAW_ORDER)}
     for which in (fm[1], down[1]):
         for name in ("tuning_strips", "out_lines", "out_points", "tuning_points"):
@@ -918,7 +929,12 @@ def test_one_hover_per_renderer_the_topmost_row_and_none_under_a_dot():
 
     data = chart_data(evaluate(plan_from_dict(converter("down"))), ViewOptions(channel_hz=15 * MHz))
     handle = build_chart(data)
-    above = {"strips": {"lo_points", "channel_marks"}, "channel_marks": {"lo_points"}, "lo_points": set(),
+    # a strip's hover yields to the strips drawn over it (a worse category), the marks and the dots
+    on_top = {"strips_clear": {"strips_wanted", "strips_close", "strips_violates"},
+              "strips_wanted": {"strips_close", "strips_violates"}, "strips_close": {"strips_violates"},
+              "strips_violates": set()}
+    above = {**{k: v | {"lo_points", "channel_marks"} for k, v in on_top.items()},
+             "channel_marks": {"lo_points"}, "lo_points": set(),
              "product_lines": {"product_points", "offchart_marks"}, "offchart_marks": {"product_points"},
              "product_points": set(), "margin_points": set()}
     seen = {}
