@@ -425,6 +425,18 @@ def measure_key_to_repaint(
     return out
 
 
+def wait_until(fn, what: str, timeout_s: float = 45.0, interval_s: float = 0.05):
+    """Poll ``fn()`` until it returns something truthy; return that (TimeoutError naming ``what``)."""
+    deadline = time.monotonic() + timeout_s
+    while True:
+        value = fn()
+        if value:
+            return value
+        if time.monotonic() > deadline:
+            raise TimeoutError(f"{what} not seen within {timeout_s} s")
+        time.sleep(interval_s)
+
+
 def summarize_ms(samples) -> dict[str, float]:
     """Median, min and max of a list of milliseconds (for printing)."""
     return {"median": statistics.median(samples), "min": min(samples), "max": max(samples), "n": len(samples)}

@@ -89,15 +89,7 @@ def app(tmp_path_factory, voila_server, browser_page_factory, artifacts_dir):
                            ev=ev)
 
 
-def _wait_until(fn, what: str, timeout_s: float = 45.0, interval_s: float = 0.05):
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = fn()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            raise TimeoutError(f"{what} not seen within {timeout_s} s")
-        time.sleep(interval_s)
+_wait_until = bh.wait_until
 
 
 def _axes(page, figure: str) -> dict[str, dict]:

@@ -133,15 +133,8 @@ def lab(tmp_path_factory, artifacts_dir):
 
 
 def _wait_until(fn, what: str, timeout_s: float = 60.0, interval_s: float = 0.1):
-    """Poll ``fn()`` until it returns something truthy; return that."""
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = fn()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            raise TimeoutError(f"{what} not seen within {timeout_s} s")
-        time.sleep(interval_s)
+    """helpers.wait_until, with JupyterLab's longer default wait."""
+    return bh.wait_until(fn, what, timeout_s, interval_s)
 
 
 _KERNEL = """() => {

@@ -75,16 +75,7 @@ def app(tmp_path_factory, voila_server, browser_page_factory, artifacts_dir):
     return SimpleNamespace(page=page, server=server, root=root, plan_path=plan_path, shots=artifacts_dir)
 
 
-def _wait_until(fn, what: str, timeout_s: float = 45.0, interval_s: float = 0.05):
-    """Poll ``fn()`` until it returns something truthy; return that."""
-    deadline = time.monotonic() + timeout_s
-    while True:
-        value = fn()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            raise TimeoutError(f"{what} not seen within {timeout_s} s")
-        time.sleep(interval_s)
+_wait_until = bh.wait_until
 
 
 def _open_tab(page, title: str) -> None:
