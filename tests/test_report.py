@@ -233,13 +233,17 @@ def test_the_floor_applies_to_levels_only():
     assert report._db(180.0) == "180.0 dB"
 
 
-@pytest.mark.parametrize("name", sorted(cli.EXAMPLES))
-def test_levels_under_the_floor_are_shown_as_the_floor_and_margins_keep_the_true_level(name):
+def _example_report(name: str):
+    """(evaluation, report HTML, the evaluation's frame) of a built-in example."""
     path = cli.example_path(name)
     plan = load_plan(path)
     ev = evaluate(plan, base_dir=path.parent)
-    page = report.report_html(plan, evaluation=ev)
-    frame = ev.to_frame()
+    return ev, report.report_html(plan, evaluation=ev), ev.to_frame()
+
+
+@pytest.mark.parametrize("name", sorted(cli.EXAMPLES))
+def test_levels_under_the_floor_are_shown_as_the_floor_and_margins_keep_the_true_level(name):
+    _, page, frame = _example_report(name)
     assert page.count("Levels below −150 dBc are shown as &lt; −150 dBc") == 1  # stated once
     under = frame[(frame["level_dbc"] < report.DISPLAY_FLOOR_DBC - 0.05) & (frame["level_dbc"] > FLOOR_DBC + 1)]
     for v in under["level_dbc"]:
@@ -259,11 +263,7 @@ def test_levels_under_the_floor_are_shown_as_the_floor_and_margins_keep_the_true
 
 @pytest.mark.parametrize("name", sorted(cli.EXAMPLES))
 def test_the_long_tail_is_collapsed_and_no_failing_or_close_row_is(name):
-    path = cli.example_path(name)
-    plan = load_plan(path)
-    ev = evaluate(plan, base_dir=path.parent)
-    page = report.report_html(plan, evaluation=ev)
-    frame = ev.to_frame()
+    _, page, frame = _example_report(name)
     listed, hidden, summary = _tables(page)
     assert len(listed) + len(hidden) == len(frame)
     assert hidden, "every built-in example has rows clear by 40 dB or more"

@@ -425,6 +425,18 @@ def measure_key_to_repaint(
     return out
 
 
+def open_planner(page, server) -> float:
+    """Open the planner that Voila ``server`` serves in ``page`` and wait for its worst-case table;
+    return the load time in s (an AssertionError with Voila's log if the page never gets there)."""
+    try:
+        t_load = open_voila(page, server.url)
+        page.locator(".mixchart-app .mixchart-worst-table td").first.wait_for()
+    except Exception as exc:
+        raise AssertionError(f"the planner page never became idle: {exc}\nvoila log:\n{server.log_text()}") from exc
+    print(f"\nplanner page idle after {t_load:.1f} s")
+    return t_load
+
+
 def wait_until(fn, what: str, timeout_s: float = 45.0, interval_s: float = 0.05):
     """Poll ``fn()`` until it returns something truthy; return that (TimeoutError naming ``what``)."""
     deadline = time.monotonic() + timeout_s

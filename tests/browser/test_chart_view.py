@@ -78,12 +78,7 @@ def app(tmp_path_factory, voila_server, browser_page_factory, artifacts_dir):
     server = voila_server(NOTEBOOK, plan=plan_path)
     page = browser_page_factory()
     page.set_viewport_size(VIEWPORT)
-    try:
-        t_load = bh.open_voila(page, server.url)
-        page.locator(".mixchart-app .mixchart-worst-table td").first.wait_for()
-    except Exception as exc:
-        raise AssertionError(f"the planner page never became idle: {exc}\nvoila log:\n{server.log_text()}") from exc
-    print(f"\nplanner page idle after {t_load:.1f} s")
+    bh.open_planner(page, server)
     ev = evaluate(load_plan(plan_path), base_dir=root)
     return SimpleNamespace(page=page, server=server, root=root, plan_path=plan_path, shots=artifacts_dir,
                            ev=ev)
