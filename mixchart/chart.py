@@ -154,9 +154,9 @@ def _offchart(rows, px: np.ndarray, py: np.ndarray, window: tuple, sx: float, sy
 def _worst_product_margins(ev, m: np.ndarray, n: np.ndarray, sign: np.ndarray) -> np.ndarray:
     """Worst margin over the tuning range of each product (m, n, sign) of the wanted signal, dB (+inf if none)."""
     wbp = ev.worst_by_product
-    rows = wbp[wbp["kind"] == "product"]
-    best = {(int(a), int(b), int(c)): float(d) for a, b, c, d in
-            zip(rows["rf_harmonic"], rows["lo_harmonic"], rows["sign"], rows["margin_db"], strict=True)}
+    product = wbp["kind"].to_numpy() == "product"
+    cols = (wbp[k].to_numpy()[product] for k in ("rf_harmonic", "lo_harmonic", "sign", "margin_db"))
+    best = {(int(a), int(b), int(c)): float(d) for a, b, c, d in zip(*cols, strict=True)}
     return np.array([best.get((int(a), int(b), int(c)), np.inf) for a, b, c in zip(m, n, sign, strict=True)],
                     dtype=float)
 
@@ -164,7 +164,7 @@ def _worst_product_margins(ev, m: np.ndarray, n: np.ndarray, sign: np.ndarray) -
 def _worst_label_margin(ev, label: str) -> float:
     """Worst margin over the tuning range of the rows labelled ``label``, dB (+inf if none)."""
     wbp = ev.worst_by_product
-    margins = wbp.loc[wbp["label"] == label, "margin_db"].to_numpy(dtype=float)
+    margins = wbp["margin_db"].to_numpy(dtype=float)[wbp["label"].to_numpy() == label]
     return float(margins.min()) if margins.size else float("inf")
 
 
