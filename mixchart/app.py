@@ -869,14 +869,23 @@ class PlannerApp:
     def _mark_stale(self) -> None:
         """While any field holds an invalid entry, say on the banner and on the charts that they show
         the last valid plan; clear the mark when every entry is valid again."""
-        stale = any(box.value for box in self.controls.errors.values())
-        mark = f" — {self.STALE_MARK}"
+        self._mark_titles_stale()
+        self._mark_banner_stale()
+
+    def _stale(self) -> bool:
+        return any(box.value for box in self.controls.errors.values())
+
+    def _mark_titles_stale(self) -> None:
+        stale, mark = self._stale(), f" — {self.STALE_MARK}"
         for title in (self.chart.tuning.title, self.chart.output.title):
             base = title.text.split(mark)[0]
             text = base + mark if stale else base
             if title.text != text:
                 with self.bokeh.batch():
                     title.text = text
+
+    def _mark_banner_stale(self) -> None:
+        stale = self._stale()
         status = self.status.value.split("<div class='mixchart-stale'")[0]
         if stale:
             status += (f"<div class='mixchart-stale' style='color:#8A5A00;font-weight:bold'>&#9888; "
@@ -955,7 +964,7 @@ class PlannerApp:
         self._last_meta = data.meta
         with self._sync(), self.bokeh.batch():
             update_chart(self.chart, data)
-            self._mark_stale()  # the titles were just reset from the data
+            self._mark_titles_stale()  # the titles were just reset from the data
         if self.state.reference is not None:  # the reference follows the channel (and, by its panel, the zoom)
             self.reference_panel.show(self.state.reference[1], self.state.view, data.meta)
             if self.reference_box.children:
@@ -977,7 +986,7 @@ class PlannerApp:
         # before the HTML updates that follow (which restyle the page and would delay the repaint)
         self._refresh_chart()
         self.status.value = _summary_html("Plan", ev)
-        self._mark_stale()  # the banner was just reset from the plan
+        self._mark_banner_stale()  # the banner was just reset from the plan
         self.warnings.value = _warnings_html(ev)
         self.controls.undo.disabled = not self.state.can_undo
         self.controls.redo.disabled = not self.state.can_redo
