@@ -442,6 +442,43 @@ def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     return out
 
 
+def parse_plan_json(text: str | bytes) -> Any:
+    """Parse plan JSON text into plain data, refusing what a plan file may not hold.
+
+    Parameters
+    ----------
+    text : str or bytes
+        The JSON document (UTF-8 if bytes).
+
+    Returns
+    -------
+    object
+        The parsed document (a dict for any plan).
+
+    Raises
+    ------
+    PlanError
+        Malformed JSON, NaN/Infinity, duplicate keys, too large or too deeply nested.
+    """
+    if isinstance(text, bytes):
+        try:
+            text = text.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise PlanError(f"plan file: not UTF-8 text ({exc.reason} at byte {exc.start})") from None
+    if len(text) > MAX_PLAN_BYTES:
+        raise PlanError(f"plan file: {len(text)} characters is too large; at most {MAX_PLAN_BYTES}")
+    try:
+        return json.loads(text, parse_constant=_reject_constant, object_pairs_hook=_no_duplicates)
+    except json.JSONDecodeError as exc:
+        raise PlanError(f"plan file: malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
+    except PlanError:
+        raise
+    except ValueError as exc:  # e.g. an integer literal longer than Python's 4300-digit limit
+        raise PlanError(f"plan file: unreadable JSON number ({str(exc).split(':')[0]})") from None
+    except RecursionError:
+        raise PlanError("plan file: JSON nested too deeply") from None
+
+
 def loads_plan(text: str | bytes) -> Plan:
     """Parse plan JSON text.
 
@@ -459,24 +496,20 @@ def loads_plan(text: str | bytes) -> Plan:
     PlanError
         Malformed JSON, NaN/Infinity, duplicate keys, or an invalid plan.
     """
-    if isinstance(text, bytes):
-        try:
-            text = text.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            raise PlanError(f"plan file: not UTF-8 text ({exc.reason} at byte {exc.start})") from None
-    if len(text) > MAX_PLAN_BYTES:
-        raise PlanError(f"plan file: {len(text)} characters is too large; at most {MAX_PLAN_BYTES}")
+    return plan_from_dict(parse_plan_json(text))
+
+
+def read_plan_bytes(path: str | os.PathLike[str]) -> bytes:
+    """The bytes of a plan file: a regular file of at most :data:`MAX_PLAN_BYTES`, or a one-line PlanError."""
+    path = Path(path)
     try:
-        data = json.loads(text, parse_constant=_reject_constant, object_pairs_hook=_no_duplicates)
-    except json.JSONDecodeError as exc:
-        raise PlanError(f"plan file: malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
-    except PlanError:
-        raise
-    except ValueError as exc:  # e.g. an integer literal longer than Python's 4300-digit limit
-        raise PlanError(f"plan file: unreadable JSON number ({str(exc).split(':')[0]})") from None
-    except RecursionError:
-        raise PlanError("plan file: JSON nested too deeply") from None
-    return plan_from_dict(data)
+        size = path.stat().st_size
+        if size > MAX_PLAN_BYTES:
+            raise PlanError(f"plan file: {str(path)!r} is {size} bytes; at most {MAX_PLAN_BYTES}")
+    except OSError as exc:
+        raise PlanError(f"plan file: {str(path)!r} cannot be read ({exc.strerror or exc})") from None
+    # a regular file only (never a FIFO or a device), read with the same cap
+    return read_regular_file(path, MAX_PLAN_BYTES, error=PlanError, field="plan file")
 
 
 def load_plan(path: str | os.PathLike[str]) -> Plan:
@@ -498,15 +531,7 @@ def load_plan(path: str | os.PathLike[str]) -> Plan:
     PlanError
         The file cannot be read, or is not a valid plan.
     """
-    path = Path(path)
-    try:
-        size = path.stat().st_size
-        if size > MAX_PLAN_BYTES:
-            raise PlanError(f"plan file: {str(path)!r} is {size} bytes; at most {MAX_PLAN_BYTES}")
-    except OSError as exc:
-        raise PlanError(f"plan file: {str(path)!r} cannot be read ({exc.strerror or exc})") from None
-    # a regular file only (never a FIFO or a device), read with the same cap
-    return loads_plan(read_regular_file(path, MAX_PLAN_BYTES, error=PlanError, field="plan file"))
+    return loads_plan(read_plan_bytes(path))
 
 
 def dumps_plan(plan: Plan) -> str:

@@ -78,9 +78,12 @@ def field_path(loc: tuple[Any, ...], data: Any) -> str:
     """
     parts: list[str] = []
     node = data
+    arrived = True  # just stepped into ``node``: a union tag, if any, comes first
     for part in loc:
-        if isinstance(node, dict) and part not in node and node.get("kind") == part:
-            continue  # the union tag
+        if isinstance(node, dict) and node.get("kind") == part and (arrived or part not in node):
+            arrived = False
+            continue  # the union tag (a chain stage's tag may equal one of its keys: 'filter')
+        arrived = True
         parts.append(one_line(str(part)))
         if isinstance(node, dict):
             node = node.get(part)

@@ -1,0 +1,176 @@
+"""The chunked sweep of a chain: blocks of channels through the forward and inverse analyses.
+
+:func:`analyse_chain` is the one entry point from a chain plan to a :class:`ChainResult`.  The
+channels go through in blocks sized so that no block holds more than
+:data:`~mixchart.chains.setup.BLOCK_ELEMENTS` bands x channels, whatever the order caps; each
+block's output bands are judged, and every path keeps its worst channel across the sweep.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..models.chain import ChainPlan
+from .forward import forward_block, path_texts
+from .inverse import inverse_block
+from .result import CHANNEL_COLUMNS, NODE_COLUMNS, ChainResult, ChainSummary
+from .setup import ChainSetup, set_up
+
+__all__ = ["analyse_chain", "MAX_HIT_ROWS"]
+
+#: Most failing (path, channel) rows kept (the worst ones).
+MAX_HIT_ROWS = 10_000
+
+
+def _kind_of_step(path: str) -> str:
+    return "LO leakage" if path.startswith("LO (0,") else "product"
+
+
+def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.ndarray, first: int,
+            margin: np.ndarray, level_dbc: np.ndarray, rejection: np.ndarray, low: np.ndarray, high: np.ndarray,
+            in_band: np.ndarray, limit: np.ndarray, worst: dict[str, np.ndarray]) -> tuple[dict, dict]:
+    """One block's (R, C) judged rows reduced to: each row at its worst channel, and its failing cells.
+
+    Also updates ``worst`` (the per-channel worst margin, path and stage of the sweep) in place.
+    Rows whose margin is +inf everywhere (nothing arrives) are left out.
+    """
+    r, c = margin.shape
+    live = np.isfinite(margin).any(axis=1) if r else np.zeros(0, dtype=bool)
+    rows = np.flatnonzero(live)
+    cols = np.argmin(margin[rows], axis=1) if rows.size else np.zeros(0, dtype=int)
+    kinds = np.asarray(kind, dtype=object)
+    kinds = np.broadcast_to(kinds, (r,)) if kinds.ndim == 0 else kinds
+
+    def cells(ri: np.ndarray, ci: np.ndarray) -> dict[str, np.ndarray]:
+        return {"kind": kinds[ri], "stage": stage[ri], "path": path[ri], "channel_hz": ch[ci],
+                "f_low_hz": low[ri, ci], "f_high_hz": high[ri, ci], "level_dbc": level_dbc[ri, ci],
+                "rejection_db": rejection[ri, ci], "margin_db": margin[ri, ci],
+                "limit": limit[ri, ci] if limit.ndim == 2 else limit[ri], "in_band": in_band[ri, ci]}
+
+    per_path = cells(rows, cols)
+    per_path["n_failing_channels"] = (margin[rows] < 0).sum(axis=1)
+    fail_r, fail_c = np.nonzero(margin < 0)
+    if fail_r.size > MAX_HIT_ROWS:
+        keep = np.argpartition(margin[fail_r, fail_c], MAX_HIT_ROWS)[:MAX_HIT_ROWS]
+        fail_r, fail_c = fail_r[keep], fail_c[keep]
+    hits = cells(fail_r, fail_c)
+    if r:
+        best = np.argmin(margin, axis=0)
+        value = margin[best, np.arange(c)]
+        span = slice(first, first + c)
+        better = value < worst["margin"][span]
+        worst["margin"][span] = np.where(better, value, worst["margin"][span])
+        worst["path"][span] = np.where(better, path[best], worst["path"][span])
+        worst["stage"][span] = np.where(better, stage[best], worst["stage"][span])
+    return per_path, hits
+
+
+def _forward_reduce(setup: ChainSetup, rows: slice, fwd, texts, origin, worst) -> tuple[dict, dict]:
+    ch = setup.channels_hz[rows]
+    texts = np.asarray(texts, dtype=object)
+    margin = fwd.margin_db.copy()
+    margin[0] = np.inf
+    margin[~np.isfinite(fwd.flow.level_dbm)] = np.inf
+    kinds = np.array([_kind_of_step(t) for t in texts], dtype=object)
+    limit_texts = np.asarray(("",) + setup.limits.texts[1:], dtype=object)
+    stage = np.asarray(setup.names, dtype=object)[np.maximum(origin, 0)]
+    return _reduce(kinds, stage, texts, ch, rows.start or 0, margin, fwd.level_dbc, -fwd.level_dbc,
+                   fwd.flow.low_hz, fwd.flow.high_hz, fwd.in_band, limit_texts[fwd.limit_text], worst)
+
+
+def _nodes_frame(setup: ChainSetup) -> pd.DataFrame:
+    rows = []
+    kinds = ["input"] + [s.kind for s in setup.plan.chain]
+    for j, node in enumerate(setup.nodes):
+        lo = node.lo_hz.get(j - 1)
+        sense = "mixed" if node.inverted.any() and not node.inverted.all() else (
+            "inverted" if node.inverted.any() else "normal")
+        rows.append({"node": j, "after": "chain input" if j == 0 else setup.names[j - 1], "kind": kinds[j],
+                     "f_low_hz": float(node.f_hz.min()), "f_high_hz": float(node.f_hz.max()), "sense": sense,
+                     "lo_low_hz": float(lo.min()) if lo is not None else np.nan,
+                     "lo_high_hz": float(lo.max()) if lo is not None else np.nan,
+                     "level_dbm": float(node.level_dbm.max())})
+    return pd.DataFrame(rows, columns=list(NODE_COLUMNS))
+
+
+def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune: bool = True,
+                  responses: bool = True, block_channels: int | None = None) -> ChainResult:
+    """Sweep a chain plan: the wanted signal's products forward, the receiver's responses inverse.
+
+    Parameters
+    ----------
+    plan : ChainPlan
+        The plan (layout version 2).
+    base_dir : str or pathlib.Path, optional
+        Folder for relative file paths in the plan (its own folder, for a plan file).
+    prune : bool
+        Drop bands provably below every limit (the default; the count is reported).
+    responses : bool
+        Run the inverse search for a receiver (``direction 'down'``); a transmitter has none.
+    block_channels : int, optional
+        Channels per block; default: as many as the memory budget allows.
+
+    Returns
+    -------
+    ChainResult
+
+    Raises
+    ------
+    PlanError
+        A stage the wanted signal cannot pass (named, with the field).
+    SweepTooLargeError
+        Order caps that would carry too many bands per channel.
+    """
+    setup = set_up(plan, base_dir)
+    n = setup.channels_hz.size
+    step = block_channels or setup.block_channels()
+    per_path, hits, explored, pruned, r_explored, r_pruned = [], [], 0, 0, 0, 0
+    worst_all = {"margin": np.full(n, np.inf), "path": np.full(n, "", dtype=object),
+                 "stage": np.full(n, "", dtype=object)}
+    for start in range(0, n, step):
+        rows = slice(start, min(n, start + step))
+        fwd = forward_block(setup, rows, prune=prune)
+        texts, origin = path_texts(setup, fwd.history)
+        a, b = _forward_reduce(setup, rows, fwd, texts, origin, worst_all)
+        per_path.append(a)
+        hits.append(b)
+        explored += fwd.explored
+        pruned += fwd.pruned
+        if responses and plan.direction == "down":
+            inv = inverse_block(setup, rows, prune=prune)
+            a, b = _reduce("response", inv.stage, inv.path, setup.channels_hz[rows], start, inv.margin_db,
+                           inv.level_dbc, inv.rejection_db, inv.low_hz, inv.high_hz,
+                           np.ones(inv.margin_db.shape, dtype=bool),
+                           np.full(inv.path.shape, setup.limits.texts[0], dtype=object), worst_all)
+            per_path.append(a)
+            hits.append(b)
+            r_explored += inv.explored
+            r_pruned += inv.pruned
+    worst, worst_path, worst_stage = worst_all["margin"], worst_all["path"], worst_all["stage"]
+    paths = pd.DataFrame({k: np.concatenate([p[k] for p in per_path]) for k in per_path[0]})
+    if len(paths):
+        paths = paths.sort_values("margin_db", kind="stable")
+        fails = paths.groupby(["kind", "path"], sort=False)["n_failing_channels"].sum()
+        paths = paths.drop_duplicates(["kind", "path"]).copy()
+        paths["n_failing_channels"] = fails.loc[list(zip(paths["kind"], paths["path"], strict=True))].to_numpy()
+        paths = paths.reset_index(drop=True)
+    hits = pd.DataFrame({k: np.concatenate([p[k] for p in hits]) for k in hits[0]})
+    hits = hits.sort_values("margin_db", kind="stable").head(MAX_HIT_ROWS).reset_index(drop=True)
+    out = setup.nodes[-1]
+    channels = pd.DataFrame({"channel_hz": setup.channels_hz, "f_out_hz": out.f_hz, "inverted": out.inverted,
+                             "worst_margin_db": worst, "worst_path": worst_path, "worst_stage": worst_stage},
+                            columns=list(CHANNEL_COLUMNS))
+    k = int(np.argmin(worst)) if n else 0
+    inverted = "mixed" if out.inverted.any() and not out.inverted.all() else ("yes" if out.inverted.any() else "no")
+    caps = tuple((name, int(getattr(e, "max_order", 0) or getattr(e, "max_harmonic", 0)))
+                 for name, e in zip(setup.names, setup.elements, strict=True) if e.kind != "filter")
+    summary = ChainSummary(
+        worst_margin_db=float(worst[k]), worst_channel_hz=float(setup.channels_hz[k]), worst_path=str(worst_path[k]),
+        limiting_stage=str(worst_stage[k]), spur_free_fraction=float(np.mean(worst >= 0)), n_channels=n,
+        n_failing_channels=int(np.sum(worst < 0)), paths_explored=explored, paths_pruned=pruned,
+        responses_explored=r_explored, responses_pruned=r_pruned, order_caps=caps, inverted=inverted)
+    return ChainResult(plan=plan, channels_hz=setup.channels_hz, worst_margin_db=worst, summary=summary,
+                       warnings=setup.warnings, paths=paths, channels=channels, nodes=_nodes_frame(setup), hits=hits)
