@@ -90,15 +90,22 @@ def _fan_out(element: Element) -> int:
     return 1
 
 
-def _check_in_band(node: Node, low: float, high: float, field_name: str, what: str) -> None:
+def _check_in_band(node: Node, low: float, high: float, field_name: str, what: str,
+                   records: list[WarningRecord], *, refuse: bool = True) -> None:
+    """Refuse a stage the wanted signal cannot reach at any channel; warn where only some channels miss."""
     half = 0.5 * node.bandwidth_hz
-    bad = (node.f_hz - half < low - 1e-9 * high) | (node.f_hz + half > high + 1e-9 * high)
-    bad &= ~((node.f_hz >= low) & (node.f_hz <= high))  # a centre inside is a grid error, not a wrong plan
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise PlanError(f"{field_name}: the wanted signal reaches {what} at {format_frequency(node.f_hz[i])} "
-                        f"(channel {format_frequency(node.channel_hz[i])}), outside its passband "
-                        f"{format_frequency(low)} to {format_frequency(high)}; fix this stage's LO or passband")
+    tol = 1e-9 * high
+    outside = (node.f_hz - half < low - tol) | (node.f_hz + half > high + tol)
+    if not outside.any():
+        return
+    i = int(np.flatnonzero(outside)[0])
+    where = (f"{what} at {format_frequency(node.f_hz[i])} (channel {format_frequency(node.channel_hz[i])}), "
+             f"outside its passband {format_frequency(low)} to {format_frequency(high)}")
+    if outside.all() and refuse:
+        raise PlanError(f"{field_name}: the wanted signal reaches {where}; fix this stage's LO or passband")
+    records.append(WarningRecord("wanted-outside-passband", field_name, int(outside.sum()),
+                                 f"{field_name}: at {int(outside.sum())} of {outside.size} channels the wanted "
+                                 f"signal does not fit the passband (first: {where})"))
 
 
 def set_up(plan: ChainPlan, base_dir: str | Path | None = None) -> ChainSetup:
@@ -125,14 +132,17 @@ def set_up(plan: ChainPlan, base_dir: str | Path | None = None) -> ChainSetup:
     node = Node(ch, f0, np.full_like(ch, plan.signal.level_dbm), np.zeros(ch.shape, dtype=bool),
                 float(plan.signal.bandwidth_hz))
     nodes = [node]
+    checks: list[WarningRecord] = []
     for i, element in enumerate(elements):
         spec = plan.chain[i]
         if spec.kind == "mixer" and spec.input_port == "if":
-            _check_in_band(node, spec.if_.f_low_hz, spec.if_.f_high_hz, f"chain.{i}.if", f"{names[i]}'s input")
+            _check_in_band(node, spec.if_.f_low_hz, spec.if_.f_high_hz, f"chain.{i}.if", f"{names[i]}'s input",
+                           checks)
         element.prepare(node)
         node = element.wanted(node)
         if spec.kind == "mixer" and spec.input_port == "rf":
-            _check_in_band(node, spec.if_.f_low_hz, spec.if_.f_high_hz, f"chain.{i}.if", f"{names[i]}'s output")
+            _check_in_band(node, spec.if_.f_low_hz, spec.if_.f_high_hz, f"chain.{i}.if", f"{names[i]}'s output",
+                           checks)
         nodes.append(node)
     last = plan.chain[-1]
     half = 0.5 * plan.signal.bandwidth_hz
@@ -147,8 +157,8 @@ def set_up(plan: ChainPlan, base_dir: str | Path | None = None) -> ChainSetup:
         low, high = nodes[-1].f_hz - half, nodes[-1].f_hz + half
         brick = False
         _check_in_band(nodes[-1], float(np.min(ch - half)), float(np.max(ch + half)), "rf",
-                       "the chain output")
-    records = [rec for e in elements for rec in e.warnings()]
+                       "the chain output", checks, refuse=False)  # an LO grid error moves it off: a warning
+    records = checks + [rec for e in elements for rec in e.warnings()]
     if brick:
         records.append(WarningRecord("ideal-final-filter", f"chain.{mixers[-1]}.if", None,
                                      f"chain.{mixers[-1]}.if: no filter after {names[mixers[-1]]}; its IF passband "
