@@ -60,7 +60,8 @@ from .chart_style import (
     style_columns,
 )
 from .levels import FLOOR_DBC
-from .products import HALF_IF, IMAGE, LABELS, output_plane_loci, tuning_plane_strips
+from .loci import output_plane_loci, tuning_plane_strips
+from .products import HALF_IF, IMAGE, LABELS
 from .units import format_frequency
 
 __all__ = [
