@@ -202,7 +202,7 @@ def point_rule():
     filter); exact for the monotone and tuned filters of this plan, optimistic for elliptic
     zeros and measured notches, which is why the engine no longer uses it.
     """
-    import mixchart.analysis as analysis
+    import mixchart.analysis.block as block
     import mixchart.context as context
 
     def band_atten(filt, f_low, f_high, centre, field):
@@ -215,12 +215,12 @@ def point_rule():
             point = np.clip(0.5 * sum(filt.passband_hz()), f_low, f_high)
         return context.capped(filt.atten_db(point, fc), field, point)
 
-    saved = analysis.band_atten, context.band_atten
-    analysis.band_atten = context.band_atten = band_atten
+    saved = block.band_atten, context.band_atten
+    block.band_atten = context.band_atten = band_atten
     try:
         yield
     finally:
-        analysis.band_atten, context.band_atten = saved
+        block.band_atten, context.band_atten = saved
 
 
 def main(argv: list[str] | None = None) -> int:

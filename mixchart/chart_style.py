@@ -2,7 +2,7 @@
 
 One colour, one meaning (colour-blind-safe Okabe-Ito colours where a colour carries a verdict):
 :data:`PALETTE` maps each meaning to its colour, and every colour the chart draws comes from it
-(a test reads ``chart.py`` for stray colour literals).  The margin categories colour lines,
+(a test reads ``chart.py`` and its data modules for stray colour literals).  The margin categories colour lines,
 strips, marks, dots and the tables alike; the filter shading is one green on both axes (the
 vertical band is the input side, the horizontal band the output side); the plan itself (its
 line, the current channel, the draggable bands, every marker's outline and the texts) is

@@ -1,7 +1,7 @@
 """Evaluating a plan: level model, margins, summaries, frames (mixchart.analysis).
 
 Level-model expectations are derived by hand from the formulas in the
-mixchart.analysis module docstring and the built-in table rules of
+mixchart.analysis.block module docstring and the built-in table rules of
 mixchart.levels (each derivation is written beside the value), or come from a
 textbook worked example.  The in-band product set is checked against the
 brute-force reference in tests/reference.py.
@@ -20,7 +20,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from reference_filters import tuned_circuit_loss_db
 
-import mixchart.analysis as analysis
+import mixchart.analysis.sweep as sweep
 import reference as ref  # tests/reference.py (pytest puts tests/ on sys.path)
 from mixchart import evaluate, load_plan
 from mixchart.analysis import FRAME_COLUMNS
@@ -379,7 +379,7 @@ def test_chunked_evaluation_equals_one_block(name):
 def test_chunking_keeps_the_worst_hits_of_the_whole_sweep(monkeypatch, max_rows):
     # Regression: with more failing rows than MAX_HIT_ROWS, the kept rows were the first
     # channels' failures, not the worst ones, and depended on the chunk size.
-    monkeypatch.setattr(analysis, "MAX_HIT_ROWS", max_rows)
+    monkeypatch.setattr(sweep, "MAX_HIT_ROWS", max_rows)  # where evaluate() reads it
     # no preselector: every channel fails on its image (0 dBc, margin -60 dB: many ties) and on
     # several weaker responses, well over 25 failing rows in all
     plan = plan_from_dict(receiver(rf={"start_hz": "100 MHz", "stop_hz": "110 MHz", "step_hz": "500 kHz"}))

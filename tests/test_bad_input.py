@@ -335,16 +335,16 @@ def test_a_nan_margin_is_an_error_naming_the_term_never_a_pass(monkeypatch):
 
 def test_a_nan_level_is_caught_as_a_margin_too(monkeypatch):
     # the last guard: any NaN in a block's margins, whatever term produced it
-    import mixchart.analysis as analysis
+    import mixchart.analysis.sweep as sweep
 
-    real = analysis._evaluate_block
+    real = sweep._evaluate_block
 
     def poisoned(ctx, rows):
         block = real(ctx, rows)
         block.margin_db[0, 3] = np.nan
         return block
 
-    monkeypatch.setattr(analysis, "_evaluate_block", poisoned)
+    monkeypatch.setattr(sweep, "_evaluate_block", poisoned)  # where evaluate() looks it up
     with pytest.raises(AnalysisError) as info:
         evaluate(load_plan(example_path("fm_receiver")))
     message = one_line_error(info)

@@ -413,7 +413,7 @@ def test_down_output_plane_wanted_arm_and_image_arm(down):
     lo, hi, cat, _ = arms["(1,1) image arm"]
     assert lo >= 20 - 1e-9 and lo <= 25 <= hi and cat == "violates"
     # the wanted point of the output plane: input 15 MHz at the 5 MHz IF, margin NaN (documented in
-    # chart._point_columns: the wanted row has no margin)
+    # chart_layers._point_columns: the wanted row has no margin)
     pts = data.sources["out_points"]
     w = [i for i, lb in enumerate(pts["label"]) if lb == "wanted"]
     assert w and all((pts["x"][i], pts["y"][i]) == pytest.approx((15.0, 5.0)) for i in w)
@@ -552,7 +552,7 @@ def test_every_column_has_one_length_and_finite_numbers(which, down, up):
                 assert all(c in ("wanted", "clear") for c in np.asarray(columns["category"])[nan]), name
                 continue
             if key == "margin" and "label" in columns:
-                # chart._point_columns: the wanted row and co-channel responses have no margin, shown
+                # chart_layers._point_columns: the wanted row and co-channel responses have no margin, shown
                 # as NaN; nothing else is NaN
                 nan = np.isnan(arr)
                 kinds = np.asarray(columns["kind"])[nan] if "kind" in columns else np.full(nan.sum(), "product")
@@ -560,7 +560,7 @@ def test_every_column_has_one_length_and_finite_numbers(which, down, up):
                            for lb, k in zip(np.asarray(columns["label"])[nan], kinds, strict=True)), name
                 assert np.isfinite(arr[~nan]).all(), name
             elif key == "rejection" and "kind" in columns:
-                # chart._point_columns: only responses have an input-referred rejection; products NaN
+                # chart_layers._point_columns: only responses have an input-referred rejection; products NaN
                 response = np.asarray(columns["kind"]) == "response"
                 assert np.isnan(arr[~response]).all() and np.isfinite(arr[response]).all(), name
             else:
@@ -819,7 +819,7 @@ def _lab(colour: str) -> np.ndarray:
 def test_one_colour_one_meaning():
     # Item 5: "blue" means one thing.  The palette maps each meaning (margin categories, the wanted
     # conversion, filter shading, the plan's ink, the grid, the background) to a colour, injectively,
-    # and every colour chart.py or chart_style.py writes is one of them.
+    # and every colour chart.py, chart_data.py, chart_layers.py or chart_style.py writes is one of them.
     from pathlib import Path
 
     import mixchart.chart
@@ -829,7 +829,7 @@ def test_one_colour_one_meaning():
     colours = [c.upper() for c in [*PALETTE.values(), *VERDICT_COLOURS.values()]]
     assert len(set(colours)) == len(colours)
     assert {k: v[1] for k, v in CATEGORIES.items()} == {k: PALETTE[k] for k in CATEGORIES}
-    for module in ("chart.py", "chart_style.py"):
+    for module in ("chart.py", "chart_data.py", "chart_layers.py", "chart_style.py"):
         text = (Path(mixchart.chart.__file__).parent / module).read_text(encoding="utf-8")
         assert {c.upper() for c in re.findall(r"#[0-9A-Fa-f]{6}\b", text)} <= set(colours), module
     # The conversion checked against a published value: sRGB red is L*a*b* (53.24, 80.09, 67.20)

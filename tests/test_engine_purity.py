@@ -12,7 +12,7 @@ REPO = Path(__file__).resolve().parents[1]
 PROBE = """
 import sys
 import mixchart, mixchart.analysis, mixchart.products, mixchart.plan, mixchart.levels, mixchart.filters, mixchart.cli
-import mixchart.requirements, mixchart.context, mixchart.checks
+import mixchart.requirements, mixchart.context, mixchart.checks, mixchart.loci
 from mixchart import evaluate, load_plan
 from mixchart.cli import example_path
 evaluate(load_plan(example_path()))  # running the engine must not pull them in either
