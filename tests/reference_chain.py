@@ -237,7 +237,7 @@ def reference_paths(plan, base_dir=None):
             bands = new
         # the output
         rows = []
-        f_w, w_out = nodes[-1]
+        _, w_out = nodes[-1]
         last_mixer = plan.chain[mixers[-1]]
         brick = (plan.direction == "down" and plan.chain[-1].kind != "adc"
                  and not any(s.kind == "filter" for s in plan.chain[mixers[-1] + 1:]))

@@ -135,7 +135,7 @@ def _plan_or_skip(data):
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(data=st.data())
 def test_without_pruning_the_engine_finds_exactly_the_reference_bands(n_mixers, data):
-    plan, setup = _plan_or_skip(data.draw(chains(n_mixers)))
+    plan, _ = _plan_or_skip(data.draw(chains(n_mixers)))
     if plan is None:
         return
     assert_same_rows(engine_paths(plan, prune=False), reference_paths(plan))
@@ -145,7 +145,7 @@ def test_without_pruning_the_engine_finds_exactly_the_reference_bands(n_mixers, 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(data=st.data())
 def test_pruning_keeps_every_band_within_the_headroom_of_its_limit(n_mixers, data):
-    plan, setup = _plan_or_skip(data.draw(chains(n_mixers)))
+    plan, _ = _plan_or_skip(data.draw(chains(n_mixers)))
     if plan is None:
         return
     assert_same_rows(engine_paths(plan, prune=True), reference_paths(plan), only_within=PRUNE_HEADROOM_DB)

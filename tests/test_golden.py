@@ -14,9 +14,8 @@ import json
 import sys
 from pathlib import Path
 
-import pytest
-
 import numpy as np
+import pytest
 
 from mixchart.analysis import Evaluation, evaluate
 from mixchart.chains import analyse_chain, evaluate_any
@@ -66,8 +65,9 @@ def test_version_1_plans_through_the_chain_loader_and_bridge_give_the_recorded_r
 def test_the_path_engine_agrees_with_the_record_on_every_channel(name):
     """The chain engine's own sweep of the one-mixer chain: the same worst margin per channel.
 
-    Not bit for bit (the sums run in another order): within 1e-6 dB (the response levels compose affine maps instead of dividing one level).  A transmitter whose LO grid
-    holds the output (the IF source retunes) is the single-conversion engine's alone.
+    Not bit for bit (the sums run in another order, and the response levels compose affine maps
+    instead of dividing one level): within 1e-6 dB.  A transmitter whose LO grid holds the output
+    (the IF source retunes) is the single-conversion engine's alone.
     """
     case = CASES[name]
     base = str(EXAMPLES) if case["base"] else None
