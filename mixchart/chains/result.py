@@ -115,16 +115,17 @@ class ChainResult:
     """
 
     __slots__ = ("plan", "channels_hz", "worst_margin_db", "summary", "warnings", "_paths", "_channels", "_nodes",
-                 "_hits")
+                 "_hits", "_channel_rows")
 
     def __init__(self, *, plan, channels_hz, worst_margin_db, summary, warnings, paths, channels, nodes,
-                 hits) -> None:
+                 hits, channel_rows) -> None:
         for name, value in (("channels_hz", channels_hz), ("worst_margin_db", worst_margin_db)):
             value = np.array(value, dtype=float)
             value.flags.writeable = False
             object.__setattr__(self, name, value)
         for name, value in (("plan", plan), ("summary", summary), ("warnings", tuple(warnings)),
-                            ("_paths", paths), ("_channels", channels), ("_nodes", nodes), ("_hits", hits)):
+                            ("_paths", paths), ("_channels", channels), ("_nodes", nodes), ("_hits", hits),
+                            ("_channel_rows", channel_rows)):
             object.__setattr__(self, name, value)
 
     def __setattr__(self, name: str, value: object) -> None:
@@ -152,6 +153,14 @@ class ChainResult:
     def hits(self) -> pd.DataFrame:
         """Failing (path, channel) rows, worst first."""
         return self._hits.copy(deep=False)
+
+    def channel_frame(self, index: int) -> pd.DataFrame:
+        """Every judged path of channel ``index`` (products and responses), worst first."""
+        return self._channel_rows(int(index))
+
+    def nearest_channel(self, f_hz: float) -> int:
+        """Index of the channel nearest ``f_hz``."""
+        return int(np.argmin(np.abs(self.channels_hz - f_hz)))
 
     def to_frame(self) -> pd.DataFrame:
         """The paths table (the worst case of every path)."""

@@ -19,7 +19,7 @@ from .inverse import inverse_block
 from .result import CHANNEL_COLUMNS, NODE_COLUMNS, ChainResult, ChainSummary
 from .setup import ChainSetup, set_up
 
-__all__ = ["analyse_chain", "MAX_HIT_ROWS"]
+__all__ = ["analyse_chain", "channel_rows", "MAX_HIT_ROWS"]
 
 #: Most failing (path, channel) rows kept (the worst ones).
 MAX_HIT_ROWS = 10_000
@@ -173,4 +173,34 @@ def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune:
         n_failing_channels=int(np.sum(worst < 0)), paths_explored=explored, paths_pruned=pruned,
         responses_explored=r_explored, responses_pruned=r_pruned, order_caps=caps, inverted=inverted)
     return ChainResult(plan=plan, channels_hz=setup.channels_hz, worst_margin_db=worst, summary=summary,
-                       warnings=setup.warnings, paths=paths, channels=channels, nodes=_nodes_frame(setup), hits=hits)
+                       warnings=setup.warnings, paths=paths, channels=channels, nodes=_nodes_frame(setup), hits=hits,
+                       channel_rows=lambda index: channel_rows(setup, index, prune=prune, responses=responses))
+
+
+def channel_rows(setup: ChainSetup, index: int, *, prune: bool = True, responses: bool = True) -> pd.DataFrame:
+    """Every judged path of one channel (products, and responses for a receiver), worst first.
+
+    Parameters
+    ----------
+    setup : ChainSetup
+        The sweep's set-up (its elements and wanted signal, unchanged).
+    index : int
+        The channel, 0 to ``n_channels - 1``.
+    """
+    n = setup.channels_hz.size
+    if not 0 <= index < n:
+        raise IndexError(f"index: {index} is invalid; the sweep has channels 0 to {n - 1}")
+    rows = slice(index, index + 1)
+    scratch = {"margin": np.full(n, np.inf), "path": np.full(n, "", dtype=object),
+               "stage": np.full(n, "", dtype=object)}
+    fwd = forward_block(setup, rows, prune=prune)
+    texts, origin = path_texts(setup, fwd.history)
+    parts = [_forward_reduce(setup, rows, fwd, texts, origin, scratch)[0]]
+    if responses and setup.plan.direction == "down":
+        inv = inverse_block(setup, rows, prune=prune)
+        parts.append(_reduce("response", inv.stage, inv.path, setup.channels_hz[rows], index, inv.margin_db,
+                             inv.level_dbc, inv.rejection_db, inv.low_hz, inv.high_hz,
+                             np.ones(inv.margin_db.shape, dtype=bool),
+                             np.full(inv.path.shape, setup.limits.texts[0], dtype=object), scratch)[0])
+    frame = pd.DataFrame({k: np.concatenate([p[k] for p in parts]) for k in parts[0]})
+    return frame.drop(columns="n_failing_channels").sort_values("margin_db", kind="stable").reset_index(drop=True)
