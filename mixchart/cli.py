@@ -1,4 +1,4 @@
-"""Command line: ``mixchart sweep | check | schema | serve | snapshot``.
+"""Command line: ``mixchart sweep | check | schema | migrate | serve | snapshot``.
 
 Exit status: 0 on success; 1 when ``--fail-on-spur`` is given and the plan
 violates its requirement; 2 on bad input (a one-line message on stderr, never a
@@ -24,6 +24,10 @@ EXAMPLES = {
     "ism_transmitter": "ism_transmitter.json",
 }
 DEFAULT_EXAMPLE = "fm_receiver"
+#: Built-in example chains (plan layout version 2), in mixchart/examples/chains.
+CHAIN_EXAMPLES = {
+    "scanner_double_conversion": "chains/scanner_double_conversion.json",
+}
 
 
 def example_path(name: str = DEFAULT_EXAMPLE) -> Path:
@@ -38,16 +42,33 @@ def example_path(name: str = DEFAULT_EXAMPLE) -> Path:
     -------
     pathlib.Path
     """
-    if name not in EXAMPLES:
-        raise MixchartError(f"--example: {name!r} is invalid; choose one of {', '.join(EXAMPLES)}")
-    return Path(__file__).resolve().parent / "examples" / EXAMPLES[name]
+    known = {**EXAMPLES, **CHAIN_EXAMPLES}
+    if name not in known:
+        raise MixchartError(f"--example: {name!r} is invalid; choose one of {', '.join(known)}")
+    return Path(__file__).resolve().parent / "examples" / known[name]
+
+
+def _load_any(args: argparse.Namespace):
+    """The plan of either layout version, and its folder; a one-mixer chain is read as version 1."""
+    from .models import load_any, single_stage_plan
+    from .models.chain import ChainPlan
+
+    path = Path(args.plan) if args.plan else example_path(args.example)
+    plan = load_any(path)
+    if isinstance(plan, ChainPlan):
+        plan = single_stage_plan(plan) or plan
+    return plan, path.parent
 
 
 def _load(args: argparse.Namespace):
-    from .plan import load_plan
+    """A plan the single-conversion tools take (version 1, or a one-mixer chain), and its folder."""
+    from .models.chain import ChainPlan
 
-    path = Path(args.plan) if args.plan else example_path(args.example)
-    return load_plan(path), path.parent
+    plan, base = _load_any(args)
+    if isinstance(plan, ChainPlan):
+        raise MixchartError(f"plan: {plan.name!r} is a chain of {len(plan.chain)} stages; `mixchart {args.command}` "
+                            "takes one conversion for now: use `mixchart sweep` for chains")
+    return plan, base
 
 
 def _fmt_db(value: float) -> str:
@@ -97,9 +118,14 @@ def _text_table(frame, top: int) -> str:
 
 def _cmd_sweep(args: argparse.Namespace) -> int:
     from .analysis import evaluate
+    from .models.chain import ChainPlan
     from .units import parse_frequency
 
-    plan, base = _load(args)
+    plan, base = _load_any(args)
+    if isinstance(plan, ChainPlan):
+        from .cli_chain import sweep_chain
+
+        return sweep_chain(plan, base, args)
     result = evaluate(plan, base_dir=base)
     if args.channel is not None:
         f_hz = parse_frequency(args.channel, "--channel")
@@ -163,18 +189,43 @@ def _plan_header(plan, result) -> str:
 
 def _cmd_check(args: argparse.Namespace) -> int:
     from .context import build_context
+    from .models.chain import ChainPlan
 
-    plan, base = _load(args)
+    plan, base = _load_any(args)
+    if isinstance(plan, ChainPlan):
+        from .chains.setup import set_up
+
+        setup = set_up(plan, base)  # every stage built, the wanted signal carried through the chain
+        print(f"ok: {plan.name!r}: {plan.rf.n_channels} channel(s), {len(plan.chain)} stages "
+              f"({' -> '.join(setup.names)}), direction {plan.direction}")
+        return 0
     build_context(plan, base)  # filters and level tables load too
     print(f"ok: {plan.name!r}: {plan.rf.n_channels} channel(s), order {plan.max_order}, direction {plan.direction}")
     return 0
 
 
 def _cmd_schema(args: argparse.Namespace) -> int:
+    from .models.chain import chain_json_schema
     from .plan import plan_json_schema
 
-    json.dump(plan_json_schema(), sys.stdout, indent=2)
+    json.dump(plan_json_schema() if args.layout == 1 else chain_json_schema(), sys.stdout, indent=2)
     sys.stdout.write("\n")
+    return 0
+
+
+def _cmd_migrate(args: argparse.Namespace) -> int:
+    from .models import dumps_any, load_any, migrate_v1, save_any, stage_names
+    from .models.chain import ChainPlan
+
+    plan = load_any(args.plan)
+    if isinstance(plan, ChainPlan):
+        raise MixchartError(f"plan: {args.plan!r} is layout version 2 already; nothing to migrate")
+    chain = migrate_v1(plan)
+    if Path(args.output).resolve() == Path(args.plan).resolve():
+        raise MixchartError(f"-o: {args.output!r} is the input file; write the new layout to another file")
+    dumps_any(chain)  # serialisable before anything is written
+    path = save_any(chain, args.output)
+    print(f"wrote {path} (layout version 2: {' -> '.join(stage_names(chain))})")
     return 0
 
 
@@ -205,7 +256,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     def plan_args(p: argparse.ArgumentParser) -> None:
         p.add_argument("plan", nargs="?", help="plan JSON file (default: a built-in example)")
-        p.add_argument("--example", default=DEFAULT_EXAMPLE, choices=sorted(EXAMPLES),
+        p.add_argument("--example", default=DEFAULT_EXAMPLE, choices=sorted({**EXAMPLES, **CHAIN_EXAMPLES}),
                        help="built-in example when no plan is given")
 
     p = sub.add_parser("sweep", help="evaluate a plan across its tuning range and print the results")
@@ -224,7 +275,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=_cmd_check)
 
     p = sub.add_parser("schema", help="print the plan file's JSON Schema")
+    p.add_argument("--layout", type=int, choices=[1, 2], default=2,
+                   help="plan layout version: 2, a chain of stages (default); 1, one conversion")
     p.set_defaults(func=_cmd_schema)
+
+    p = sub.add_parser("migrate", help="rewrite a version-1 plan as a one-mixer chain (layout version 2)")
+    p.add_argument("plan", help="the version-1 plan file")
+    p.add_argument("-o", "--output", required=True, help="the version-2 plan file to write")
+    p.set_defaults(func=_cmd_migrate)
 
     p = sub.add_parser("serve", help="open the planning chart in the browser (Voila on 127.0.0.1)")
     plan_args(p)

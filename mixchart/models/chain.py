@@ -30,7 +30,8 @@ from ..plan import MAX_CHANNELS, MAX_ORDER, Plan, RfBand, Signal, plan_from_dict
 from ..requirements import Requirement
 from ..validation import from_validation_error
 
-__all__ = ["CHAIN_SCHEMA_VERSION", "MAX_STAGES", "ChainPlan", "Stage", "chain_from_dict", "migrate_v1",
+__all__ = ["CHAIN_SCHEMA_VERSION", "MAX_STAGES", "ChainPlan", "Stage", "chain_from_dict", "chain_json_schema",
+           "migrate_v1",
            "single_stage_plan", "stage_names"]
 
 #: Version of the plan layout with a chain of stages.
@@ -109,6 +110,13 @@ class ChainPlan(BaseModel):
     def to_dict(self) -> dict[str, Any]:
         """Plain JSON-ready dict (frequencies as float Hz, JSON key names)."""
         return self.model_dump(mode="json", by_alias=True, exclude_none=True)
+
+
+def chain_json_schema() -> dict[str, Any]:
+    """The JSON Schema (draft 2020-12) of a version-2 plan file, generated from the model."""
+    schema = ChainPlan.model_json_schema(by_alias=True, mode="validation")
+    return {"$schema": "https://json-schema.org/draft/2020-12/schema",
+            "$id": f"mixchart-plan-v{CHAIN_SCHEMA_VERSION}", **schema}
 
 
 def stage_names(plan: ChainPlan) -> list[str]:
