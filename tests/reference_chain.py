@@ -101,10 +101,7 @@ def reference_paths(plan, base_dir=None):
     The wanted signal itself is left out; so are bands that do not arrive (brick wall).
     """
     names = stage_names(plan)
-    n_ch = plan.rf.n_channels
-    step = plan.rf.step_hz or 0.0
-    channels = [min(plan.rf.start_hz + k * step, plan.rf.stop_hz) if n_ch > 1 else plan.rf.start_hz
-                for k in range(n_ch)]
+    channels = _channels(plan)
     mixers = [i for i, s in enumerate(plan.chain) if s.kind == "mixer"]
     filters = {i: build_filter(s.filter, base_dir=base_dir) for i, s in enumerate(plan.chain) if s.kind == "filter"}
     lo_filters = {i: build_filter(s.lo_filter, base_dir=base_dir) for i, s in enumerate(plan.chain)
@@ -134,34 +131,7 @@ def reference_paths(plan, base_dir=None):
             out.append((f, level))
         return out, los
 
-    # the level tables: built as a plan asks, from the LO of every channel (the LO filter's H2 rejection)
-    tables = {}
-    for i in mixers:
-        spec = plan.chain[i]
-        cap = spec.max_order or plan.max_order
-        los, drives = [], []
-        for channel in channels:
-            f = channel if plan.direction == "down" else plan.chain[mixers[0]].if_.center_hz
-            level = plan.signal.level_dbm
-            for j in range(i):
-                s = plan.chain[j]
-                if s.kind == "filter":
-                    level -= _point_loss(filters[j], f, f)
-                elif s.kind == "mixer":
-                    lo_j = _lo(s, f, channel)
-                    f = abs(f + _wanted_sign(s, f, lo_j, channel) * lo_j)
-                    level -= tables[j].conversion_loss_db
-                elif s.kind == "amplifier":
-                    level += s.gain_db
-            los.append(_lo(spec, f, channel))
-            drives.append(level)
-        h2 = 0.0
-        if i in lo_filters:
-            lf = lo_filters[i]
-            h2 = min(_point_loss(lf, 2 * lo, lo) - _point_loss(lf, lo, lo) for lo in los)
-        tables[i] = build_table(spec.mixer, cap, base_dir=base_dir,
-                                direction="down" if spec.input_port == "rf" else "up",
-                                lo_h2_rejection_db=h2, signal_dbm=max(drives))
+    tables = _build_tables(plan, channels, filters, lo_filters, base_dir)
 
     limits = resolve_limits(plan.requirement, plan.direction)
     out = {}
@@ -255,3 +225,133 @@ def reference_paths(plan, base_dir=None):
             rows.append((", then ".join(steps), dbc, margin))
         out[k] = rows
     return out
+
+
+
+def _build_tables(plan, channels, filters, lo_filters, base_dir):
+    """Each mixer's level table, built as a plan asks: from the LO and the drive of every channel."""
+    mixers = [i for i, s in enumerate(plan.chain) if s.kind == "mixer"]
+    tables = {}
+    for i in mixers:
+        spec = plan.chain[i]
+        cap = spec.max_order or plan.max_order
+        los, drives = [], []
+        for channel in channels:
+            f = channel if plan.direction == "down" else plan.chain[mixers[0]].if_.center_hz
+            level = plan.signal.level_dbm
+            for j in range(i):
+                s = plan.chain[j]
+                if s.kind == "filter":
+                    level -= _point_loss(filters[j], f, f)
+                elif s.kind == "mixer":
+                    lo_j = _lo(s, f, channel)
+                    f = abs(f + _wanted_sign(s, f, lo_j, channel) * lo_j)
+                    level -= tables[j].conversion_loss_db
+                elif s.kind == "amplifier":
+                    level += s.gain_db
+            los.append(_lo(spec, f, channel))
+            drives.append(level)
+        h2 = 0.0
+        if i in lo_filters:
+            lf = lo_filters[i]
+            h2 = min(_point_loss(lf, 2 * lo, lo) - _point_loss(lf, lo, lo) for lo in los)
+        tables[i] = build_table(spec.mixer, cap, base_dir=base_dir,
+                                direction="down" if spec.input_port == "rf" else "up",
+                                lo_h2_rejection_db=h2, signal_dbm=max(drives))
+    return tables
+
+
+def _channels(plan):
+    n_ch = plan.rf.n_channels
+    step = plan.rf.step_hz or 0.0
+    return [min(plan.rf.start_hz + k * step, plan.rf.stop_hz) if n_ch > 1 else plan.rf.start_hz
+            for k in range(n_ch)]
+
+
+def reference_tone(plan, channel_index, f_hz, level_dbm, base_dir=None):
+    """Every way a CW input at ``f_hz`` reaches the final passband of one channel, by brute force.
+
+    Returns
+    -------
+    list of (str, float)
+        The path and the output level relative to the wanted output, dBc.  Steps are written as
+        the inverse search writes them: a mixer step ``(m,+n)``/``(m,-n)`` when ``m·f ± n·f_LO`` is
+        positive, its negative ``(-m,∓n)`` when it is negative; ``H2`` for an amplifier's harmonic;
+        ``alias zone Z`` (or ``H2, alias zone Z``) for an ADC, Z the zone the band sampled sat in.
+        Each filter takes its loss at the tone's frequency (a tracking one centred on the wanted
+        signal at its node).
+    """
+    names = stage_names(plan)
+    channels = _channels(plan)
+    channel = channels[channel_index]
+    filters = {i: build_filter(s.filter, base_dir=base_dir) for i, s in enumerate(plan.chain) if s.kind == "filter"}
+    lo_filters = {i: build_filter(s.lo_filter, base_dir=base_dir) for i, s in enumerate(plan.chain)
+                  if s.kind == "mixer" and s.lo_filter is not None}
+    adc_filters = {i: build_filter(s.channel_filter, base_dir=base_dir) for i, s in enumerate(plan.chain)
+                   if s.kind == "adc" and s.channel_filter is not None}
+    tables = _build_tables(plan, channels, filters, lo_filters, base_dir)
+    mixers = [i for i, s in enumerate(plan.chain) if s.kind == "mixer"]
+    # the wanted signal of this channel: its frequency at every node, the LOs, the output level
+    f = channel if plan.direction == "down" else plan.chain[mixers[0]].if_.center_hz
+    w = plan.signal.level_dbm
+    at_node, los = [], {}
+    for i, s in enumerate(plan.chain):
+        at_node.append(f)
+        if s.kind == "filter":
+            w -= _point_loss(filters[i], f, f)
+        elif s.kind == "mixer":
+            los[i] = _lo(s, f, channel)
+            f = abs(f + _wanted_sign(s, f, los[i], channel) * los[i])
+            w -= tables[i].conversion_loss_db
+        elif s.kind == "amplifier":
+            w += s.gain_db
+        elif s.kind == "adc":
+            f = _fold(f, s.sample_rate_hz)
+            if i in adc_filters:
+                w -= _point_loss(adc_filters[i], f, f)
+    last = plan.chain[-1]
+    if last.kind == "adc":
+        width = last.passband_hz if last.passband_hz is not None else plan.signal.bandwidth_hz
+        p_low, p_high = f - width / 2, f + width / 2
+    else:
+        p_low, p_high = plan.chain[mixers[-1]].if_.f_low_hz, plan.chain[mixers[-1]].if_.f_high_hz
+    tones = [(f_hz, level_dbm, [])]
+    for i, s in enumerate(plan.chain):
+        new = []
+        for f_t, x, steps in tones:
+            if s.kind == "filter":
+                new.append((f_t, x - _point_loss(filters[i], f_t, at_node[i]), steps))
+            elif s.kind == "mixer":
+                cap = s.max_order or plan.max_order
+                table = tables[i]
+                for m in range(1, cap + 1):
+                    for n in range(cap + 1 - m):
+                        for sg in ((1,) if n == 0 else (-1, 1)):
+                            raw = m * f_t + sg * n * los[i]
+                            text = _step(m, n, sg) if raw >= 0 else _step(-m, n, -sg)
+                            level = x - table.conversion_loss_db + float(table.level_dbc_at(m, n, x, floored=False))
+                            new.append((abs(raw), level, steps + [f"{text} in {names[i]}"]))
+            elif s.kind == "amplifier":
+                k_max = s.max_order if s.max_order is not None else min(3, plan.max_order)
+                oip2 = 30.0 if s.oip2_dbm is None else s.oip2_dbm
+                oip3 = 20.0 if s.oip3_dbm is None else s.oip3_dbm
+                g = s.gain_db
+                offsets = [g, 2 * g - oip2 - 20 * math.log10(2), 3 * g - 2 * oip3 - 20 * math.log10(3)]
+                for h in range(1, k_max + 1):
+                    new.append((h * f_t, h * x + offsets[h - 1], steps + ([f"H{h} in {names[i]}"] if h > 1 else [])))
+            elif s.kind == "adc":
+                fs = s.sample_rate_hz
+                top = s.input_bandwidth_hz or max(4 * fs / 2, 2 * s.nyquist_zone * fs / 2)
+                if f_t > top:
+                    continue  # beyond the converter's analog input bandwidth: not heard
+                hd = [0.0] + list(s.harmonics_dbc if s.harmonics_dbc is not None else (-60, -60, -70, -70))
+                for h in range(1, min(len(hd), plan.max_order) + 1):
+                    zone = math.floor(h * f_t / (fs / 2)) + 1
+                    word = f"alias zone {zone}" if h == 1 else f"H{h}, alias zone {zone}"
+                    folded = _fold(h * f_t, fs)
+                    level = x + hd[h - 1]
+                    if i in adc_filters:
+                        level -= _point_loss(adc_filters[i], folded, f)
+                    new.append((folded, level, steps + [f"{word} in {names[i]}"]))
+        tones = new
+    return [(", then ".join(st), x - w) for f_t, x, st in tones if p_low <= f_t <= p_high]

@@ -177,7 +177,7 @@ class AdcElement:
     def inverse(self, low_hz: np.ndarray, high_hz: np.ndarray, node_in: Node, node_out: Node) -> Inverse:
         r, c = low_hz.shape
         loss = (self._filter_loss(low_hz, high_hz, node_out) if self.filter is not None else np.zeros((r, c)))
-        n_k = math.ceil(self.f_max / self.fs) + 1
+        n_k = math.ceil(self.max_harmonic * self.f_max / self.fs) + 1  # the harmonics of inputs up to f_max
         bands_low, bands_high, src, steps, lvl, orders = [], [], [], [], [], []
         for k in range(n_k):
             for sgn in ((1,) if k == 0 else (-1, 1)):
