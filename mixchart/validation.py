@@ -79,11 +79,13 @@ def field_path(loc: tuple[Any, ...], data: Any) -> str:
     parts: list[str] = []
     node = data
     arrived = True  # just stepped into ``node``: a union tag, if any, comes first
+    tagged = False  # the tag of this node was dropped already (a node has at most one)
     for part in loc:
-        if isinstance(node, dict) and node.get("kind") == part and (arrived or part not in node):
-            arrived = False
+        if (isinstance(node, dict) and not tagged and node.get("kind") == part
+                and (arrived or part not in node)):
+            arrived, tagged = False, True
             continue  # the union tag (a chain stage's tag may equal one of its keys: 'filter')
-        arrived = True
+        arrived, tagged = True, False
         parts.append(one_line(str(part)))
         if isinstance(node, dict):
             node = node.get(part)
@@ -98,7 +100,7 @@ def _shown(value: Any) -> str:
     if isinstance(value, dict):
         return "{...}"
     if isinstance(value, (list, tuple)):
-        return "[...]"
+        return "[...]" if value else "[]"
     text = repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
 
@@ -125,8 +127,9 @@ def _allowed(error: dict[str, Any]) -> str:
 
 @functools.lru_cache(maxsize=1)
 def _known_keys() -> tuple[str, ...]:
-    """Every key a plan may hold, at any depth (from the plan's own JSON Schema)."""
-    from .plan import plan_json_schema  # at call time: plan imports this module
+    """Every key a plan may hold, at any depth, in either layout (from the plans' own JSON Schemas)."""
+    from .models.chain import chain_json_schema  # at call time: the models import this module
+    from .plan import plan_json_schema
 
     keys: set[str] = set()
 
@@ -141,6 +144,7 @@ def _known_keys() -> tuple[str, ...]:
                 walk(value)
 
     walk(plan_json_schema())
+    walk(chain_json_schema())
     return tuple(sorted(keys))
 
 

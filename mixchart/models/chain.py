@@ -101,10 +101,10 @@ class ChainPlan(BaseModel):
             raise PlanError(f"chain.{mixers[0]}.input_port: 'rf' is invalid for the first mixer of an "
                             "up-conversion chain: the chain's input is that mixer's IF")
         names = stage_names(self)
-        for name, count in Counter(names).items():
-            if count > 1:
-                raise PlanError(f"chain.{names.index(name)}.name: {name!r} is used by {count} stages; "
-                                "each stage needs its own name")
+        for i, name in enumerate(names):
+            if name in names[:i]:
+                raise PlanError(f"chain.{i}.name: {name!r} is invalid; stage {names.index(name)} has that name "
+                                "already, and each stage needs its own")
         return self
 
     def to_dict(self) -> dict[str, Any]:

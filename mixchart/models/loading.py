@@ -41,9 +41,9 @@ def plan_from_any_dict(data: Any) -> Plan | ChainPlan:
     if not isinstance(data, dict):
         raise PlanError(f"plan: {type(data).__name__} is invalid; the top level must be a JSON object")
     version = data.get("schema_version", 1)
-    if version == 1 or version is True:  # True == 1 in Python: let the version-1 loader refuse it by name
+    if type(version) is int and version == 1:  # a whole number only: never true, never 1.0
         return plan_from_dict(data)
-    if version == CHAIN_SCHEMA_VERSION and not isinstance(version, bool):
+    if type(version) is int and version == CHAIN_SCHEMA_VERSION:
         return chain_from_dict(data)
     raise PlanError(f"schema_version: {version!r} is invalid; this release reads 1 and {CHAIN_SCHEMA_VERSION}")
 
