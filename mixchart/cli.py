@@ -27,6 +27,8 @@ DEFAULT_EXAMPLE = "fm_receiver"
 #: Built-in example chains (plan layout version 2), in mixchart/examples/chains.
 CHAIN_EXAMPLES = {
     "scanner_double_conversion": "chains/scanner_double_conversion.json",
+    "if_sampling_receiver": "chains/if_sampling_receiver.json",
+    "two_step_transmitter": "chains/two_step_transmitter.json",
 }
 
 

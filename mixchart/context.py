@@ -153,9 +153,7 @@ def mask_margins(ctx: Context, level: np.ndarray, filt: Filter | None, p_low: np
     best_atten = np.zeros(shape)
     best_req = np.ones(shape, dtype=np.int8)
     for i in range(lim.n_pieces):
-        low = np.maximum(p_low, lim.pieces_low_hz[i])
-        high = np.minimum(p_high, lim.pieces_high_hz[i])
-        hit = low <= high
+        hit, low, high = lim.piece_hits(i, p_low, p_high)
         if not hit.any():
             continue
         if filt is None:

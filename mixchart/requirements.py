@@ -152,6 +152,28 @@ class Limits:
     pieces_limit: np.ndarray
     pieces_dbm: np.ndarray
     texts: tuple[str, ...]
+    pieces_gap: np.ndarray | None = None
+
+    def piece_hits(self, i: int, f_low_hz: np.ndarray, f_high_hz: np.ndarray):
+        """Which bands overlap piece ``i``, and the overlapping parts (edges included).
+
+        A mask segment holds its edges (module docstring): a gap next to it never holds a
+        single frequency on that edge, so a line exactly on a segment's edge is judged against
+        the segment's limit alone.
+
+        Returns
+        -------
+        hit : numpy.ndarray of bool
+        low_hz, high_hz : numpy.ndarray
+            The parts of the bands inside the piece (meaningful where ``hit``).
+        """
+        low = np.maximum(f_low_hz, self.pieces_low_hz[i])
+        high = np.minimum(f_high_hz, self.pieces_high_hz[i])
+        hit = low <= high
+        if self.pieces_gap is not None and self.pieces_gap[i]:
+            on_edge = ((low == self.pieces_low_hz[i]) & (self.pieces_low_hz[i] > 0)) | (high == self.pieces_high_hz[i])
+            hit &= ~((low == high) & on_edge)
+        return hit, low, high
 
     @property
     def n_pieces(self) -> int:
@@ -178,20 +200,20 @@ def resolve_limits(requirement: Requirement, direction: str) -> Limits:
     Limits
     """
     spur = requirement.spur_dbc
-    lows, highs, limits, dbm, texts = [], [], [], [], []
+    lows, highs, limits, dbm, texts, gap = [], [], [], [], [], []
     edge = 0.0
     segments = sorted(requirement.emission_mask, key=lambda s: s.f_low_hz) if direction == "up" else []
     for seg in segments:
         if seg.f_low_hz > edge:  # a gap before the segment: the general output-spur limit
             lows.append(edge), highs.append(seg.f_low_hz), limits.append(spur), dbm.append(False)
-            texts.append(_spur_text(spur))
+            texts.append(_spur_text(spur)), gap.append(True)
         lows.append(seg.f_low_hz), highs.append(seg.f_high_hz), limits.append(seg.limit)
-        dbm.append(seg.unit == "dBm")
+        dbm.append(seg.unit == "dBm"), gap.append(False)
         texts.append(f"mask {format_frequency(seg.f_low_hz)}-{format_frequency(seg.f_high_hz)} "
                      f"<= {seg.limit:g} {seg.unit}")
         edge = seg.f_high_hz
     lows.append(edge), highs.append(np.inf), limits.append(spur), dbm.append(False)
-    texts.append(_spur_text(spur))
+    texts.append(_spur_text(spur)), gap.append(True)
     rejection = requirement.rejection_db
     return Limits(
         rejection_db=rejection,
@@ -201,4 +223,5 @@ def resolve_limits(requirement: Requirement, direction: str) -> Limits:
         pieces_limit=np.asarray(limits, dtype=float),
         pieces_dbm=np.asarray(dbm, dtype=bool),
         texts=(f"response rejection >= {rejection:g} dB", *texts),
+        pieces_gap=np.asarray(gap, dtype=bool),
     )

@@ -219,7 +219,12 @@ def reference_paths(plan, base_dir=None):
             dbc = x - w_out
             margin = math.inf
             for j in range(limits.n_pieces):
-                if b >= limits.pieces_low_hz[j] and a <= limits.pieces_high_hz[j]:
+                lo_j, hi_j = float(limits.pieces_low_hz[j]), float(limits.pieces_high_hz[j])
+                inside = b >= lo_j and a <= hi_j
+                # a mask segment holds its edges: a gap never holds a line on a segment's edge
+                if inside and limits.pieces_gap[j] and a == b and ((a == lo_j and lo_j > 0) or a == hi_j):
+                    inside = False
+                if inside:
                     level = x if limits.pieces_dbm[j] else dbc
                     margin = min(margin, float(limits.pieces_limit[j]) - level)
             rows.append((", then ".join(steps), dbc, margin))
@@ -353,5 +358,16 @@ def reference_tone(plan, channel_index, f_hz, level_dbm, base_dir=None):
                     if i in adc_filters:
                         level -= _point_loss(adc_filters[i], folded, f)
                     new.append((folded, level, steps + [f"{word} in {names[i]}"]))
+                    for spur in s.clock_spurs:  # sidebands h·f ± d, raised by 20·log10(h·f/fs) (phase modulation)
+                        for sb, mark in ((1, "+"), (-1, "-")):
+                            f_sb = abs(h * f_t + sb * spur.offset_hz)
+                            z_sb = math.floor(f_sb / (fs / 2)) + 1
+                            w_sb = f"alias zone {z_sb}" if h == 1 else f"H{h}, alias zone {z_sb}"
+                            lvl_sb = (x + hd[h - 1] + spur.level_dbc + 20 * math.log10(h * f_t / fs))
+                            folded_sb = _fold(f_sb, fs)
+                            if i in adc_filters:
+                                lvl_sb -= _point_loss(adc_filters[i], folded_sb, f)
+                            new.append((folded_sb, lvl_sb,
+                                        steps + [f"{w_sb}, clock {mark}{spur.offset_hz:g} Hz in {names[i]}"]))
         tones = new
     return [(", then ".join(st), x - w) for f_t, x, st in tones if p_low <= f_t <= p_high]

@@ -125,3 +125,29 @@ def test_the_responses_found_for_tones_on_the_image_and_on_random_frequencies():
     assert any(n.startswith("image of mixer 1:") for n in names)
     assert any(n.startswith("image of mixer 2 (second image, at RF):") for n in names)
     assert np.isfinite(frame["margin_db"]).any()
+
+
+def test_a_sample_clock_spur_makes_responses_beside_the_channel():
+    """A clock spur at fs ± d: an input d from the channel is heard, 20·log10(f/fs) above the spur.
+
+    An invented 915 MHz receiver sampling its 70 MHz IF at 100 MS/s (zone 2) with a -40 dBc clock
+    spur 100 kHz out: inputs 100 kHz either side of the channel reach the channel at about
+    -40 + 20·log10(70/100) = -43.1 dBc (Brannon, AN-756, from memory; the level rule is checked by
+    simulation in tests/test_sampling.py), found both by the inverse search and by the tone.
+    """
+    plan = chain_from_dict({
+        "schema_version": 2, "direction": "down", "rf": {"start_hz": "915 MHz", "stop_hz": "915 MHz"},
+        "signal": {"bandwidth_hz": "20 kHz", "level_dbm": -60},
+        "requirement": {"response_rejection_db": 70, "output_spur_dbc": -70},
+        "chain": [{"kind": "mixer", "lo": {"side": "high"}, "if": {"center_hz": "70 MHz", "bandwidth_hz": "1 MHz"},
+                   "mixer": {"lo_if_isolation_db": 40, "rf_if_isolation_db": 35, "lo_harmonic2_dbc": -30}},
+                  {"kind": "adc", "sample_rate_hz": "100 MHz", "nyquist_zone": 2, "harmonics_dbc": [-300],
+                   "passband_hz": "20 kHz", "input_bandwidth_hz": "200 MHz",
+                   "clock_spurs": [{"offset_hz": "100 kHz", "level_dbc": -40}]}]})
+    frame = channel_rows(set_up(plan), 0, prune=False)
+    near = frame[(frame["kind"] == "response") & ((frame["f_low_hz"] - 915e6).abs() < 200e3)
+                 & frame["path"].str.contains("clock")]
+    assert len(near) == 2
+    assert near["level_dbc"].max() == pytest.approx(-40 + 20 * np.log10(70.11 / 100), abs=0.02)
+    for f in (915.1e6, 914.9e6):
+        assert check_tone(plan, f, exact=False) >= 1

@@ -155,3 +155,31 @@ def test_a_plan_with_a_mask_round_trips_exactly_and_meets_its_schema():
     assert loads_plan(text) == plan and dumps_plan(loads_plan(text)) == text
     jsonschema.validate(plan.to_dict(), plan_json_schema())
     assert plan.requirement.emission_mask[0].f_low_hz == 1.05e9  # text parsed to Hz at the edge
+
+
+@pytest.mark.parametrize("edge_hz", [900e6, 899.999e6])
+def test_a_line_on_a_mask_segment_s_edge_is_judged_by_the_segment_alone(edge_hz):
+    """The module docstring: segment edges belong to the segment (a gap never takes them).
+
+    An invented transmitter: 100 MHz IF, low-side LO at 900 MHz, channel 1000 MHz; its LO leaks at
+    exactly 900 MHz.  With the segment starting there (or just below) the LO line is judged
+    against the segment's -10 dBc, never the -60 dBc of the gap below it; both engines agree.
+    """
+    from mixchart.analysis import evaluate
+    from mixchart.chains import analyse_chain
+    from mixchart.models import migrate_v1
+    from mixchart.plan import plan_from_dict
+
+    plan = plan_from_dict({
+        "direction": "up", "rf": {"start_hz": "1000 MHz", "stop_hz": "1000 MHz"},
+        "signal": {"bandwidth_hz": "1 MHz", "level_dbm": -10},
+        "lo": {"mode": "tracking", "side": "low"}, "if": {"center_hz": "100 MHz", "bandwidth_hz": "2 MHz"},
+        "mixer": {"lo_rf_isolation_db": 35, "rf_if_isolation_db": 30, "lo_harmonic2_dbc": -30},
+        "requirement": {"output_spur_dbc": -60,
+                        "emission_mask": [{"f_low_hz": edge_hz, "f_high_hz": "950 MHz", "limit": -10}]}})
+    frame = evaluate(plan).to_frame()
+    leak = frame[(frame["rf_harmonic"] == 0) & (frame["lo_harmonic"] == 1)].iloc[0]
+    assert leak["requirement"].startswith("mask") and leak["limit"] == -10
+    chain = analyse_chain(migrate_v1(plan)).paths
+    row = chain[chain["path"] == "LO (0,1) in mixer"].iloc[0]
+    assert row["limit"].startswith("mask") and row["margin_db"] == pytest.approx(leak["margin_db"], abs=1e-9)

@@ -77,7 +77,7 @@ def _judge(setup: ChainSetup, flow: Flow, wanted_out_dbm: np.ndarray, pass_low, 
     margin = np.full(level_dbc.shape, np.inf)
     which = np.zeros(level_dbc.shape, dtype=int)
     for j in range(lim.n_pieces):
-        hit = (flow.high_hz >= lim.pieces_low_hz[j]) & (flow.low_hz <= lim.pieces_high_hz[j])
+        hit = lim.piece_hits(j, flow.low_hz, flow.high_hz)[0]
         if not hit.any():
             continue
         level = flow.level_dbm if lim.pieces_dbm[j] else level_dbc

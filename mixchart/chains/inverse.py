@@ -169,14 +169,15 @@ def inverse_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Inve
         new_slope = slope[inv.source] * inv.slope
         explored += int(ok.any(axis=1).sum())
         if prune:
-            # the lowest rejection any prefix could give: (W - C_suf - S_suf·c) / (S_suf·s) - P_w
-            low_r = np.full(ok.shape, np.inf)
+            # The lowest rejection any prefix (s, c) could give is min over (s, c) of (A - c)/s - P_w with
+            # A = (W - C_suf)/S_suf; it rises with A, so over the row's live channels the lowest A decides.
+            a = np.where(ok, (wanted_out[None, :] - new_offset) / new_slope[:, None], np.inf).min(axis=1)
+            low_r = np.full(a.shape, np.inf)
             for s_p, c_p in prefix[i].items():
-                r = (wanted_out[None, :] - new_offset - new_slope[:, None] * c_p) / (new_slope[:, None] * s_p) - p_w
-                low_r = np.minimum(low_r, r)
-            weak = ok & (low_r > ceiling)
-            pruned += int((ok.any(axis=1) & ~(ok & ~weak).any(axis=1)).sum())
-            ok &= ~weak
+                low_r = np.minimum(low_r, (a - c_p) / s_p - p_w)
+            weak = ok.any(axis=1) & (low_r > ceiling)
+            pruned += int(weak.sum())
+            ok &= ~weak[:, None]
         keep = np.flatnonzero(ok.any(axis=1))
         src = inv.source[keep]
         alive = ok[keep]
@@ -204,9 +205,15 @@ def inverse_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Inve
     margin = np.where(alive & ~co, margin, np.inf)
     wanted = _wanted_steps(setup, rows)
     n_st = len(setup.elements)
-    row_steps = [[str(per_stage[st][r]) for st in range(n_st)] for r in range(q)]
-    names = np.asarray([_response_name(setup, st, wanted) for st in row_steps], dtype=object)
-    origin = np.array([_origin(st, wanted) for st in row_steps], dtype=int)
+    names = np.empty(q, dtype=object)
+    origin = np.zeros(q, dtype=int)
+    cache = setup.cache.setdefault("response_names", {})
+    for r, key in enumerate(zip(*(per_stage[st] for st in range(n_st)), strict=True)):
+        key = (key, tuple(wanted))
+        if key not in cache:
+            steps = [str(x) for x in key[0]]
+            cache[key] = (_response_name(setup, steps, wanted), _origin(steps, wanted))
+        names[r], origin[r] = cache[key]
     stage_of = np.asarray(setup.names, dtype=object)[origin] if q else np.array([], dtype=object)
     return InverseBlock(stage_of, names, low, high, rejection, level_dbc, margin, explored, pruned)
 

@@ -53,6 +53,7 @@ class ChainSetup:
     limits: Limits
     fan_out: list[int]
     warnings: list[WarningRecord] = field(default_factory=list)
+    cache: dict = field(default_factory=dict)  # what the blocks share (e.g. response names by path)
 
     @property
     def wanted_out_dbm(self) -> np.ndarray:

@@ -185,16 +185,29 @@ class AdcElement:
                 hi_b = k * self.fs + sgn * (high_hz if sgn > 0 else low_hz)
                 zone = 2 * k + (1 if sgn > 0 else 0)  # below k·fs: zone 2k; above: 2k + 1
                 for h, hd in zip(self.k, self.hd_dbc, strict=True):
+                    word = f"H{h}, alias zone {zone}" if h > 1 else f"alias zone {zone}"
                     bands_low.append(lo_b / h)
                     bands_high.append(hi_b / h)
                     src.append(np.arange(r))
-                    steps.append(f"H{h}, alias zone {zone}" if h > 1 else f"alias zone {zone}")
+                    steps.append(word)
                     lvl.append(hd - loss)
                     orders.append(h if h > 1 else 0)
+                    for spur in self.spec.clock_spurs:
+                        # a clock sideband h·f ± d folds onto the band: h·f in the alias band ∓ d, at the
+                        # spur's level raised by h·f/fs (taken at the band's top: never optimistic)
+                        for sb, mark in ((1, "+"), (-1, "-")):
+                            a, b = lo_b - sb * spur.offset_hz, hi_b - sb * spur.offset_hz
+                            top = np.maximum(b, 1e-300)
+                            bands_low.append(a / h)
+                            bands_high.append(b / h)
+                            src.append(np.arange(r))
+                            steps.append(f"{word}, clock {mark}{spur.offset_hz:g} Hz")
+                            lvl.append(hd - loss + spur.level_dbc + 20.0 * np.log10(top / self.fs))
+                            orders.append(h if h > 1 else 0)
         q = len(bands_low)
         low = np.concatenate(bands_low)
         high = np.concatenate(bands_high)
-        valid = (high > 0) & (low <= self.f_max)
+        valid = (high > 0) & (low <= self.f_max) & (low <= high)
         # a band must really fold onto the output band (and from the zone it claims: no wrap)
         low = np.maximum(low, 0.0)
         return Inverse(low, high, valid, np.ones(q * r), np.concatenate(lvl), np.concatenate(src),
