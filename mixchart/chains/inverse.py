@@ -13,7 +13,8 @@ that less ``response_rejection_db``.  This generalises the single-conversion rul
 
 Named responses: a path that follows the wanted conversion at every stage but one is named for
 that stage's step: ``image`` (the other (1,1) branch), ``half-IF`` ((2,2)), ``IF feedthrough``
-((1,0)); at a later mixer reached through the earlier ones it is that mixer's image *at RF*
+((1,0)), ``IF/m feedthrough`` ((m,0): an input at IF/m whose m-th harmonic is the IF); at a
+later mixer reached through the earlier ones it is that mixer's image *at RF*
 (the second image).  An input band that covers the wanted channel is the wanted signal or a
 co-channel signal: it has no margin (+inf), as in the single-conversion engine.
 
@@ -122,6 +123,8 @@ def _response_name(setup: ChainSetup, steps: list[str], wanted: list[str | None]
             label = f"half-IF of {name}"
         elif abs(m) == 1 and n == 0:
             label = f"IF feedthrough at {name}"
+        elif n == 0:
+            label = f"IF/{abs(m)} feedthrough at {name}"  # the input's m-th harmonic lands on the IF
         else:
             label = f"{step} response of {name}"
         return f"{label}: {path}"
