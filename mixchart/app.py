@@ -35,7 +35,7 @@ from .app_mixer import circuit_controls, level_table_map, make_circuit_handler
 from .app_refresh import RefreshMixin
 from .chart import ChartHandle, build_chart, chart_data
 from .errors import MixchartError
-from .plan import Plan, load_plan
+from .plan import Plan
 from .state import PlanState, example_plan
 from .widget import BatchedBokehModel
 
@@ -200,6 +200,17 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
         loads it once; see :mod:`mixchart.notebook_js`); a Voila page's title
         follows the plan's name.
     """
+    if plan is not None and not isinstance(plan, Plan):
+        from .models import load_any, single_stage_plan
+        from .models.chain import ChainPlan
+
+        path = Path(plan).resolve()
+        loaded_any = plan if isinstance(plan, ChainPlan) else load_any(path)
+        if isinstance(loaded_any, ChainPlan) and single_stage_plan(loaded_any) is None:
+            from .app_chain import chain_planner
+
+            folder = None if isinstance(plan, ChainPlan) else path.parent
+            return chain_planner(loaded_any, folder, chart_width=chart_width)
     if plan is None:
         loaded, folder = example_plan()
         state = PlanState(loaded, folder, file_name="fm_receiver.json")  # saved to the working directory
@@ -207,7 +218,11 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
         state = PlanState(plan, None)
     else:
         path = Path(plan).resolve()
-        state = PlanState(load_plan(path), path.parent, save_dir=path.parent, file_name=path.name)
+        from .models import load_any, single_stage_plan
+
+        loaded_any = load_any(path)
+        single = loaded_any if isinstance(loaded_any, Plan) else single_stage_plan(loaded_any)
+        state = PlanState(single, path.parent, save_dir=path.parent, file_name=path.name)
     from .notebook_js import show_with_bokehjs, title_follows_plan
 
     app = PlannerApp(state, chart_width=chart_width)

@@ -235,7 +235,7 @@ def _cmd_serve(args: argparse.Namespace) -> int:
     from .serve import serve
 
     plan_path = Path(args.plan) if args.plan else example_path(args.example)
-    _load(args)  # refuse a bad plan before starting anything
+    _load_any(args)  # refuse a bad plan before starting anything (a chain is the chain planner's)
     return serve(plan_path, port=args.port)
 
 

@@ -278,13 +278,13 @@ def reference_tone(plan, channel_index, f_hz, level_dbm, base_dir=None):
 
     Returns
     -------
-    list of (str, float)
-        The path and the output level relative to the wanted output, dBc.  Steps are written as
-        the inverse search writes them: a mixer step ``(m,+n)``/``(m,-n)`` when ``m·f ± n·f_LO`` is
-        positive, its negative ``(-m,∓n)`` when it is negative; ``H2`` for an amplifier's harmonic;
-        ``alias zone Z`` (or ``H2, alias zone Z``) for an ADC, Z the zone the band sampled sat in.
-        Each filter takes its loss at the tone's frequency (a tracking one centred on the wanted
-        signal at its node).
+    list of (str, float, float)
+        The path, the output level relative to the wanted output (dBc) and the output frequency
+        (Hz).  Steps are written as the inverse search writes them: a mixer step ``(m,+n)`` or
+        ``(m,-n)`` when ``m·f ± n·f_LO`` is positive, its negative ``(-m,∓n)`` when it is negative;
+        ``H2`` for an amplifier's harmonic; ``alias zone Z`` (or ``H2, alias zone Z``) for an ADC,
+        Z the zone the band sampled sat in.  Each filter takes its loss at the tone's frequency (a
+        tracking one centred on the wanted signal at its node).
     """
     names = stage_names(plan)
     channels = _channels(plan)
@@ -370,4 +370,4 @@ def reference_tone(plan, channel_index, f_hz, level_dbm, base_dir=None):
                             new.append((folded_sb, lvl_sb,
                                         steps + [f"{w_sb}, clock {mark}{spur.offset_hz:g} Hz in {names[i]}"]))
         tones = new
-    return [(", then ".join(st), x - w) for f_t, x, st in tones if p_low <= f_t <= p_high]
+    return [(", then ".join(st), x - w, f_t) for f_t, x, st in tones if p_low <= f_t <= p_high]

@@ -47,7 +47,8 @@ def check_tone(plan, f_hz: float, *, exact: bool) -> int:
     responses = frame[frame["kind"] == "response"]
     u = plan.signal.interferer_level_dbm if plan.signal.interferer_level_dbm is not None else plan.signal.level_dbm
     # below the level floor a path is nothing (the table clips drives 1000 dB off): not compared
-    want = [(p, x) for p, x in reference_tone(plan, 0, f_hz, u) if x >= FLOOR_DBC]
+    tone = reference_tone(plan, 0, f_hz, u)
+    want = [(p, x) for p, x, _ in tone if x >= FLOOR_DBC]
     tol = 1e-9 * max(f_hz, node_max)
     holding = responses[(responses["f_low_hz"] - tol <= f_hz) & (responses["f_high_hz"] + tol >= f_hz)]
     got: dict[str, list[float]] = {}
@@ -61,7 +62,16 @@ def check_tone(plan, f_hz: float, *, exact: bool) -> int:
         assert best >= level - TOL_DB, f"{path!r}: engine {best} is more optimistic than the reference {level}"
         if exact:
             assert min(abs(g - level) for g in got[path]) <= TOL_DB, (path, got[path], level)
-    ref_paths = {p for p, x in reference_tone(plan, 0, f_hz, u)}
+    ref_paths = {p for p, _, _ in tone}
+    # the geometry the end-to-end plane draws: through the band's centre with the path's slope, the
+    # line reaches the output frequency the tone really has
+    out_at = {p: y for p, _, y in tone}
+    for name, x0, y0, slope in zip(holding["path"], holding["x_hz"], holding["y_hz"], holding["freq_slope"],
+                                   strict=True):
+        path = _path_of(name)
+        if path in out_at:
+            y_line = y0 + slope * (f_hz - x0)
+            assert abs(y_line - out_at[path]) <= 1e-6 * max(1.0, abs(out_at[path])) + 1e-3, (path, y_line, out_at[path])
     for path in got:
         assert path in ref_paths, f"{f_hz:.6g} Hz: the engine lists {path!r}, which the tone does not take"
     return len(want)

@@ -110,7 +110,7 @@ def forward_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Forw
     half = 0.5 * node0.bandwidth_hz
     flow = Flow((node0.f_hz - half)[None, :], (node0.f_hz + half)[None, :], node0.level_dbm[None, :].copy(),
                 node0.inverted[None, :].copy(), np.array([-1]), np.array(["input"], dtype=object),
-                np.zeros(1, dtype=int))
+                np.zeros(1, dtype=int), np.ones(1))
     wanted_out = nodes[-1].level_dbm
     floor = _strictest_dbm(setup, wanted_out) - PRUNE_HEADROOM_DB
     explored = pruned = 0
@@ -138,7 +138,7 @@ def forward_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Forw
     return ForwardBlock(flow, history, margin, level_dbc, which, in_band, explored, pruned)
 
 
-def path_texts(setup: ChainSetup, history: list[Flow]) -> tuple[list[str], np.ndarray]:
+def path_texts(setup: ChainSetup, history: list[Flow], *, with_gain: bool = False):
     """Each output row's path, as text, and the stage that made it (where it left the wanted signal).
 
     Returns
@@ -147,6 +147,9 @@ def path_texts(setup: ChainSetup, history: list[Flow]) -> tuple[list[str], np.nd
         For instance ``"(1,-1) in mixer 1, then (2,+1) in mixer 2"``; row 0 is ``"wanted"``.
     origin : numpy.ndarray of int
         Index of the stage where each row's path leaves the wanted signal (-1 for row 0).
+    gain : numpy.ndarray, shape (P,)
+        Only with ``with_gain``: ``|d f_out / d f_in|`` of each row's whole path (the product of
+        its steps' gains; 0 for a line that does not move with the input, such as an LO's).
     """
     n_rows = history[-1].n_rows
     index = np.arange(n_rows)
@@ -155,6 +158,11 @@ def path_texts(setup: ChainSetup, history: list[Flow]) -> tuple[list[str], np.nd
         ancestors[i] = index
         parent = history[i].parent[np.maximum(index, 0)]
         index = np.where(index >= 0, parent, -1)
+    gain = np.ones(n_rows)
+    for i, flow in enumerate(history):
+        if flow.gain is not None:
+            a = ancestors[i]
+            gain = np.where(a >= 0, gain * flow.gain[np.maximum(a, 0)], gain)
     origin = np.full(n_rows, -1)
     for i in range(len(history)):
         # the stage where the row is first not row 0 (a leakage line is made there: its parent is -1)
@@ -174,4 +182,6 @@ def path_texts(setup: ChainSetup, history: list[Flow]) -> tuple[list[str], np.nd
             if step:
                 parts.append(f"{step} in {setup.names[i]}")
         texts.append(", then ".join(parts) if parts else f"passed by {setup.names[origin[r]]}")
+    if with_gain:
+        return texts, origin, gain
     return texts, origin

@@ -63,6 +63,8 @@ class InverseBlock:
     margin_db: np.ndarray
     explored: int
     pruned: int
+    freq_slope: np.ndarray  # (R,): d f_out / d f_in of each path, signed
+    anchor_hz: np.ndarray  # (R, C): the input that lands on the passband's centre along the path
 
 
 def _prefix_maps(setup: ChainSetup) -> list[dict[float, float]]:
@@ -151,6 +153,9 @@ def inverse_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Inve
     high = setup.pass_high_hz[rows][None, :].copy()
     c = low.shape[1]
     slope = np.ones(1)
+    freq_slope = np.ones(1)  # d f_out / d f_in of each row's path so far, signed
+    # the input that lands exactly on the passband's centre along each path (never clipped)
+    anchor = 0.5 * (low + high)
     offset = np.zeros((1, c))
     steps: list[np.ndarray] = []  # per stage, from the last: each row's step
     sources: list[np.ndarray] = []
@@ -188,6 +193,10 @@ def inverse_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Inve
         low = np.where(alive, np.maximum(inv.low_hz[keep] + widen, _LOWEST_HZ), _LOWEST_HZ)
         high = np.where(alive, np.maximum(inv.high_hz[keep] - widen, _LOWEST_HZ), _LOWEST_HZ)
         offset, slope = new_offset[keep], new_slope[keep]
+        step_freq = np.ones(inv.source.size) if inv.freq_slope is None else inv.freq_slope
+        freq_slope = freq_slope[src] * step_freq[keep]
+        step_off = 0.0 if inv.freq_offset_hz is None else inv.freq_offset_hz[keep]
+        anchor = (anchor[src] - step_off) / step_freq[keep][:, None]
         steps.append(inv.step[keep])
         sources.append(src)
     # each input row's step at every stage, read from the input (the last step taken) to the output
@@ -218,7 +227,8 @@ def inverse_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> Inve
             cache[key] = (_response_name(setup, steps, wanted), _origin(steps, wanted))
         names[r], origin[r] = cache[key]
     stage_of = np.asarray(setup.names, dtype=object)[origin] if q else np.array([], dtype=object)
-    return InverseBlock(stage_of, names, low, high, rejection, level_dbc, margin, explored, pruned)
+    return InverseBlock(stage_of, names, low, high, rejection, level_dbc, margin, explored, pruned, freq_slope,
+                        anchor)
 
 
 def _origin(steps: list[str], wanted: list[str | None]) -> int:

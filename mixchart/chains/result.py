@@ -27,6 +27,11 @@ PATH_COLUMNS = {
     "margin_db": "rejection or level against its limit, dB (negative: the requirement is broken)",
     "limit": "the limit the margin is against",
     "in_band": "whether the band lands in the final passband",
+    "freq_slope": "d f_out / d f_in of the path, signed: how the output moves with the chain input (m·... along the "
+                  "path; negative where the spectrum is turned over; 0 for a line that does not move, an LO's)",
+    "x_hz": "a point of the path on the end-to-end plane, Hz: the chain input (the channel for a product; for a "
+            "response the input that lands on the passband's centre)",
+    "y_hz": "and the chain output there (the product's centre; the passband's centre for a response)",
     "n_failing_channels": "paths table: channels where this path breaks its limit",
 }
 #: Columns of :attr:`ChainResult.channels`.
@@ -110,22 +115,26 @@ class ChainResult:
     ----------
     plan : ChainPlan
     channels_hz, worst_margin_db : numpy.ndarray (read-only), shape (C,)
+    pass_low_hz, pass_high_hz : numpy.ndarray (read-only), shape (C,)
+        The final passband at each channel, Hz.
     summary : ChainSummary
     warnings : tuple of WarningRecord
     """
 
-    __slots__ = ("plan", "channels_hz", "worst_margin_db", "summary", "warnings", "_paths", "_channels", "_nodes",
-                 "_hits", "_channel_rows")
+    __slots__ = ("plan", "channels_hz", "worst_margin_db", "pass_low_hz", "pass_high_hz", "summary", "warnings",
+                 "_paths", "_channels", "_nodes",
+                 "_hits", "_channel_rows", "_tracks")
 
     def __init__(self, *, plan, channels_hz, worst_margin_db, summary, warnings, paths, channels, nodes,
-                 hits, channel_rows) -> None:
-        for name, value in (("channels_hz", channels_hz), ("worst_margin_db", worst_margin_db)):
+                 hits, channel_rows, tracks, pass_low_hz, pass_high_hz) -> None:
+        for name, value in (("channels_hz", channels_hz), ("worst_margin_db", worst_margin_db),
+                            ("pass_low_hz", pass_low_hz), ("pass_high_hz", pass_high_hz)):
             value = np.array(value, dtype=float)
             value.flags.writeable = False
             object.__setattr__(self, name, value)
         for name, value in (("plan", plan), ("summary", summary), ("warnings", tuple(warnings)),
                             ("_paths", paths), ("_channels", channels), ("_nodes", nodes), ("_hits", hits),
-                            ("_channel_rows", channel_rows)):
+                            ("_channel_rows", channel_rows), ("_tracks", tracks)):
             object.__setattr__(self, name, value)
 
     def __setattr__(self, name: str, value: object) -> None:
@@ -153,6 +162,15 @@ class ChainResult:
     def hits(self) -> pd.DataFrame:
         """Failing (path, channel) rows, worst first."""
         return self._hits.copy(deep=False)
+
+    @property
+    def tracks(self) -> pd.DataFrame:
+        """The end-to-end plane's points: every (path, channel) within 10 dB of its limit.
+
+        Columns ``kind``, ``path``, ``channel_hz``, ``x_hz`` and ``y_hz`` (a point of the path, as
+        in :data:`PATH_COLUMNS`) and ``margin_db``; sorted by path, then x.
+        """
+        return self._tracks.copy(deep=False)
 
     def channel_frame(self, index: int) -> pd.DataFrame:
         """Every judged path of channel ``index`` (products and responses), worst first."""

@@ -23,6 +23,10 @@ __all__ = ["analyse_chain", "channel_rows", "MAX_HIT_ROWS"]
 
 #: Most failing (path, channel) rows kept (the worst ones).
 MAX_HIT_ROWS = 10_000
+#: The end-to-end plane draws each path at every channel where it is within this of its limit.
+TRACK_MARGIN_DB = 10.0
+#: Most (path, channel) points kept for the end-to-end plane (the worst ones).
+MAX_TRACK_ROWS = 50_000
 
 
 def _kind_of_step(path: str) -> str:
@@ -31,7 +35,8 @@ def _kind_of_step(path: str) -> str:
 
 def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.ndarray, first: int,
             margin: np.ndarray, level_dbc: np.ndarray, rejection: np.ndarray, low: np.ndarray, high: np.ndarray,
-            in_band: np.ndarray, limit: np.ndarray, worst: dict[str, np.ndarray]) -> tuple[dict, dict]:
+            in_band: np.ndarray, limit: np.ndarray, worst: dict[str, np.ndarray],
+            freq_slope: np.ndarray, x_hz: np.ndarray, y_hz: np.ndarray) -> tuple[dict, dict]:
     """One block's (R, C) judged rows reduced to: each row at its worst channel, and its failing cells.
 
     Also updates ``worst`` (the per-channel worst margin, path and stage of the sweep) in place.
@@ -48,10 +53,19 @@ def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.
         return {"kind": kinds[ri], "stage": stage[ri], "path": path[ri], "channel_hz": ch[ci],
                 "f_low_hz": low[ri, ci], "f_high_hz": high[ri, ci], "level_dbc": level_dbc[ri, ci],
                 "rejection_db": rejection[ri, ci], "margin_db": margin[ri, ci],
-                "limit": limit[ri, ci] if limit.ndim == 2 else limit[ri], "in_band": in_band[ri, ci]}
+                "limit": limit[ri, ci] if limit.ndim == 2 else limit[ri], "in_band": in_band[ri, ci],
+                "freq_slope": freq_slope[ri, ci] if freq_slope.ndim == 2 else freq_slope[ri],
+                "x_hz": x_hz[ri, ci], "y_hz": y_hz[ri, ci]}
 
     per_path = cells(rows, cols)
     per_path["n_failing_channels"] = (margin[rows] < 0).sum(axis=1)
+    near_r, near_c = np.nonzero(margin < TRACK_MARGIN_DB)
+    if near_r.size > MAX_TRACK_ROWS:
+        keep = np.argpartition(margin[near_r, near_c], MAX_TRACK_ROWS)[:MAX_TRACK_ROWS]
+        near_r, near_c = near_r[keep], near_c[keep]
+    worst["tracks"].append({
+        "kind": kinds[near_r], "path": path[near_r], "channel_hz": ch[near_c],
+        "x_hz": x_hz[near_r, near_c], "y_hz": y_hz[near_r, near_c], "margin_db": margin[near_r, near_c]})
     fail_r, fail_c = np.nonzero(margin < 0)
     if fail_r.size > MAX_HIT_ROWS:
         keep = np.argpartition(margin[fail_r, fail_c], MAX_HIT_ROWS)[:MAX_HIT_ROWS]
@@ -68,7 +82,7 @@ def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.
     return per_path, hits
 
 
-def _forward_reduce(setup: ChainSetup, rows: slice, fwd, texts, origin, worst) -> tuple[dict, dict]:
+def _forward_reduce(setup: ChainSetup, rows: slice, fwd, texts, origin, worst, gain) -> tuple[dict, dict]:
     ch = setup.channels_hz[rows]
     texts = np.asarray(texts, dtype=object)
     margin = fwd.margin_db.copy()
@@ -77,8 +91,17 @@ def _forward_reduce(setup: ChainSetup, rows: slice, fwd, texts, origin, worst) -
     kinds = np.array([_kind_of_step(t) for t in texts], dtype=object)
     limit_texts = np.asarray(("",) + setup.limits.texts[1:], dtype=object)
     stage = np.asarray(setup.names, dtype=object)[np.maximum(origin, 0)]
+    freq = gain[:, None] * np.where(fwd.flow.inverted, -1.0, 1.0)
+    x = np.broadcast_to(ch[None, :], margin.shape)
+    y = 0.5 * (fwd.flow.low_hz + fwd.flow.high_hz)
     return _reduce(kinds, stage, texts, ch, rows.start or 0, margin, fwd.level_dbc, -fwd.level_dbc,
-                   fwd.flow.low_hz, fwd.flow.high_hz, fwd.in_band, limit_texts[fwd.limit_text], worst)
+                   fwd.flow.low_hz, fwd.flow.high_hz, fwd.in_band, limit_texts[fwd.limit_text], worst, freq, x, y)
+
+
+def _passband_centre(setup: ChainSetup, rows: slice, shape: tuple[int, ...]) -> np.ndarray:
+    """The final passband's centre at each channel of a block, broadcast to (R, C)."""
+    centre = 0.5 * (setup.pass_low_hz[rows] + setup.pass_high_hz[rows])
+    return np.broadcast_to(centre[None, :], shape)
 
 
 def _nodes_frame(setup: ChainSetup) -> pd.DataFrame:
@@ -129,12 +152,12 @@ def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune:
     step = block_channels or setup.block_channels()
     per_path, hits, explored, pruned, r_explored, r_pruned = [], [], 0, 0, 0, 0
     worst_all = {"margin": np.full(n, np.inf), "path": np.full(n, "", dtype=object),
-                 "stage": np.full(n, "", dtype=object)}
+                 "stage": np.full(n, "", dtype=object), "tracks": []}
     for start in range(0, n, step):
         rows = slice(start, min(n, start + step))
         fwd = forward_block(setup, rows, prune=prune)
-        texts, origin = path_texts(setup, fwd.history)
-        a, b = _forward_reduce(setup, rows, fwd, texts, origin, worst_all)
+        texts, origin, gain = path_texts(setup, fwd.history, with_gain=True)
+        a, b = _forward_reduce(setup, rows, fwd, texts, origin, worst_all, gain)
         per_path.append(a)
         hits.append(b)
         explored += fwd.explored
@@ -144,7 +167,8 @@ def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune:
             a, b = _reduce("response", inv.stage, inv.path, setup.channels_hz[rows], start, inv.margin_db,
                            inv.level_dbc, inv.rejection_db, inv.low_hz, inv.high_hz,
                            np.ones(inv.margin_db.shape, dtype=bool),
-                           np.full(inv.path.shape, setup.limits.texts[0], dtype=object), worst_all)
+                           np.full(inv.path.shape, setup.limits.texts[0], dtype=object), worst_all,
+                           inv.freq_slope, inv.anchor_hz, _passband_centre(setup, rows, inv.anchor_hz.shape))
             per_path.append(a)
             hits.append(b)
             r_explored += inv.explored
@@ -158,6 +182,9 @@ def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune:
         paths["n_failing_channels"] = fails.loc[list(zip(paths["kind"], paths["path"], strict=True))].to_numpy()
         paths = paths.reset_index(drop=True)
     hits = pd.DataFrame({k: np.concatenate([p[k] for p in hits]) for k in hits[0]})
+    tracks = pd.DataFrame({k: np.concatenate([p[k] for p in worst_all["tracks"]]) for k in worst_all["tracks"][0]})
+    tracks = tracks.sort_values("margin_db", kind="stable").head(MAX_TRACK_ROWS)
+    tracks = tracks.sort_values(["kind", "path", "x_hz"], kind="stable").reset_index(drop=True)
     hits = hits.sort_values("margin_db", kind="stable").head(MAX_HIT_ROWS).reset_index(drop=True)
     out = setup.nodes[-1]
     channels = pd.DataFrame({"channel_hz": setup.channels_hz, "f_out_hz": out.f_hz, "inverted": out.inverted,
@@ -174,6 +201,7 @@ def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune:
         responses_explored=r_explored, responses_pruned=r_pruned, order_caps=caps, inverted=inverted)
     return ChainResult(plan=plan, channels_hz=setup.channels_hz, worst_margin_db=worst, summary=summary,
                        warnings=setup.warnings, paths=paths, channels=channels, nodes=_nodes_frame(setup), hits=hits,
+                       tracks=tracks, pass_low_hz=setup.pass_low_hz, pass_high_hz=setup.pass_high_hz,
                        channel_rows=lambda index: channel_rows(setup, index, prune=prune, responses=responses))
 
 
@@ -192,15 +220,16 @@ def channel_rows(setup: ChainSetup, index: int, *, prune: bool = True, responses
         raise IndexError(f"index: {index} is invalid; the sweep has channels 0 to {n - 1}")
     rows = slice(index, index + 1)
     scratch = {"margin": np.full(n, np.inf), "path": np.full(n, "", dtype=object),
-               "stage": np.full(n, "", dtype=object)}
+               "stage": np.full(n, "", dtype=object), "tracks": []}
     fwd = forward_block(setup, rows, prune=prune)
-    texts, origin = path_texts(setup, fwd.history)
-    parts = [_forward_reduce(setup, rows, fwd, texts, origin, scratch)[0]]
+    texts, origin, gain = path_texts(setup, fwd.history, with_gain=True)
+    parts = [_forward_reduce(setup, rows, fwd, texts, origin, scratch, gain)[0]]
     if responses and setup.plan.direction == "down":
         inv = inverse_block(setup, rows, prune=prune)
         parts.append(_reduce("response", inv.stage, inv.path, setup.channels_hz[rows], index, inv.margin_db,
                              inv.level_dbc, inv.rejection_db, inv.low_hz, inv.high_hz,
                              np.ones(inv.margin_db.shape, dtype=bool),
-                             np.full(inv.path.shape, setup.limits.texts[0], dtype=object), scratch)[0])
+                             np.full(inv.path.shape, setup.limits.texts[0], dtype=object), scratch,
+                             inv.freq_slope, inv.anchor_hz, _passband_centre(setup, rows, inv.anchor_hz.shape))[0])
     frame = pd.DataFrame({k: np.concatenate([p[k] for p in parts]) for k in parts[0]})
     return frame.drop(columns="n_failing_channels").sort_values("margin_db", kind="stable").reset_index(drop=True)

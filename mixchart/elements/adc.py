@@ -135,6 +135,7 @@ class AdcElement:
         step = np.array(["alias"] + [f"H{j}, alias" for j in self.k[1:]], dtype=object)
         rows = [(low, high, level, inverted, np.repeat(np.arange(p), kk), np.tile(step, p),
                  np.tile(np.where(self.k > 1, self.k, 0), p))]
+        gains = [np.tile(self.k.astype(float), p)]
         for spur in self.spec.clock_spurs:  # sidebands f ± d of every band (harmonics included)
             centre = 0.5 * (low + high)
             side_db = spur.level_dbc + 20.0 * np.log10(np.maximum(centre, 1e-300) / self.fs)
@@ -145,6 +146,7 @@ class AdcElement:
                              np.tile(np.array([f"{t}, clock {word}{spur.offset_hz:g} Hz" for t in step],
                                               dtype=object), p),
                              np.tile(np.where(self.k > 1, self.k, 0), p)))
+                gains.append(np.tile(self.k.astype(float), p))
         low = np.concatenate([r[0].reshape(p * kk, c) for r in rows])
         high = np.concatenate([r[1].reshape(p * kk, c) for r in rows])
         level = np.concatenate([r[2].reshape(p * kk, c) for r in rows])
@@ -164,8 +166,9 @@ class AdcElement:
             p_low, p_high = self.passband(node_out)
             f_level = np.where((f_high >= p_low[None, :]) & (f_low <= p_high[None, :]), f_level, -np.inf)
         f_level[0] = node_out.level_dbm  # row 0 (the wanted signal's own piece): the loss at its centre
+        gain = np.concatenate(gains)
         return Flow(f_low, f_high, f_level, f_inv, np.concatenate([parent, parent]),
-                    np.concatenate([steps, steps]), np.concatenate([order, order]))
+                    np.concatenate([steps, steps]), np.concatenate([order, order]), np.concatenate([gain, gain]))
 
     def level_maps(self) -> list[tuple[float, float]]:
         spur = max((s.level_dbc for s in self.spec.clock_spurs), default=-np.inf)
@@ -178,7 +181,7 @@ class AdcElement:
         r, c = low_hz.shape
         loss = (self._filter_loss(low_hz, high_hz, node_out) if self.filter is not None else np.zeros((r, c)))
         n_k = math.ceil(self.max_harmonic * self.f_max / self.fs) + 1  # the harmonics of inputs up to f_max
-        bands_low, bands_high, src, steps, lvl, orders = [], [], [], [], [], []
+        bands_low, bands_high, src, steps, lvl, orders, freq, f_off = [], [], [], [], [], [], [], []
         for k in range(n_k):
             for sgn in ((1,) if k == 0 else (-1, 1)):
                 lo_b = k * self.fs + sgn * (low_hz if sgn > 0 else high_hz)
@@ -192,6 +195,9 @@ class AdcElement:
                     steps.append(word)
                     lvl.append(hd - loss)
                     orders.append(h if h > 1 else 0)
+                    sense = -1.0 if zone % 2 == 0 else 1.0  # an even zone turns the spectrum over
+                    freq.append(sense * h)
+                    f_off.append(np.full((r, c), -sgn * k * self.fs))  # f_out = ±(h·f - k·fs)
                     for spur in self.spec.clock_spurs:
                         # a clock sideband h·f ± d folds onto the band: h·f in the alias band ∓ d, at the
                         # spur's level raised by h·f/fs (taken at the band's top: never optimistic)
@@ -204,6 +210,8 @@ class AdcElement:
                             steps.append(f"{word}, clock {mark}{spur.offset_hz:g} Hz")
                             lvl.append(hd - loss + spur.level_dbc + 20.0 * np.log10(top / self.fs))
                             orders.append(h if h > 1 else 0)
+                            freq.append(sense * h)
+                            f_off.append(np.full((r, c), -sgn * (k * self.fs - sb * spur.offset_hz)))
         q = len(bands_low)
         low = np.concatenate(bands_low)
         high = np.concatenate(bands_high)
@@ -212,7 +220,8 @@ class AdcElement:
         low = np.maximum(low, 0.0)
         return Inverse(low, high, valid, np.ones(q * r), np.concatenate(lvl), np.concatenate(src),
                        np.repeat(np.array(steps, dtype=object), r),
-                       np.repeat(np.array(orders), r))
+                       np.repeat(np.array(orders), r), np.repeat(np.array(freq, dtype=float), r),
+                       np.concatenate(f_off))
 
     def warnings(self) -> list[WarningRecord]:
         out = []

@@ -94,7 +94,7 @@ class AmplifierElement:
         inverted = np.repeat(flow.inverted, kk, axis=0)
         steps = np.array([""] + [f"H{j}" for j in self.k[1:]], dtype=object)
         return Flow(low, high, level, inverted, np.repeat(np.arange(p), kk), np.tile(steps, p),
-                    np.tile(np.where(self.k > 1, self.k, 0), p))
+                    np.tile(np.where(self.k > 1, self.k, 0), p), np.tile(self.k.astype(float), p))
 
     def level_maps(self) -> list[tuple[float, float]]:
         return [(float(k), float(o)) for k, o in zip(self.k, self.offset, strict=True)]
@@ -110,7 +110,7 @@ class AmplifierElement:
         steps = np.array([""] + [f"H{j}" for j in self.k[1:]], dtype=object)
         return Inverse(low, high, np.ones((r * kk, c), dtype=bool), np.tile(self.k.astype(float), r),
                        np.broadcast_to(np.tile(self.offset, r)[:, None], (r * kk, c)), np.repeat(np.arange(r), kk),
-                       np.tile(steps, r), np.tile(np.where(self.k > 1, self.k, 0), r))
+                       np.tile(steps, r), np.tile(np.where(self.k > 1, self.k, 0), r), np.tile(self.k.astype(float), r))
 
     def warnings(self) -> list[WarningRecord]:
         out = []

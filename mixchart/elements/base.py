@@ -99,6 +99,10 @@ class Flow:
         ``"LO (0,2)"``, ``"H3"``, ``"alias"``...
     order : numpy.ndarray of int, shape (P,)
         Order of the step (m + n for a mixer product, k for a harmonic, 0 when passed).
+    gain : numpy.ndarray, shape (P,)
+        How fast the row's frequency moves with its parent's, ``|d f / d f_parent|``: m for an
+        (m, n) product, 0 for an LO line, k for a k-th harmonic, 1 when passed (its sign is the
+        change of ``inverted``).  None: 1 for every row.
     """
 
     low_hz: np.ndarray
@@ -108,6 +112,7 @@ class Flow:
     parent: np.ndarray
     step: np.ndarray
     order: np.ndarray
+    gain: np.ndarray | None = None
 
     @property
     def n_rows(self) -> int:
@@ -117,7 +122,8 @@ class Flow:
     def take(self, rows: np.ndarray) -> Flow:
         """The flow restricted to ``rows`` (row 0, the wanted signal, must stay first)."""
         return Flow(self.low_hz[rows], self.high_hz[rows], self.level_dbm[rows], self.inverted[rows],
-                    self.parent[rows], self.step[rows], self.order[rows])
+                    self.parent[rows], self.step[rows], self.order[rows],
+                    None if self.gain is None else self.gain[rows])
 
 
 @dataclass
@@ -141,6 +147,12 @@ class Inverse:
         The output row it reaches.
     step, order : numpy.ndarray, shape (Q,)
         As in :class:`Flow`.
+    freq_slope : numpy.ndarray, shape (Q,)
+        ``d f_out / d f_in`` of the step, signed (+m, or -m on the branch that turns the
+        spectrum over; -k for a harmonic folded from an even zone).  None: +1 for every row.
+    freq_offset_hz : numpy.ndarray, shape (Q, C)
+        With ``freq_slope``, the step's frequency map ``f_out = freq_slope·f_in + freq_offset``
+        (exact, before any clipping at 0 Hz).  None: 0 for every row.
     """
 
     low_hz: np.ndarray
@@ -151,6 +163,8 @@ class Inverse:
     source: np.ndarray
     step: np.ndarray
     order: np.ndarray
+    freq_slope: np.ndarray | None = None
+    freq_offset_hz: np.ndarray | None = None
 
 
 class Element(Protocol):

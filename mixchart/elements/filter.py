@@ -66,7 +66,7 @@ class FilterElement:
         level = flow.level_dbm - self.band_loss_db(flow.low_hz, flow.high_hz, node_in)
         level[0] = node_out.level_dbm  # the wanted signal: the loss at its centre
         return Flow(flow.low_hz, flow.high_hz, level, flow.inverted, np.arange(flow.n_rows),
-                    np.full(flow.n_rows, "", dtype=object), np.zeros(flow.n_rows, dtype=int))
+                    np.full(flow.n_rows, "", dtype=object), np.zeros(flow.n_rows, dtype=int), np.ones(flow.n_rows))
 
     def level_bound(self, level_dbm: np.ndarray) -> np.ndarray:
         return level_dbm  # a passive filter never adds

@@ -195,6 +195,7 @@ class MixerElement:
             np.concatenate([[0], parent[rows], np.full(n_lo.size, -1)]),
             np.concatenate([[_step_text(1, 1, int(s_w[0]))], step[rows], [f"LO (0,{j})" for j in n_lo]]).astype(object),
             np.concatenate([[2], order[rows], n_lo]),
+            np.concatenate([[1.0], np.tile(self.m.astype(float), p)[rows], np.zeros(n_lo.size)]),
         )
 
     def level_maps(self) -> list[tuple[float, float]]:
@@ -221,7 +222,10 @@ class MixerElement:
                        dtype=object)
         step = np.concatenate([np.tile(self.steps, r), np.tile(neg, r)])
         order = np.tile(self.m + self.n, 2 * r)
-        return Inverse(low, high, ok, slope, offset, source, step, order)
+        freq = np.concatenate([np.tile(self.m.astype(float), r), -np.tile(self.m.astype(float), r)])
+        shift = np.broadcast_to(s * n * lo[None, None, :], (r, k, c))  # f_out = ±(m·f + shift)
+        freq_offset = np.stack([shift, -shift]).reshape(2 * r * k, c)
+        return Inverse(low, high, ok, slope, offset, source, step, order, freq, freq_offset)
 
     def warnings(self) -> list[WarningRecord]:
         return list(self._records)
