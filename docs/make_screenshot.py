@@ -1,5 +1,6 @@
-"""Make docs/screenshot.png (the planner serving the built-in FM example, once idle) and
-docs/screenshot_compare.png (the same plan kept as a reference, flipped to low-side injection).
+"""Make docs/screenshot.png (the planner serving the built-in FM example, once idle),
+docs/screenshot_compare.png (the same plan kept as a reference, flipped to low-side injection)
+and docs/screenshot_chain.png (the chain planner on the built-in scanner chain).
 
 Run from the repository root (needs Voila and /usr/bin/chromium, as the browser tests do)::
 
@@ -29,6 +30,8 @@ from bench_app import start_voila  # noqa: E402
 
 OUT = REPO / "docs" / "screenshot.png"
 OUT_COMPARE = REPO / "docs" / "screenshot_compare.png"
+OUT_CHAIN = REPO / "docs" / "screenshot_chain.png"
+CHAIN = REPO / "mixchart" / "examples" / "chains" / "scanner_double_conversion.json"
 VIEWPORT = {"width": 1600, "height": 1250}
 MARGIN_PX = 12
 
@@ -84,11 +87,45 @@ def main() -> int:
         if server is not None:
             harness._stop_server(server)
         shutil.rmtree(tmp, ignore_errors=True)
-    print(f"wrote {OUT} ({int(clip['width'])}x{int(clip['height'])} px) and {OUT_COMPARE}")
+    errors += chain_shot()
+    print(f"wrote {OUT} ({int(clip['width'])}x{int(clip['height'])} px), {OUT_COMPARE} and {OUT_CHAIN}")
     if errors:
         print(f"console errors: {errors}", file=sys.stderr)
         return 1
     return 0
+
+
+def chain_shot() -> list[str]:
+    """docs/screenshot_chain.png: the diagram, the end-to-end plane and the top of mixer 1's planes."""
+    from playwright.sync_api import sync_playwright
+
+    tmp = Path(tempfile.mkdtemp(prefix="mixchart-shot-"))
+    plan = tmp / "scanner.json"
+    shutil.copy(CHAIN, plan)
+    server = None
+    try:
+        server = start_voila(harness, REPO / "notebooks" / "planner.ipynb", plan, tmp)
+        with sync_playwright() as pw:
+            browser = pw.chromium.launch(executable_path=str(harness.CHROMIUM), headless=True,
+                                         args=harness.CHROMIUM_ARGS)
+            try:
+                page = harness._new_page(browser, 60_000)
+                page.set_viewport_size(VIEWPORT)
+                bh.open_voila(page, server.url, min_roots=2)
+                page.locator(".mixchart-chain-paths td").first.wait_for()
+                page.mouse.move(0, 0)
+                time.sleep(1.0)
+                box = page.locator(".mixchart-chain").bounding_box()
+                clip = {"x": max(box["x"] - MARGIN_PX, 0), "y": max(box["y"] - MARGIN_PX, 0),
+                        "width": min(box["width"] + 2 * MARGIN_PX, VIEWPORT["width"]), "height": 1000}
+                page.screenshot(path=str(OUT_CHAIN), clip=clip)
+                return bh.unexpected_console_errors(page)
+            finally:
+                browser.close()
+    finally:
+        if server is not None:
+            harness._stop_server(server)
+        shutil.rmtree(tmp, ignore_errors=True)
 
 
 if __name__ == "__main__":

@@ -62,17 +62,6 @@ def _load_any(args: argparse.Namespace):
     return plan, path.parent
 
 
-def _load(args: argparse.Namespace):
-    """A plan the single-conversion tools take (version 1, or a one-mixer chain), and its folder."""
-    from .models.chain import ChainPlan
-
-    plan, base = _load_any(args)
-    if isinstance(plan, ChainPlan):
-        raise MixchartError(f"plan: {plan.name!r} is a chain of {len(plan.chain)} stages; `mixchart {args.command}` "
-                            "takes one conversion for now: use `mixchart sweep` for chains")
-    return plan, base
-
-
 def _fmt_db(value: float) -> str:
     return "   -inf" if value == float("-inf") else "    inf" if value == float("inf") else f"{value:7.1f}"
 
@@ -240,9 +229,15 @@ def _cmd_serve(args: argparse.Namespace) -> int:
 
 
 def _cmd_snapshot(args: argparse.Namespace) -> int:
+    from .models.chain import ChainPlan
     from .report import write_report
 
-    plan, base = _load(args)
+    plan, base = _load_any(args)
+    if isinstance(plan, ChainPlan):
+        from .report_chain import write_chain_report
+
+        print(f"wrote {write_chain_report(plan, args.output, base_dir=base)}")
+        return 0
     path = write_report(plan, args.output, base_dir=base)
     print(f"wrote {path}")
     return 0

@@ -119,12 +119,6 @@ def test_migrate_refuses_a_version_2_plan_and_its_own_input(capsys, tmp_path):
     assert v1.read_text() == example_path("fm_receiver").read_text()  # untouched
 
 
-def test_a_chain_the_single_conversion_tools_cannot_take_is_refused_in_one_line(capsys, tmp_path):
-    code, _, err = run(capsys, "snapshot", "--example", SCANNER, "-o", str(tmp_path / "r.html"))
-    assert code == 2 and "is a chain of 6 stages" in err and "mixchart sweep" in err
-    assert not (tmp_path / "r.html").exists()
-
-
 def test_every_chain_example_loads_and_is_in_the_package():
     for name, rel in CHAIN_EXAMPLES.items():
         path = example_path(name)
