@@ -128,3 +128,12 @@ def test_the_channel_slider_moves_the_plane():
     app.channel_slider.value = 0
     assert app.channel_label.value == "100 MHz" and "100 MHz" in app.figure.title.text
     assert app.sources["tracks"].data["path"] != before["path"] or app.sources["tracks"].data["xs"] != before["xs"]
+
+
+def test_a_chain_result_plots_its_end_to_end_plane_lazily():
+    result = analyse_chain(load_any(example_path("two_step_transmitter")))
+    fig = result.plot()
+    assert fig.name == "end_to_end" and "2.3 GHz" in fig.title.text  # the worst channel by default
+    assert "2.2 GHz" in result.plot(0).title.text
+    with pytest.raises(IndexError, match="index: 9999 is invalid"):
+        result.plot(9999)

@@ -13,9 +13,14 @@ PROBE = """
 import sys
 import mixchart, mixchart.analysis, mixchart.products, mixchart.plan, mixchart.levels, mixchart.filters, mixchart.cli
 import mixchart.requirements, mixchart.context, mixchart.checks, mixchart.loci
+import mixchart.models, mixchart.physics, mixchart.elements, mixchart.chains, mixchart.cli_chain
 from mixchart import evaluate, load_plan
+from mixchart.chains import analyse_chain
 from mixchart.cli import example_path
+from mixchart.models import load_any
 evaluate(load_plan(example_path()))  # running the engine must not pull them in either
+result = analyse_chain(load_any(example_path("if_sampling_receiver")))  # nor the chain engine
+result.channel_frame(0), result.to_json(), result.paths
 loaded = sorted(name for name in sys.modules if name.split(".")[0] in {"bokeh", "ipywidgets", "jupyter_bokeh"})
 print("LOADED:" + ",".join(loaded))
 """

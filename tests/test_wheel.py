@@ -106,6 +106,11 @@ def test_wheel_holds_the_package_its_examples_and_the_license(built):
         license_text = zf.read(f"{dist_info}/licenses/LICENSE").decode("utf-8")
     assert wheel.name.startswith(f"mixchart-{mixchart.__version__}-py3-none-any")
     assert {f"mixchart/examples/{name}" for name in EXAMPLES} <= names and len(EXAMPLES) == 5
+    chains = sorted(p.name for p in (REPO / "mixchart" / "examples" / "chains").glob("*.json"))
+    assert {f"mixchart/examples/chains/{name}" for name in chains} <= names and len(chains) == 3
+    # every subpackage is in the wheel (a missing one imports from a checkout only)
+    for package in ("analysis", "chains", "elements", "filters", "models", "physics"):
+        assert f"mixchart/{package}/__init__.py" in names
     assert {"mixchart/__init__.py", "mixchart/cli.py", "mixchart/serve.py"} <= names
     assert not any(n.startswith(("tests/", "benchmarks/", "notebooks/", "tools/")) for n in names)
     assert metadata["Version"] == mixchart.__version__  # written once, in mixchart/__init__.py
@@ -125,7 +130,7 @@ def test_installed_copy_shadows_the_checkout(built):
     assert not Path(numpy_where).is_relative_to(venv)  # the dependencies are borrowed, not installed
 
 
-@pytest.mark.parametrize("example", ["fm_receiver", "uplink_transmitter"])
+@pytest.mark.parametrize("example", ["fm_receiver", "uplink_transmitter", "scanner_double_conversion"])
 def test_installed_sweep_runs_a_built_in_example(built, example):
     _, _, venv, work = built
     done = _run([str(venv / "bin" / "mixchart"), "sweep", "--example", example], cwd=work, venv=venv)

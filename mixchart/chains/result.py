@@ -172,6 +172,19 @@ class ChainResult:
         """
         return self._tracks.copy(deep=False)
 
+    def plot(self, index: int | None = None):
+        """The end-to-end plane at channel ``index`` (default: the worst), as a Bokeh figure.
+
+        Bokeh is imported only here (the analysis never needs it); show the figure with
+        ``bokeh.plotting.show`` or in a notebook.
+        """
+        from ..app_chain import end_to_end_figure  # lazy: the engine never imports a plotting library
+
+        index = int(np.argmin(self.worst_margin_db)) if index is None else int(index)
+        if not 0 <= index < self.channels_hz.size:
+            raise IndexError(f"index: {index} is invalid; the sweep has channels 0 to {self.channels_hz.size - 1}")
+        return end_to_end_figure(self, index)[0]
+
     def channel_frame(self, index: int) -> pd.DataFrame:
         """Every judged path of channel ``index`` (products and responses), worst first."""
         return self._channel_rows(int(index))
