@@ -36,7 +36,7 @@ def test_sweep_text_of_a_chain_names_the_stages_the_nodes_and_the_limiting_path(
     assert "frequency plan (the wanted signal at every node):" in out
     for name in ("preselector", "LNA", "mixer 1", "first-IF filter", "mixer 2", "second-IF filter"):
         assert name in out
-    assert "limited by" in out and "paths explored" in out
+    assert "limited by" in out and "paths per channel explored" in out
     assert "local rules and licensed practice" in out
 
 

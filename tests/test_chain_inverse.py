@@ -86,8 +86,12 @@ def _tone(data_draw, plan) -> float | None:
     if adc:
         top = min(top, adc[0].f_max)
     f = data_draw(st.floats(1e5, top))
-    if abs(f - ch) <= half * 1.01:
-        return None  # co-channel: the wanted signal itself (no margin, by rule)
+    # The co-channel rule: a response band that covers the wanted channel has no margin (it is the
+    # wanted signal itself, or heard with it), as in the single-conversion engine.  A band as wide
+    # as an IF passband can cover the channel and a tone beside it, so tones that near are left out.
+    widest = max([half] + [s.if_.bandwidth_hz for s in plan.chain if s.kind == "mixer"])
+    if abs(f - ch) <= 1.01 * widest:
+        return None
     return f
 
 

@@ -58,12 +58,12 @@ class ChainSummary:
         Share of channels whose every margin is >= 0.
     n_channels, n_failing_channels : int
     paths_explored, paths_pruned : int
-        Bands made along the chain (per channel, summed over the stages) and bands dropped as
-        provably below every limit, summed over the sweep's blocks.
-    responses_explored, responses_pruned : int
-        Input bands looked at by the inverse search (per channel, summed over the stages and the
-        blocks), and those dropped as provably rejected by more than the limit plus
+        Paths per channel (on average over the channels): bands made along the chain, summed over
+        the stages, and those dropped as provably below every limit by more than
         :data:`~mixchart.chains.setup.PRUNE_HEADROOM_DB`.
+    responses_explored, responses_pruned : int
+        The same for the inverse search: input bands looked at per channel, and those dropped as
+        provably rejected by more than the limit plus the headroom.
     order_caps : tuple of (str, int)
         Each stage's order cap.
     inverted : str
@@ -89,7 +89,7 @@ class ChainSummary:
         state = "PASS" if self.worst_margin_db >= 0 else "FAIL"
         return (f"{state}: worst margin {self.worst_margin_db:+.1f} dB ({self.worst_path} at "
                 f"{format_frequency(self.worst_channel_hz)}; limited by {self.limiting_stage}); spur-free "
-                f"{100 * self.spur_free_fraction:.1f}% of {self.n_channels} channels; paths explored "
+                f"{100 * self.spur_free_fraction:.1f}% of {self.n_channels} channels; paths per channel explored "
                 f"{self.paths_explored}, pruned {self.paths_pruned}; inverted: {self.inverted}")
 
 

@@ -33,9 +33,9 @@ PRUNE_HEADROOM_DB = 30.0
 #: multiplied): the memory of a sweep is bounded by this times the block size, so a larger
 #: request is refused before anything is allocated.
 MAX_BANDS_PER_CHANNEL = 400_000
-#: Bands x channels held at once in a block (about 100 bytes each across the arrays in flight:
-#: ~400 MB at the peak, under the 500 MB budget; benchmarks/bench_chain.py measures it).
-BLOCK_ELEMENTS = 4_000_000
+#: Bands x channels held at once in a block (about 160 bytes each across the arrays in flight at the
+#: peak, under the 500 MB budget; benchmarks/bench_chain.py measures it).
+BLOCK_ELEMENTS = 2_000_000
 
 
 @dataclass

@@ -36,11 +36,13 @@ def _kind_of_step(path: str) -> str:
 def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.ndarray, first: int,
             margin: np.ndarray, level_dbc: np.ndarray, rejection: np.ndarray, low: np.ndarray, high: np.ndarray,
             in_band: np.ndarray, limit: np.ndarray, worst: dict[str, np.ndarray],
-            freq_slope: np.ndarray, x_hz: np.ndarray, y_hz: np.ndarray) -> tuple[dict, dict]:
+            geometry) -> tuple[dict, dict]:
     """One block's (R, C) judged rows reduced to: each row at its worst channel, and its failing cells.
 
     Also updates ``worst`` (the per-channel worst margin, path and stage of the sweep) in place.
-    Rows whose margin is +inf everywhere (nothing arrives) are left out.
+    Rows whose margin is +inf everywhere (nothing arrives) are left out.  ``geometry(ri, ci)``
+    gives the ``freq_slope``, ``x_hz`` and ``y_hz`` of the cells picked (only those: a full (R, C)
+    array of each would cost memory that the block sizing does not allow for).
     """
     r, c = margin.shape
     live = np.isfinite(margin).any(axis=1) if r else np.zeros(0, dtype=bool)
@@ -54,8 +56,7 @@ def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.
                 "f_low_hz": low[ri, ci], "f_high_hz": high[ri, ci], "level_dbc": level_dbc[ri, ci],
                 "rejection_db": rejection[ri, ci], "margin_db": margin[ri, ci],
                 "limit": limit[ri, ci] if limit.ndim == 2 else limit[ri], "in_band": in_band[ri, ci],
-                "freq_slope": freq_slope[ri, ci] if freq_slope.ndim == 2 else freq_slope[ri],
-                "x_hz": x_hz[ri, ci], "y_hz": y_hz[ri, ci]}
+                **geometry(ri, ci)}
 
     per_path = cells(rows, cols)
     per_path["n_failing_channels"] = (margin[rows] < 0).sum(axis=1)
@@ -63,9 +64,10 @@ def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.
     if near_r.size > MAX_TRACK_ROWS:
         keep = np.argpartition(margin[near_r, near_c], MAX_TRACK_ROWS)[:MAX_TRACK_ROWS]
         near_r, near_c = near_r[keep], near_c[keep]
+    geo = geometry(near_r, near_c)
     worst["tracks"].append({
         "kind": kinds[near_r], "path": path[near_r], "channel_hz": ch[near_c],
-        "x_hz": x_hz[near_r, near_c], "y_hz": y_hz[near_r, near_c], "margin_db": margin[near_r, near_c]})
+        "x_hz": geo["x_hz"], "y_hz": geo["y_hz"], "margin_db": margin[near_r, near_c]})
     fail_r, fail_c = np.nonzero(margin < 0)
     if fail_r.size > MAX_HIT_ROWS:
         keep = np.argpartition(margin[fail_r, fail_c], MAX_HIT_ROWS)[:MAX_HIT_ROWS]
@@ -85,23 +87,93 @@ def _reduce(kind: str | np.ndarray, stage: np.ndarray, path: np.ndarray, ch: np.
 def _forward_reduce(setup: ChainSetup, rows: slice, fwd, texts, origin, worst, gain) -> tuple[dict, dict]:
     ch = setup.channels_hz[rows]
     texts = np.asarray(texts, dtype=object)
-    margin = fwd.margin_db.copy()
-    margin[0] = np.inf
-    margin[~np.isfinite(fwd.flow.level_dbm)] = np.inf
+    margin = fwd.margin_db  # row 0 (the wanted signal) and bands that do not arrive are at +inf already
     kinds = np.array([_kind_of_step(t) for t in texts], dtype=object)
     limit_texts = np.asarray(("",) + setup.limits.texts[1:], dtype=object)
     stage = np.asarray(setup.names, dtype=object)[np.maximum(origin, 0)]
-    freq = gain[:, None] * np.where(fwd.flow.inverted, -1.0, 1.0)
-    x = np.broadcast_to(ch[None, :], margin.shape)
-    y = 0.5 * (fwd.flow.low_hz + fwd.flow.high_hz)
-    return _reduce(kinds, stage, texts, ch, rows.start or 0, margin, fwd.level_dbc, -fwd.level_dbc,
-                   fwd.flow.low_hz, fwd.flow.high_hz, fwd.in_band, limit_texts[fwd.limit_text], worst, freq, x, y)
+    flow = fwd.flow
+
+    def geometry(ri: np.ndarray, ci: np.ndarray) -> dict[str, np.ndarray]:
+        return {"freq_slope": gain[ri] * np.where(flow.inverted[ri, ci], -1.0, 1.0), "x_hz": ch[ci],
+                "y_hz": 0.5 * (flow.low_hz[ri, ci] + flow.high_hz[ri, ci])}
+
+    return _reduce(kinds, stage, texts, ch, rows.start or 0, margin, fwd.level_dbc, _Negated(fwd.level_dbc),
+                   flow.low_hz, flow.high_hz, fwd.in_band, _Indexed(limit_texts, fwd.limit_text), worst, geometry)
 
 
-def _passband_centre(setup: ChainSetup, rows: slice, shape: tuple[int, ...]) -> np.ndarray:
-    """The final passband's centre at each channel of a block, broadcast to (R, C)."""
-    centre = 0.5 * (setup.pass_low_hz[rows] + setup.pass_high_hz[rows])
-    return np.broadcast_to(centre[None, :], shape)
+class _Negated:
+    """``-array`` read cell by cell (no full negated copy)."""
+
+    def __init__(self, array: np.ndarray) -> None:
+        self.array = array
+        self.ndim = array.ndim
+
+    def __getitem__(self, key):
+        return -self.array[key]
+
+
+class _Indexed:
+    """``table[codes]`` read cell by cell (no full (R, C) array of texts)."""
+
+    def __init__(self, table: np.ndarray, codes: np.ndarray) -> None:
+        self.table, self.codes = table, codes
+        self.ndim = codes.ndim
+
+    def __getitem__(self, key):
+        return self.table[self.codes[key]]
+
+
+def _response_geometry(inv, centre: np.ndarray):
+    def geometry(ri: np.ndarray, ci: np.ndarray) -> dict[str, np.ndarray]:
+        return {"freq_slope": inv.freq_slope[ri], "x_hz": inv.anchor_hz[ri, ci], "y_hz": centre[ci]}
+    return geometry
+
+
+class _PathTable:
+    """Each path at its worst channel over the blocks seen so far; compacted as it grows (bounded memory)."""
+
+    #: Rows held before a compaction (one row per path and block until then).
+    COMPACT_ROWS = 200_000
+
+    def __init__(self) -> None:
+        self.parts: list[pd.DataFrame] = []
+        self.rows = 0
+
+    def add(self, columns: dict[str, np.ndarray]) -> None:
+        part = pd.DataFrame(columns)
+        self.parts.append(part)
+        self.rows += len(part)
+        if self.rows > self.COMPACT_ROWS:
+            self.parts = [self._compact()]
+            self.rows = len(self.parts[0])
+
+    def _compact(self) -> pd.DataFrame:
+        table = pd.concat(self.parts, ignore_index=True) if len(self.parts) > 1 else self.parts[0]
+        if not len(table):
+            return table
+        fails = table.groupby(["kind", "path"], sort=False)["n_failing_channels"].sum()
+        table = table.sort_values("margin_db", kind="stable").drop_duplicates(["kind", "path"]).copy()
+        table["n_failing_channels"] = fails.loc[list(zip(table["kind"], table["path"], strict=True))].to_numpy()
+        return table
+
+    def frame(self) -> pd.DataFrame:
+        """The table, worst first."""
+        return self._compact().reset_index(drop=True)
+
+
+def _worst_cells(parts: list[dict[str, np.ndarray]], limit: int) -> dict[str, np.ndarray]:
+    """The ``limit`` worst failing cells of several blocks, as one set of columns."""
+    joined = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
+    margin = joined["margin_db"]
+    if margin.size > limit:
+        keep = np.argpartition(margin, limit)[:limit]
+        joined = {k: v[keep] for k, v in joined.items()}
+    return joined
+
+
+def _passband_centre(setup: ChainSetup, rows: slice) -> np.ndarray:
+    """The final passband's centre at each channel of a block (C,)."""
+    return 0.5 * (setup.pass_low_hz[rows] + setup.pass_high_hz[rows])
 
 
 def _nodes_frame(setup: ChainSetup) -> pd.DataFrame:
@@ -150,37 +222,40 @@ def analyse_chain(plan: ChainPlan, *, base_dir: str | Path | None = None, prune:
     setup = set_up(plan, base_dir)
     n = setup.channels_hz.size
     step = block_channels or setup.block_channels()
-    per_path, hits, explored, pruned, r_explored, r_pruned = [], [], 0, 0, 0, 0
+    paths = _PathTable()
+    hits, explored, pruned, r_explored, r_pruned = [], 0, 0, 0, 0
     worst_all = {"margin": np.full(n, np.inf), "path": np.full(n, "", dtype=object),
                  "stage": np.full(n, "", dtype=object), "tracks": []}
     for start in range(0, n, step):
         rows = slice(start, min(n, start + step))
+        width = rows.stop - rows.start
         fwd = forward_block(setup, rows, prune=prune)
         texts, origin, gain = path_texts(setup, fwd.history, with_gain=True)
         a, b = _forward_reduce(setup, rows, fwd, texts, origin, worst_all, gain)
-        per_path.append(a)
+        paths.add(a)
         hits.append(b)
-        explored += fwd.explored
-        pruned += fwd.pruned
+        explored += fwd.explored * width  # counted per channel: the figure does not depend on the blocks
+        pruned += fwd.pruned * width
+        del fwd
         if responses and plan.direction == "down":
             inv = inverse_block(setup, rows, prune=prune)
             a, b = _reduce("response", inv.stage, inv.path, setup.channels_hz[rows], start, inv.margin_db,
                            inv.level_dbc, inv.rejection_db, inv.low_hz, inv.high_hz,
-                           np.ones(inv.margin_db.shape, dtype=bool),
+                           np.broadcast_to(True, inv.margin_db.shape),
                            np.full(inv.path.shape, setup.limits.texts[0], dtype=object), worst_all,
-                           inv.freq_slope, inv.anchor_hz, _passband_centre(setup, rows, inv.anchor_hz.shape))
-            per_path.append(a)
+                           _response_geometry(inv, _passband_centre(setup, rows)))
+            paths.add(a)
             hits.append(b)
-            r_explored += inv.explored
-            r_pruned += inv.pruned
+            r_explored += inv.explored * width
+            r_pruned += inv.pruned * width
+        if len(hits) > 1:  # keep only the worst failing cells and plane points so far
+            hits = [_worst_cells(hits, MAX_HIT_ROWS)]
+        if len(worst_all["tracks"]) > 1:
+            worst_all["tracks"] = [_worst_cells(worst_all["tracks"], MAX_TRACK_ROWS)]
+    explored, pruned = round(explored / max(n, 1)), round(pruned / max(n, 1))
+    r_explored, r_pruned = round(r_explored / max(n, 1)), round(r_pruned / max(n, 1))
     worst, worst_path, worst_stage = worst_all["margin"], worst_all["path"], worst_all["stage"]
-    paths = pd.DataFrame({k: np.concatenate([p[k] for p in per_path]) for k in per_path[0]})
-    if len(paths):
-        paths = paths.sort_values("margin_db", kind="stable")
-        fails = paths.groupby(["kind", "path"], sort=False)["n_failing_channels"].sum()
-        paths = paths.drop_duplicates(["kind", "path"]).copy()
-        paths["n_failing_channels"] = fails.loc[list(zip(paths["kind"], paths["path"], strict=True))].to_numpy()
-        paths = paths.reset_index(drop=True)
+    paths = paths.frame()
     hits = pd.DataFrame({k: np.concatenate([p[k] for p in hits]) for k in hits[0]})
     tracks = pd.DataFrame({k: np.concatenate([p[k] for p in worst_all["tracks"]]) for k in worst_all["tracks"][0]})
     tracks = tracks.sort_values("margin_db", kind="stable").head(MAX_TRACK_ROWS)
@@ -228,8 +303,8 @@ def channel_rows(setup: ChainSetup, index: int, *, prune: bool = True, responses
         inv = inverse_block(setup, rows, prune=prune)
         parts.append(_reduce("response", inv.stage, inv.path, setup.channels_hz[rows], index, inv.margin_db,
                              inv.level_dbc, inv.rejection_db, inv.low_hz, inv.high_hz,
-                             np.ones(inv.margin_db.shape, dtype=bool),
+                             np.broadcast_to(True, inv.margin_db.shape),
                              np.full(inv.path.shape, setup.limits.texts[0], dtype=object), scratch,
-                             inv.freq_slope, inv.anchor_hz, _passband_centre(setup, rows, inv.anchor_hz.shape))[0])
+                             _response_geometry(inv, _passband_centre(setup, rows)))[0])
     frame = pd.DataFrame({k: np.concatenate([p[k] for p in parts]) for k in parts[0]})
     return frame.drop(columns="n_failing_channels").sort_values("margin_db", kind="stable").reset_index(drop=True)
