@@ -210,7 +210,8 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
             from .app_chain import chain_planner
 
             folder = None if isinstance(plan, ChainPlan) else path.parent
-            return chain_planner(loaded_any, folder, chart_width=chart_width)
+            return chain_planner(loaded_any, folder, chart_width=chart_width,
+                                 file_path=None if isinstance(plan, ChainPlan) else path)
     if plan is None:
         loaded, folder = example_plan()
         state = PlanState(loaded, folder, file_name="fm_receiver.json")  # saved to the working directory

@@ -197,12 +197,19 @@ class ChainPlanner:
         Width of each of the chosen mixer's planes, pixels.
     """
 
-    def __init__(self, plan: ChainPlan, base_dir: str | Path | None = None, *, chart_width: int = 600) -> None:
+    def __init__(self, plan: ChainPlan, base_dir: str | Path | None = None, *, chart_width: int = 600,
+                 file_path: str | Path | None = None) -> None:
         import ipywidgets as w
 
         from .widget import BatchedBokehModel
 
         self.plan, self.base_dir, self.chart_width = plan, base_dir, chart_width
+        # the chain is saved where it was opened from, else in the working directory
+        target = Path(file_path) if file_path is not None else Path.cwd() / "chain.json"
+        self.save_path = w.Text(value=str(target), description="save as", layout=w.Layout(width="640px"))
+        self.save_button = w.Button(description="Save the chain", icon="save")
+        self.save_message = w.HTML()
+        self.save_button.on_click(lambda _b: self.save())
         self.result = analyse_chain(plan, base_dir=base_dir)
         self.banner = w.HTML()
         self.message = w.HTML()
@@ -220,7 +227,8 @@ class ChainPlanner:
         self.table = w.HTML()
         self.selected = mixer_indices(plan)[0]
         self.stage_app = None
-        self.widget = w.VBox([w.HTML(_CSS), self.banner, self.message, self.diagram,
+        self.widget = w.VBox([w.HTML(_CSS), self.banner, self.message,
+                              w.HBox([self.save_path, self.save_button]), self.save_message, self.diagram,
                               w.HBox([self.channel_slider, self.channel_label]), self.plane, self.stage_title,
                               self.stage_box, w.HTML("<b>Worst paths</b>"), self.table])
         self.widget.add_class("mixchart-chain")
@@ -262,6 +270,8 @@ class ChainPlanner:
 
     def select(self, index: int) -> None:
         """Show mixer ``index``'s planes (the single-conversion planner on its view)."""
+        import ipywidgets as w
+
         from .app import PlannerApp
         from .state import PlanState
 
@@ -274,8 +284,25 @@ class ChainPlanner:
         self.stage_title.value = (f"<b>{html.escape(name)}</b> on its own, as one conversion (its verdict below "
                                   "is this stage's alone; the chain's is at the top): drag its IF band to re-plan "
                                   "the chain, and a later mixer whose LO tracks follows")
+        # the mixer's own File tab would save its one-conversion view: here the chain is saved above
+        tabs = self.stage_app.controls.panel.children[0]
+        tabs.children = (*tabs.children[:4], w.HTML("<p>This mixer is a stage of the chain: save the chain with "
+                                                    "<b>Save the chain</b> at the top of the page.</p>"))
+        tabs.set_title(4, "File")
         self.stage_box.children = (self.stage_app.widget,)
         self._show()
+
+    def save(self) -> Path | None:
+        """Save the chain plan (layout version 2) atomically to the path in the field; say where."""
+        from .models.loading import save_any
+
+        try:
+            path = save_any(self.plan, Path(self.save_path.value).expanduser())
+        except MixchartError as exc:
+            self.save_message.value = f'<span style="color:{VERDICT_COLOURS["FAIL"]}">{html.escape(str(exc))}</span>'
+            return None
+        self.save_message.value = f"saved {html.escape(str(path.resolve()))}"
+        return path
 
     def _stage_changed(self, state: Any, what: str) -> None:
         if what != "plan":
@@ -292,10 +319,11 @@ class ChainPlanner:
         self._show()
 
 
-def chain_planner(plan: ChainPlan, base_dir: str | Path | None = None, *, chart_width: int = 600) -> Any:
+def chain_planner(plan: ChainPlan, base_dir: str | Path | None = None, *, chart_width: int = 600,
+                  file_path: str | Path | None = None) -> Any:
     """The chain planner's widget, carrying BokehJS with every display (see :func:`mixchart.app.planner`)."""
     from .notebook_js import show_with_bokehjs
 
-    app = ChainPlanner(plan, base_dir, chart_width=chart_width)
+    app = ChainPlanner(plan, base_dir, chart_width=chart_width, file_path=file_path)
     app.widget.app = app
     return show_with_bokehjs(app.widget)

@@ -137,3 +137,26 @@ def test_a_chain_result_plots_its_end_to_end_plane_lazily():
     assert "2.2 GHz" in result.plot(0).title.text
     with pytest.raises(IndexError, match="index: 9999 is invalid"):
         result.plot(9999)
+
+
+def test_saving_writes_the_chain_where_it_was_opened_atomically_and_exactly(tmp_path):
+    path = tmp_path / "scanner.json"
+    path.write_text(SCANNER.read_text())
+    app = planner(path).app
+    assert app.save_path.value == str(path)
+    assert app.stage_app.state.try_update({"if.center_hz": 1100e6}) is None
+    app.save_button.click()
+    assert str(path) in app.save_message.value
+    saved = load_any(path)
+    assert saved == app.plan and saved.chain[2].if_.center_hz == 1100e6
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["scanner.json"]  # no temporary file left
+    # the mixer's own File tab no longer saves its one-conversion view
+    tabs = app.stage_app.controls.panel.children[0]
+    assert "Save the chain" in tabs.children[4].value
+
+
+def test_a_save_to_a_folder_that_does_not_exist_says_so_and_writes_nothing(tmp_path):
+    app = planner(SCANNER).app
+    app.save_path.value = str(tmp_path / "missing" / "x.json")
+    assert app.save() is None and "missing" in app.save_message.value
+    assert not (tmp_path / "missing").exists()
