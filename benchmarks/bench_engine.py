@@ -65,8 +65,8 @@ from mixchart import evaluate  # noqa: E402
 from mixchart.analysis import CHUNK_CHANNELS  # noqa: E402
 from mixchart.errors import SweepTooLargeError  # noqa: E402
 from mixchart.filters import build_filter  # noqa: E402
+from mixchart.physics.products import overlaps, product_bands, product_family, response_bands, response_family  # noqa: E402
 from mixchart.plan import MAX_CHANNELS, MAX_ORDER, plan_from_dict  # noqa: E402
-from mixchart.products import overlaps, product_bands, product_family, response_bands, response_family  # noqa: E402
 
 ORDER = 15
 N_CHANNELS = 10_000

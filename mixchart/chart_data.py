@@ -38,8 +38,8 @@ from .chart_layers import (
 )
 from .chart_style import CLOSE_DB, DOT_SIZE, category_of, draw_rank, style_columns
 from .levels import FLOOR_DBC
-from .loci import output_plane_loci, tuning_plane_strips
-from .products import IMAGE, LABELS
+from .physics.loci import output_plane_loci, tuning_plane_strips
+from .physics.products import IMAGE, LABELS
 from .units import format_frequency
 
 __all__ = ["ViewOptions", "ChartData", "chart_data"]

@@ -12,7 +12,7 @@ import numpy as np
 
 from .chart_axes import axis_unit
 from .chart_style import CLOSE_DB, TINT_MAX_ALPHA, category_of, style_columns
-from .products import HALF_IF, IMAGE, LABELS
+from .physics.products import HALF_IF, IMAGE, LABELS
 from .units import format_frequency
 
 _MAX_PLAN_POINTS = 2000

@@ -2,7 +2,7 @@
 
 Nothing here imports mixchart's engine: the relations are written out again from
 the heterodyne physics and the documented level model, so the vectorised engine
-(:mod:`mixchart.products`, :func:`mixchart.analysis.evaluate`) can be checked
+(:mod:`mixchart.physics.products`, :func:`mixchart.analysis.evaluate`) can be checked
 against an independent implementation.  The only mixchart calls are
 :func:`mixchart.levels.build_table` (the mixer's level table is *input data*,
 read once into plain lists) and, for filter kinds whose formulas are not
@@ -212,7 +212,7 @@ def sweep(plan, limit: int | None = None) -> list[dict]:
 
 
 def product_label(direction: str, m: int, n: int, sign: int, wanted_sign: int) -> str:
-    """Label of an output product (mixchart.products.LABELS and analysis.FRAME_COLUMNS["label"]).
+    """Label of an output product (mixchart.physics.products.LABELS and analysis.FRAME_COLUMNS["label"]).
 
     (0,1) LO leakage; (0,n>1) LO harmonic; (1,0) RF feedthrough of a receiver, IF
     feedthrough of a transmitter (its input is the IF); the (1,1) of the wanted sign is
@@ -233,7 +233,7 @@ def product_label(direction: str, m: int, n: int, sign: int, wanted_sign: int) -
 
 
 def response_label(m: int, n: int, branch: int, wanted_branch: int) -> str:
-    """Label of a receiver response (mixchart.products.response_labels docstring, derived by hand).
+    """Label of a receiver response (mixchart.physics.products.response_labels docstring, derived by hand).
 
     (1,0) is IF feedthrough; the (1,1) branch holding the channel is the wanted input, the
     other (1,1) branch the image; the (2,2) response on the wanted branch is the half-IF
@@ -290,7 +290,7 @@ def sweep_levels(plan, limit: int | None = None, base_dir=None) -> dict:
       response have no margin (``+inf``) and never count as a worst case.
     * Worst case of a channel: the smallest margin over its products and responses;
       ties go to the first in family order (products before responses, then order,
-      ``m``, sign: mixchart.products.product_family / response_family docstrings).
+      ``m``, sign: mixchart.physics.products.product_family / response_family docstrings).
       Worst case of a product/response across the sweep: its smallest finite margin,
       the first channel on ties.
 

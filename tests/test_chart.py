@@ -18,8 +18,8 @@ import pytest
 from mixchart.analysis import evaluate
 from mixchart.chart import CATEGORIES, CLOSE_DB, ChartData, ViewOptions, build_chart, chart_data
 from mixchart.cli import example_path
+from mixchart.physics.loci import tuning_plane_strips
 from mixchart.plan import load_plan, plan_from_dict
-from mixchart.products import tuning_plane_strips
 from mixchart.units import format_frequency
 
 MHz = 1e6
@@ -892,7 +892,7 @@ def test_nothing_translucent_but_the_green_shading_and_strips_drawn_worst_on_top
 def test_the_half_if_locus_has_the_tables_name(fm, down):
     # Item "Tooltips": the (2,2) response on the wanted side of the LO is "half-IF" in the table (the
     # engine's label, products.LABELS); its strip and its output-plane arm say exactly that.
-    from mixchart.products import HALF_IF, LABELS
+    from mixchart.physics.products import HALF_IF, LABELS
 
     ev, data = fm
     table = ev.to_frame()

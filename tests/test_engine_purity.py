@@ -11,8 +11,9 @@ REPO = Path(__file__).resolve().parents[1]
 
 PROBE = """
 import sys
-import mixchart, mixchart.analysis, mixchart.products, mixchart.plan, mixchart.levels, mixchart.filters, mixchart.cli
-import mixchart.requirements, mixchart.context, mixchart.checks, mixchart.loci
+import mixchart, mixchart.analysis, mixchart.physics.products, mixchart.plan, mixchart.levels, mixchart.filters
+import mixchart.cli
+import mixchart.requirements, mixchart.context, mixchart.checks, mixchart.physics.loci
 import mixchart.models, mixchart.physics, mixchart.elements, mixchart.chains, mixchart.cli_chain
 from mixchart import evaluate, load_plan
 from mixchart.chains import analyse_chain

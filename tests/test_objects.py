@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 
 from mixchart import MixchartError, evaluate, load_plan
-from mixchart.products import product_family, product_labels, tuning_plane_loci, tuning_plane_strips
+from mixchart.physics.loci import tuning_plane_loci, tuning_plane_strips
+from mixchart.physics.products import product_family, product_labels
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "mixchart" / "examples"
 

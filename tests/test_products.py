@@ -1,4 +1,4 @@
-"""Mixing products, spurious responses, labels and spur loci (mixchart.products).
+"""Mixing products, spurious responses, labels and spur loci (mixchart.physics.products and .loci).
 
 Expected values are textbook heterodyne results or are derived by hand in the
 comments; the brute-force comparisons use tests/reference.py, an independent
@@ -14,7 +14,8 @@ from hypothesis import strategies as st
 
 import reference as ref  # tests/reference.py (pytest puts tests/ on sys.path)
 from mixchart.errors import MixchartError
-from mixchart.products import (
+from mixchart.physics.loci import clip_lines, output_plane_loci, tuning_plane_loci
+from mixchart.physics.products import (
     HALF_IF,
     IF_FEEDTHROUGH,
     IF_FEEDTHROUGH_OUT,
@@ -27,9 +28,7 @@ from mixchart.products import (
     SUM_PRODUCT,
     UNWANTED_SIDEBAND,
     WANTED,
-    clip_lines,
     is_inverted,
-    output_plane_loci,
     overlaps,
     product_bands,
     product_family,
@@ -37,7 +36,6 @@ from mixchart.products import (
     response_bands,
     response_family,
     response_labels,
-    tuning_plane_loci,
 )
 
 kHz, MHz = 1e3, 1e6

@@ -51,7 +51,7 @@ import numpy as np
 
 from ..context import Context, band_atten, band_rel_atten, capped, mask_margins, point_atten
 from ..levels import FLOOR_DBC
-from ..products import (
+from ..physics.products import (
     WANTED,
     ResponseFamily,
     overlaps,
@@ -215,7 +215,7 @@ def _extra_rf(margin: np.ndarray, a_in: np.ndarray, m: np.ndarray) -> np.ndarray
 class _ResponseBands:
     """Centre, low and high edge (Hz) of the responding input bands, computed only where gathered.
 
-    The same values as :func:`~mixchart.products.response_bands` over a (Cb, K) block;
+    The same values as :func:`~mixchart.physics.products.response_bands` over a (Cb, K) block;
     :attr:`columns` are its three columns.  One gather works out all three edges
     and keeps them for the other two columns of the same gather.
     """

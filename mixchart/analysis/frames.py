@@ -8,7 +8,7 @@ import pandas as pd
 from ..checks import COMPRESSION_MARGIN_DB
 from ..context import Context, loss_limits
 from ..levels import RF_EXTRAPOLATION_LIMIT_DB
-from ..products import LABELS
+from ..physics.products import LABELS
 from .block import _Block
 
 __all__ = ["FRAME_COLUMNS"]

@@ -10,8 +10,8 @@ import numpy as np
 from ..checks import floor_warnings, plan_warnings, span_warnings
 from ..context import build_context
 from ..errors import AnalysisError, one_line
+from ..physics.products import is_inverted
 from ..plan import Plan
-from ..products import is_inverted
 from ..units import format_frequency
 from .block import _Block, _evaluate_block
 from .frames import _frame_from

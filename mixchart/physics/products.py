@@ -10,7 +10,7 @@ up-converter) and ``n`` (``lo_harmonic``) the LO harmonic; the order is
 Every function here works on whole arrays of channels at once: a tuning sweep
 is one call, never a Python loop over channels.  Nothing here imports a
 plotting or widget library.  The chart's loci and strips of these products are in
-:mod:`mixchart.loci` (still importable from here).
+:mod:`mixchart.physics.loci`.
 
 References
 ----------
@@ -26,7 +26,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from .errors import MixchartError, field_error
+from ..errors import MixchartError, field_error
 
 __all__ = [
     "LABELS",
@@ -423,17 +423,3 @@ def response_labels(family: ResponseFamily, wanted_branch: np.ndarray) -> np.nda
     codes[one_one & ~same] = IMAGE
     codes[((m == 2) & (n == 2))[None, :] & same] = HALF_IF
     return codes
-
-
-#: Names that moved to :mod:`mixchart.loci`; ``from mixchart.products import Lines`` (etc.) still works.
-_MOVED_TO_LOCI = frozenset({"Lines", "clip_lines", "tuning_plane_loci", "output_plane_loci", "Strips",
-                            "tuning_plane_strips"})
-
-
-def __getattr__(name: str):
-    # loci imports this module, so it is imported here only when one of its names is asked for
-    if name in _MOVED_TO_LOCI:
-        from . import loci
-
-        return getattr(loci, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
