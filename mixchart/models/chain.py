@@ -26,9 +26,9 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_valida
 
 from ..elements.registry import stage_specs
 from ..errors import PlanError, SweepTooLargeError
-from ..plan import MAX_CHANNELS, MAX_ORDER, Plan, RfBand, Signal, plan_from_dict
 from ..requirements import Requirement
 from ..validation import from_validation_error
+from .plan import MAX_CHANNELS, MAX_ORDER, Plan, RfBand, Signal, plan_from_dict
 
 __all__ = ["CHAIN_SCHEMA_VERSION", "MAX_STAGES", "ChainPlan", "Stage", "chain_from_dict", "chain_json_schema",
            "migrate_v1",

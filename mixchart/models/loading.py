@@ -14,8 +14,8 @@ from typing import Any
 
 from ..errors import PlanError
 from ..fileio import atomic_write_text
-from ..plan import Plan, dumps_plan, parse_plan_json, plan_from_dict, read_plan_bytes
 from .chain import CHAIN_SCHEMA_VERSION, ChainPlan, chain_from_dict
+from .plan import Plan, dumps_plan, parse_plan_json, plan_from_dict, read_plan_bytes
 
 __all__ = ["plan_from_any_dict", "loads_any", "load_any", "dumps_any", "save_any"]
 

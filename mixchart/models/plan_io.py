@@ -4,7 +4,7 @@ Plan files are untrusted input.  They are parsed with :mod:`json` only (never ev
 unpickled); NaN, infinities and duplicate keys are refused, files are read with a size cap from
 regular files only, and every problem is a one-line :class:`~mixchart.errors.PlanError` naming
 the field.  Saving is atomic and a save/load round trip is exact.  The names here are also
-:mod:`mixchart.plan`'s.
+:mod:`mixchart.plan`'s (and :mod:`mixchart.models.plan`'s).
 """
 
 from __future__ import annotations
@@ -14,8 +14,8 @@ import os
 from pathlib import Path
 from typing import Any
 
-from .errors import PlanError, one_line
-from .fileio import atomic_write_text, read_regular_file
+from ..errors import PlanError, one_line
+from ..fileio import atomic_write_text, read_regular_file
 from .plan import SCHEMA_VERSION, Plan, plan_from_dict
 
 __all__ = ["MAX_PLAN_BYTES", "parse_plan_json", "loads_plan", "read_plan_bytes", "load_plan", "dumps_plan",
