@@ -166,7 +166,7 @@ def test_band_edges_are_checked():
 ])
 def test_every_filter_has_a_stated_default_ultimate_rejection(spec):
     filt = build_filter(spec)
-    floor = DEFAULT_MAX_ATTEN_DB[spec["kind"]]  # common practice, no source (documented in filters/specs.py)
+    floor = DEFAULT_MAX_ATTEN_DB[spec["kind"]]  # common practice, no source (documented in models/filters.py)
     assert filt.max_atten_db == floor and filt.max_atten_is_default
     f = np.geomspace(1e3, 1e12, 400)
     assert float(np.max(filt.atten_db(f))) == pytest.approx(floor)  # reached far out, never exceeded

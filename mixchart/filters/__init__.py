@@ -14,17 +14,14 @@ frequencies in Hz.  Band filters and tuned circuits may *track the channel*
 Pure numpy; scipy.signal and scikit-rf are imported only when an elliptic or
 a measured filter is built.
 
-The package's modules: :mod:`~mixchart.filters.specs` (the specs, their physical
+The package's modules: :mod:`~mixchart.models.filters` (the specs, their physical
 ranges and default ultimate rejections), :mod:`~mixchart.filters.response` (the
 :class:`Filter` interface), :mod:`~mixchart.filters.kinds` (the filter of each kind,
 :func:`build_filter`) and :mod:`~mixchart.filters.prototypes` (the Chebyshev and
 elliptic low-pass prototypes' mathematics).
 """
 
-from ..touchstone import MAX_TOUCHSTONE_BYTES, read_touchstone  # noqa: F401 (re-exported)
-from .kinds import build_filter
-from .response import Filter
-from .specs import (  # noqa: F401 (the limits are re-exported)
+from ..models.filters import (  # noqa: F401 (the limits are re-exported)
     DEFAULT_MAX_ATTEN_DB,
     MAX_FILTER_LOSS_DB,
     MAX_PATH_CHARS,
@@ -44,6 +41,9 @@ from .specs import (  # noqa: F401 (the limits are re-exported)
     iter_filter_stages,
     parse_filter_spec,
 )
+from ..touchstone import MAX_TOUCHSTONE_BYTES, read_touchstone  # noqa: F401 (re-exported)
+from .kinds import build_filter
+from .response import Filter
 
 __all__ = ["PrototypeFilter", "TunedCircuit", "BrickWall", "MeasuredFilter", "Cascade", "FilterSpec",
            "parse_filter_spec", "iter_filter_stages", "Filter", "build_filter"]

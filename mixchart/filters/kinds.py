@@ -14,6 +14,15 @@ import numpy as np
 from pydantic import BaseModel, ValidationError
 
 from ..errors import FilterError, field_error
+from ..models.filters import (
+    _ADAPTER,
+    BrickWall,
+    Cascade,
+    MeasuredFilter,
+    PrototypeFilter,
+    TunedCircuit,
+    _check_lower_edge,
+)
 from ..touchstone import read_touchstone
 from ..units import format_frequency
 from ..validation import from_validation_error
@@ -25,7 +34,6 @@ from .prototypes import (
     _elliptic_stop_minima,
 )
 from .response import Filter
-from .specs import _ADAPTER, BrickWall, Cascade, MeasuredFilter, PrototypeFilter, TunedCircuit, _check_lower_edge
 
 __all__ = ["build_filter"]
 

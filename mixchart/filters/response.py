@@ -14,7 +14,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import FilterError, field_error
-from .specs import DEFAULT_MAX_ATTEN_DB
+from ..models.filters import DEFAULT_MAX_ATTEN_DB
 
 __all__ = ["Filter"]
 
