@@ -110,7 +110,6 @@ def _text_table(frame, top: int) -> str:
 def _cmd_sweep(args: argparse.Namespace) -> int:
     from .analysis import evaluate
     from .models.chain import ChainPlan
-    from .units import parse_frequency
 
     plan, base = _load_any(args)
     if isinstance(plan, ChainPlan):
@@ -119,13 +118,7 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
         return sweep_chain(plan, base, args)
     result = evaluate(plan, base_dir=base)
     if args.channel is not None:
-        f_hz = parse_frequency(args.channel, "--channel")
-        first, last = float(result.channels_hz[0]), float(result.channels_hz[-1])
-        step = plan.rf.step_hz or 0.0
-        if not first - step / 2 <= f_hz <= last + step / 2:
-            raise MixchartError(f"--channel: {args.channel!r} is invalid; the tuning range is "
-                                f"{format_frequency(first)} to {format_frequency(last)}")
-        index = result.nearest_channel(f_hz)
+        index = channel_index(args.channel, plan, result)
         frame = result.channel_frame(index)
     elif args.rows == "hits":
         frame = result.hits
@@ -159,6 +152,19 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     if args.fail_on_spur and not result.summary.worst_margin_db >= 0:  # a NaN never passes
         return 1
     return 0
+
+
+def channel_index(text: str, plan, result) -> int:
+    """The channel of a sweep nearest ``--channel`` (text such as "98.1 MHz"); refused outside the range."""
+    from .units import parse_frequency
+
+    f_hz = parse_frequency(text, "--channel")
+    first, last = float(result.channels_hz[0]), float(result.channels_hz[-1])
+    step = plan.rf.step_hz or 0.0
+    if not first - step / 2 <= f_hz <= last + step / 2:
+        raise MixchartError(f"--channel: {text!r} is invalid; the tuning range is "
+                            f"{format_frequency(first)} to {format_frequency(last)}")
+    return result.nearest_channel(f_hz)
 
 
 def _plan_header(plan, result) -> str:

@@ -6,7 +6,6 @@ import argparse
 import json
 import sys
 
-from .errors import MixchartError
 from .units import format_frequency
 
 __all__ = ["sweep_chain", "nodes_text", "paths_text"]
@@ -46,27 +45,22 @@ def paths_text(frame, top: int) -> str:
 def sweep_chain(plan, base, args: argparse.Namespace) -> int:
     """Sweep a chain plan and print it as ``args.format`` asks (exit 1 with --fail-on-spur and a FAIL)."""
     from .chains import analyse_chain
-    from .units import parse_frequency
 
     result = analyse_chain(plan, base_dir=base)
     frame = result.hits if args.rows == "hits" else result.paths
     index = None
     if args.channel is not None:
-        f_hz = parse_frequency(args.channel, "--channel")
-        first, last = float(result.channels_hz[0]), float(result.channels_hz[-1])
-        step = plan.rf.step_hz or 0.0
-        if not first - step / 2 <= f_hz <= last + step / 2:
-            raise MixchartError(f"--channel: {args.channel!r} is invalid; the tuning range is "
-                                f"{format_frequency(first)} to {format_frequency(last)}")
-        index = result.nearest_channel(f_hz)
+        from .cli import channel_index
+
+        index = channel_index(args.channel, plan, result)
         frame = result.channel_frame(index)
     out = sys.stdout
     if args.format == "json":
         payload = result.to_json()
         if index is not None or args.rows == "hits":
-            from .chains.result import _records
+            from .analysis import frame_records
 
-            payload["rows"] = _records(frame)
+            payload["rows"] = frame_records(frame)
         json.dump(payload, out, indent=2, allow_nan=False)
         out.write("\n")
     elif args.format == "csv":

@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from ..analysis.result import _plain, frame_records
 from ..units import format_frequency
 
 __all__ = ["ChainSummary", "ChainResult", "PATH_COLUMNS", "CHANNEL_COLUMNS", "NODE_COLUMNS"]
@@ -91,21 +91,6 @@ class ChainSummary:
                 f"{format_frequency(self.worst_channel_hz)}; limited by {self.limiting_stage}); spur-free "
                 f"{100 * self.spur_free_fraction:.1f}% of {self.n_channels} channels; paths per channel explored "
                 f"{self.paths_explored}, pruned {self.paths_pruned}; inverted: {self.inverted}")
-
-
-def _plain(value: Any) -> Any:
-    if isinstance(value, (float, np.floating)):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, np.bool_):
-        return bool(value)
-    return value
-
-
-def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
-    return [{k: _plain(v) for k, v in row.items()} for row in frame.to_dict(orient="records")]
 
 
 class ChainResult:
@@ -206,8 +191,8 @@ class ChainResult:
             "summary": summary,
             "warnings": [{"code": w.code, "field": w.field, "value": _plain(w.value) if not isinstance(
                 w.value, (list, dict)) else w.value, "text": w.text} for w in self.warnings],
-            "nodes": _records(self._nodes),
-            "paths": _records(self._paths),
+            "nodes": frame_records(self._nodes),
+            "paths": frame_records(self._paths),
         }
 
     @property
