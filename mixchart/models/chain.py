@@ -22,13 +22,12 @@ import operator
 from collections import Counter
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from ..elements.registry import stage_specs
 from ..errors import PlanError, SweepTooLargeError
 from ..requirements import Requirement
-from ..validation import from_validation_error
-from .plan import MAX_CHANNELS, MAX_ORDER, Plan, RfBand, Signal, plan_from_dict
+from .plan import MAX_CHANNELS, MAX_ORDER, Plan, RfBand, Signal, plan_from_dict, validate_plan_model
 
 __all__ = ["CHAIN_SCHEMA_VERSION", "MAX_STAGES", "ChainPlan", "Stage", "chain_from_dict", "chain_json_schema",
            "migrate_v1",
@@ -141,14 +140,7 @@ def chain_from_dict(data: Any) -> ChainPlan:
     PlanError
         One line naming the first bad field (``chain.1.lo.side``) and its value.
     """
-    if not isinstance(data, dict):
-        raise PlanError(f"plan: {type(data).__name__} is invalid; the top level must be a JSON object")
-    try:
-        return ChainPlan.model_validate(data, by_alias=True, by_name=False)
-    except SweepTooLargeError:
-        raise
-    except ValidationError as exc:
-        raise from_validation_error(exc, data, PlanError, root="plan") from None
+    return validate_plan_model(ChainPlan, data)
 
 
 # ------------------------------------------------------------------ version 1 <-> one-mixer chain

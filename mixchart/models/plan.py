@@ -412,10 +412,19 @@ def plan_from_dict(data: Any) -> Plan:
     SweepTooLargeError
         If the sweep has more than :data:`MAX_CHANNELS` channels.
     """
+    return validate_plan_model(Plan, data)
+
+
+def validate_plan_model(model: type[BaseModel], data: Any) -> Any:
+    """Validate parsed JSON into a plan model of any layout, with the plan's one-line errors.
+
+    A sweep too large is raised as itself (:class:`~mixchart.errors.SweepTooLargeError`), never
+    wrapped; every other problem is one :class:`~mixchart.errors.PlanError` naming its field.
+    """
     if not isinstance(data, dict):
         raise PlanError(f"plan: {type(data).__name__} is invalid; the top level must be a JSON object")
     try:
-        return Plan.model_validate(data, by_alias=True, by_name=False)
+        return model.model_validate(data, by_alias=True, by_name=False)
     except SweepTooLargeError:
         raise
     except ValidationError as exc:
