@@ -124,3 +124,9 @@ def test_every_chain_example_loads_and_is_in_the_package():
         path = example_path(name)
         assert path.exists() and path.relative_to(Path(__file__).parents[1] / "mixchart" / "examples") == Path(rel)
         assert isinstance(load_any(path), ChainPlan)
+
+
+def test_evaluate_any_sends_a_chain_of_several_mixers_to_the_chain_engine():
+    from mixchart.chains import ChainResult, evaluate_any
+
+    assert isinstance(evaluate_any(load_any(example_path(SCANNER))), ChainResult)

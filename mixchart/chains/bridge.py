@@ -12,7 +12,6 @@ from pathlib import Path
 
 from ..models.chain import ChainPlan, single_stage_plan
 from ..plan import Plan
-from .result import ChainResult
 from .sweep import analyse_chain
 
 __all__ = ["evaluate_any"]
@@ -41,8 +40,3 @@ def evaluate_any(plan: Plan | ChainPlan, *, base_dir: str | Path | None = None):
             return analyse_chain(plan, base_dir=base_dir)
         plan = single
     return evaluate(plan, base_dir=base_dir)
-
-
-def is_chain_result(result: object) -> bool:
-    """Whether an evaluation came from the chain engine."""
-    return isinstance(result, ChainResult)

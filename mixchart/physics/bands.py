@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["mix_band", "inverse_mix_band", "product_sense"]
+__all__ = ["mix_band", "inverse_mix_band"]
 
 
 def mix_band(low_hz: np.ndarray, high_hz: np.ndarray, f_lo_hz: np.ndarray, m: np.ndarray, n: np.ndarray,
@@ -82,23 +82,3 @@ def inverse_mix_band(low_hz: np.ndarray, high_hz: np.ndarray, f_lo_hz: np.ndarra
     # a band that touches 0 Hz from both branches would be counted twice: branch b keeps f > 0 only
     valid[1] &= ~((low_hz <= 0) & (high_b <= 0))
     return np.maximum(low_a, 0.0), high_a, np.maximum(low_b, 0.0), high_b, valid
-
-
-def product_sense(m: np.ndarray, sign: np.ndarray, inverted_branch: np.ndarray) -> np.ndarray:
-    """Whether a product turns the spectrum over: the sign of ``d f_out / d f_in`` is negative.
-
-    Parameters
-    ----------
-    m : numpy.ndarray of int
-        Input harmonic (``m >= 1``: the output rises with the input on the positive branch).
-    sign : numpy.ndarray of int
-        Unused for the sense (the LO term does not depend on the input); kept for symmetry.
-    inverted_branch : numpy.ndarray of bool
-        True where ``m·f + s·n·f_lo`` is negative (the absolute value turns it over).
-
-    Returns
-    -------
-    numpy.ndarray of bool
-    """
-    del sign
-    return np.asarray(inverted_branch, dtype=bool) & (np.asarray(m) >= 1)
