@@ -35,7 +35,7 @@ from .app_mixer import circuit_controls, level_table_map, make_circuit_handler
 from .app_refresh import RefreshMixin
 from .chart import ChartHandle, build_chart, chart_data
 from .errors import MixchartError
-from .plan import Plan
+from .plan import Plan, load_plan
 from .state import PlanState, example_plan
 from .widget import BatchedBokehModel
 
@@ -201,12 +201,12 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
         follows the plan's name.
     """
     if plan is not None and not isinstance(plan, Plan):
-        from .models import load_any, single_stage_plan
+        from .models import load_any
         from .models.chain import ChainPlan
 
         path = Path(plan).resolve()
         loaded_any = plan if isinstance(plan, ChainPlan) else load_any(path)
-        if isinstance(loaded_any, ChainPlan) and single_stage_plan(loaded_any) is None:
+        if isinstance(loaded_any, ChainPlan):  # a chain file stays a chain (and is saved as one)
             from .app_chain import chain_planner
 
             folder = None if isinstance(plan, ChainPlan) else path.parent
@@ -219,11 +219,7 @@ def planner(plan: Plan | str | os.PathLike[str] | None = None, *, chart_width: i
         state = PlanState(plan, None)
     else:
         path = Path(plan).resolve()
-        from .models import load_any, single_stage_plan
-
-        loaded_any = load_any(path)
-        single = loaded_any if isinstance(loaded_any, Plan) else single_stage_plan(loaded_any)
-        state = PlanState(single, path.parent, save_dir=path.parent, file_name=path.name)
+        state = PlanState(load_plan(path), path.parent, save_dir=path.parent, file_name=path.name)
     from .notebook_js import show_with_bokehjs, title_follows_plan
 
     app = PlannerApp(state, chart_width=chart_width)

@@ -160,3 +160,16 @@ def test_a_save_to_a_folder_that_does_not_exist_says_so_and_writes_nothing(tmp_p
     app.save_path.value = str(tmp_path / "missing" / "x.json")
     assert app.save() is None and "missing" in app.save_message.value
     assert not (tmp_path / "missing").exists()
+
+
+def test_a_one_mixer_chain_file_opens_as_a_chain_and_is_saved_as_one(tmp_path):
+    """A version-2 file stays version 2: it is never rewritten in the version-1 layout."""
+    from mixchart.models import migrate_v1, save_any
+    from mixchart.plan import load_plan
+
+    path = tmp_path / "fm_chain.json"
+    save_any(migrate_v1(load_plan(example_path("fm_receiver"))), path)
+    app = planner(path).app
+    assert isinstance(app, ChainPlanner)
+    app.save()
+    assert load_any(path).schema_version == 2
