@@ -12,136 +12,30 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
-from .errors import LevelTableError, PlanError, field_error
+from .errors import LevelTableError, field_error
 from .levels import (
     FLOOR_DBC,
     MAX_HARMONIC,
     LevelTable,
-    Topology,
     check_topology,
     default_conversion_loss_db,
     read_table_csv,
 )
-from .ring_model import CircuitSpec, circuit_level_table, circuit_rf_drive_dbm
+from .models.mixer import DEFAULT_LO_HARMONIC2_DBC, RF_REF_BELOW_LO_DB, TYPICAL_ISOLATION_DB, MixerSpec
+from .ring_model import circuit_level_table, circuit_rf_drive_dbm
 
 __all__ = ["MixerSpec", "TYPICAL_ISOLATION_DB", "DEFAULT_LO_HARMONIC2_DBC", "RF_REF_BELOW_LO_DB",
            "DUTY_RANGE", "builtin_table", "build_table", "assumed_figures", "single_ended_duty_db"]
 
-#: Typical data-sheet port isolations by topology, dB: (LO-RF, LO-IF, RF-IF).  Common practice,
-#: from memory of diode-mixer data sheets (a double-balanced ring 30-40 / 25-35 / 20-30 dB; a
-#: single-balanced mixer 20 / 15 / 15 dB; a single diode little beyond its diplexer).  The
-#: single-ended RF-IF figure is the ideal 0/1 switch's own feedthrough: conversion loss 9.94 dB
-#: less the +3.92 dBc of the (1,0) term, 20·log10(2) = 6.02 dB (derived by hand).
-TYPICAL_ISOLATION_DB: dict[str, tuple[float, float, float]] = {
-    "double_balanced": (35.0, 30.0, 25.0),
-    "single_balanced": (20.0, 15.0, 15.0),
-    "single_ended": (10.0, 10.0, 20.0 * math.log10(2.0)),
-}
-#: Second harmonic of the LO at the mixer's LO port when not stated, dBc: an unfiltered
-#: synthesiser or buffer output, -15 to -25 dBc.  Common practice, no source.
-DEFAULT_LO_HARMONIC2_DBC = -20.0
-#: The built-in RF-harmonic rule is stated at this far below the LO drive, dB, when the plan
-#: gives no ``rf_ref_dbm`` (a table taken at -3 dBm RF with a +7 dBm LO).  Common practice, no source.
-RF_REF_BELOW_LO_DB = 10.0
 #: Conduction duty range of a single-ended mixer's diode, fraction of the LO cycle: a diode
 #: driven by a sine conducts for less than half a cycle.  Common practice, no source.
 DUTY_RANGE = (0.2, 0.5)
 #: Samples of the duty range for the worst case (the dB curves are smooth: the grid's error is
 #: below 1e-4 dB for n <= 64, checked in the tests against a finer grid).
 _DUTY_SAMPLES = 4001
-
-
-class MixerSpec(BaseModel):
-    """The mixer of a plan: topology, where its spur levels come from, and its data-sheet figures.
-
-    Defaults are common practice (see the module constants): a "+7 dBm LO" diode
-    double-balanced mixer, 30 dB of real balance (20-40 dB is typical), a 20 dB drop per
-    extra RF harmonic order at ``rf_ref_dbm``, the topology's typical isolations, and an LO
-    second harmonic of -20 dBc.  A figure left out takes its default and the result says so.
-    Field ranges are physical bounds, common practice, no source: drives -200 to +60 dBm,
-    balance and isolation 0 to 300 dB, RF harmonic step 0 to 100 dB per order, conversion
-    loss -100 to +100 dB; a table path at most 4096 characters (PATH_MAX).
-    """
-
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
-
-    topology: Topology = Field("double_balanced", description="Sets which products balance suppresses (and, for "
-                               "the circuit model, the circuit: a diode ring, a diode pair, one diode).")
-    model: Literal["switching", "diode_circuit"] = Field("switching", description="Where the levels come from: "
-                                                        "'switching', the built-in switching rules (balance_db, "
-                                                        "rf_harmonic_step_db), or 'diode_circuit', a solve of the "
-                                                        "mixer's diode circuit (mixer.circuit) at lo_drive_dbm.")
-    circuit: CircuitSpec | None = Field(None, description="The diode circuit, when model is 'diode_circuit' (null: "
-                                        "typical diodes, ideal baluns, 50 ohm ports).")
-    table: Literal["builtin"] | str = Field("builtin", max_length=4096, description="'builtin' (theory) or a path to a "
-                                            "measured CSV table, relative to the plan file's folder.")
-    rf_ref_dbm: float | None = Field(None, ge=-200.0, le=60.0, allow_inf_nan=False, description="RF drive (signal "
-                                     "input) at which the built-in RF-harmonic rule is stated, dBm; null: "
-                                     "10 dB below the LO drive (a physical anchor, never the plan's signal "
-                                     "level). A CSV table states its own.")
-    lo_drive_dbm: float = Field(7.0, ge=-200.0, le=60.0, allow_inf_nan=False, description="LO drive at the LO port, "
-                                "dBm: the built-in table's reference; compared with a CSV table's lo_ref_dbm.")
-    balance_db: float = Field(30.0, ge=0.0, le=300.0, allow_inf_nan=False, description="How far real balance "
-                              "suppresses products that ideal balance cancels, dB (a 1 % switching-duty error "
-                              "leaves 30 dB).")
-    conversion_loss_db: float | None = Field(None, ge=-100.0, le=100.0, allow_inf_nan=False, description="Conversion "
-                                             "loss, dB (negative = gain); null: ideal switching value for the "
-                                             "topology.")
-    rf_harmonic_step_db: float = Field(20.0, ge=0.0, le=100.0, allow_inf_nan=False, description="Built-in model: "
-                                       "drop per extra RF harmonic order at rf_ref_dbm, dB.")
-    lo_rf_isolation_db: float | None = Field(None, ge=0.0, le=300.0, allow_inf_nan=False, description="LO-to-RF "
-                                             "port isolation, dB (a transmitter's LO leakage); null: the "
-                                             "topology's typical data-sheet value.")
-    lo_if_isolation_db: float | None = Field(None, ge=0.0, le=300.0, allow_inf_nan=False, description="LO-to-IF "
-                                             "port isolation, dB (a receiver's LO leakage); null: typical.")
-    rf_if_isolation_db: float | None = Field(None, ge=0.0, le=300.0, allow_inf_nan=False, description="RF-to-IF "
-                                             "port isolation, dB (feedthrough of the signal input); null: typical.")
-    lo_harmonic2_dbc: float | None = Field(None, ge=-300.0, le=0.0, allow_inf_nan=False, description="LO second "
-                                           "harmonic at the LO port, dBc, before filters.lo; it moves the "
-                                           "switching instants and sets a floor under the even-n residuals; "
-                                           "null: -20 dBc.")
-    unbalanced_lo_isolation_db: float | None = Field(None, ge=0.0, le=300.0, allow_inf_nan=False, description="Older "
-                                                     "plans: LO isolation before balance, dB; read as the LO "
-                                                     "leakage isolation (plus balance_db for a double-balanced "
-                                                     "mixer) when the port isolation is not given.")
-
-    @field_validator("table")
-    @classmethod
-    def _check_table(cls, value: str) -> str:
-        if value != "builtin" and (value != value.strip() or not value.lower().endswith(".csv") or "\0" in value):
-            raise ValueError("give 'builtin' or a path ending in .csv")
-        return value
-
-    @model_validator(mode="after")
-    def _check_circuit(self) -> MixerSpec:
-        if self.circuit is not None and self.model != "diode_circuit":
-            raise PlanError("circuit: only used when model is 'diode_circuit'; remove it or set model 'diode_circuit'")
-        if self.circuit is not None:
-            self.circuit.check_for(self.topology)
-        return self
-
-    def rf_ref(self) -> float:
-        """The built-in rule's reference RF drive, dBm: ``rf_ref_dbm``, else LO drive less 10 dB."""
-        return self.lo_drive_dbm - RF_REF_BELOW_LO_DB if self.rf_ref_dbm is None else self.rf_ref_dbm
-
-    def leakage_isolation_db(self, direction: str) -> float:
-        """Isolation from the LO port to the output port, dB: LO-IF for a receiver, LO-RF for a transmitter."""
-        given = self.lo_if_isolation_db if direction == "down" else self.lo_rf_isolation_db
-        if given is not None:
-            return given
-        if self.unbalanced_lo_isolation_db is not None:  # an older plan's figure, as it was applied
-            return self.unbalanced_lo_isolation_db + (self.balance_db if self.topology == "double_balanced" else 0.0)
-        return TYPICAL_ISOLATION_DB[self.topology][1 if direction == "down" else 0]
-
-    def feedthrough_isolation_db(self) -> float:
-        """Isolation from the signal input to the output, dB (RF-IF, either direction)."""
-        given = self.rf_if_isolation_db
-        return TYPICAL_ISOLATION_DB[self.topology][2] if given is None else given
 
 
 def assumed_figures(spec: MixerSpec, direction: str) -> list[str]:

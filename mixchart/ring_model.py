@@ -23,10 +23,9 @@ from collections import OrderedDict
 from typing import Any
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field
 
-from .errors import PlanError
 from .levels import FLOOR_DBC, LevelTable
+from .models.mixer import BalunSpec, CircuitSpec, DiodeMismatch
 from .ring_solver import DIODE_COUNT, TYPICAL_DIODE, Balun, Circuit, Diode
 from .ring_table import RingResult, solve_ring
 
@@ -37,77 +36,6 @@ __all__ = ["BalunSpec", "DiodeMismatch", "CircuitSpec", "circuit_from_spec", "ci
 CACHE_SIZE = 32
 _CACHE: OrderedDict[tuple, RingResult] = OrderedDict()
 _STATS = {"hits": 0, "misses": 0}
-
-
-class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True)
-
-
-class BalunSpec(_Strict):
-    """A balun's imbalance (0 and 0: ideal)."""
-
-    amplitude_imbalance_db: float = Field(0.0, ge=-6.0, le=6.0, allow_inf_nan=False, description="Half-winding "
-                                          "1 over half-winding 2, dB (a turns imbalance: acts on drive and load).")
-    phase_imbalance_deg: float = Field(0.0, ge=-45.0, le=45.0, allow_inf_nan=False, description="Phase error "
-                                       "between the halves' EMFs, degrees (acts on a driven balun only).")
-
-
-class DiodeMismatch(_Strict):
-    """One diode's departure from the circuit's diode figures, as ratios (1: matched)."""
-
-    is_ratio: float = Field(1.0, gt=0.0, le=100.0, allow_inf_nan=False, description="Saturation current ratio.")
-    ideality_ratio: float = Field(1.0, gt=0.0, le=10.0, allow_inf_nan=False, description="Ideality ratio "
-                                  "(the diode's ideality must stay >= 1).")
-    rs_ratio: float = Field(1.0, ge=0.0, le=100.0, allow_inf_nan=False, description="Series resistance ratio.")
-
-
-class CircuitSpec(_Strict):
-    """The mixer's circuit: diode figures, per-diode mismatch, balun imbalance, port terminations.
-
-    Diode figures left out take typical medium-barrier silicon Schottky values (from memory:
-    :data:`mixchart.ring_solver.TYPICAL_DIODE`), and the result says so.  Bounds are physical
-    sense, common practice, no source.
-    """
-
-    is_a: float | None = Field(None, gt=0.0, le=1.0, allow_inf_nan=False, description="Diode saturation "
-                               "current, A; null: 5e-9 A (typical, assumed).")
-    ideality: float | None = Field(None, ge=1.0, le=10.0, allow_inf_nan=False, description="Diode ideality "
-                                   "factor (>= 1); null: 1.08 (typical, assumed).")
-    rs_ohm: float | None = Field(None, ge=0.0, le=1e6, allow_inf_nan=False, description="Diode series "
-                                 "resistance, ohm; null: 6 ohm (typical, assumed).")
-    mismatch: tuple[DiodeMismatch, ...] | None = Field(None, strict=False, max_length=4, description="One entry "
-                                                       "per diode (4 for double_balanced, 2 for single_balanced, "
-                                                       "1 for single_ended), D1 a->b, D2 b->c, D3 c->d, D4 d->a; "
-                                                       "null: matched diodes.")
-    lo_balun: BalunSpec = Field(default_factory=BalunSpec, description="LO balun imbalance (default ideal).")
-    rf_balun: BalunSpec = Field(default_factory=BalunSpec, description="RF balun imbalance (default ideal).")
-    lo_port_ohm: float = Field(50.0, ge=0.1, le=1e6, allow_inf_nan=False, description="LO port termination, ohm.")
-    rf_port_ohm: float = Field(50.0, ge=0.1, le=1e6, allow_inf_nan=False, description="RF port termination, ohm.")
-    if_port_ohm: float = Field(50.0, ge=0.1, le=1e6, allow_inf_nan=False, description="IF port termination, ohm.")
-    temperature_k: float = Field(300.0, ge=1.0, le=1000.0, allow_inf_nan=False, description="Junction "
-                                 "temperature, K.")
-
-    def check_for(self, topology: str) -> None:
-        """Raise :class:`~mixchart.errors.PlanError` naming the field if the mismatch does not fit the topology."""
-        if self.mismatch is None:
-            return
-        want = DIODE_COUNT[topology]
-        if len(self.mismatch) != want:
-            words = topology.replace("_", "-")
-            raise PlanError(f"circuit.mismatch: {len(self.mismatch)} entries is invalid; a {words} circuit has "
-                            f"{want} diode(s)")
-        base = TYPICAL_DIODE.ideality if self.ideality is None else self.ideality
-        for k, entry in enumerate(self.mismatch):
-            if base * entry.ideality_ratio < 1.0:
-                raise PlanError(f"circuit.mismatch.{k}.ideality_ratio: {entry.ideality_ratio!r} is invalid; it gives "
-                                 f"diode D{k + 1} an ideality of {base * entry.ideality_ratio:.4g}, below 1")
-
-    @property
-    def balanced(self) -> bool:
-        """True when no mismatch or imbalance is given: an ideally balanced circuit."""
-        ideal = BalunSpec()
-        matched = self.mismatch is None or all(m == DiodeMismatch() for m in self.mismatch)
-        return matched and self.lo_balun == ideal and self.rf_balun == ideal
 
 
 def circuit_from_spec(spec: CircuitSpec | None, topology: str) -> Circuit:

@@ -24,10 +24,10 @@ from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError,
 
 from ..errors import PlanError, SweepTooLargeError
 from ..filters import FilterSpec, iter_filter_stages
-from ..mixer_model import MixerSpec
 from ..requirements import MaskSegment, Requirement
 from ..units import FrequencyHz, SpanHz, format_frequency
 from ..validation import from_validation_error
+from .mixer import MixerSpec
 
 __all__ = [
     "SCHEMA_VERSION",
