@@ -130,9 +130,7 @@ def _response_name(setup: ChainSetup, steps: list[str], wanted: list[str | None]
         else:
             label = f"{step} response of {name}"
         return f"{label}: {path}"
-    if setup.elements[i].kind == "adc":
-        return f"{step} of {name}: {path}"
-    return f"{step} of {name}: {path}"
+    return f"{step} of {name}: {path}"  # an ADC's alias, an amplifier's harmonic
 
 
 def inverse_block(setup: ChainSetup, rows: slice, *, prune: bool = True) -> InverseBlock:
